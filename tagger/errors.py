@@ -1,0 +1,28 @@
+"""The exception types the library raises; the CLI turns them into exit code 1."""
+
+from __future__ import annotations
+
+
+class TaggerError(Exception):
+    """Base of every error caused by the user's data, config or model file."""
+
+
+class DataError(TaggerError):
+    """Bad input data, located by file and (where known) line number."""
+
+    def __init__(self, message: str, path: str | None = None, line: int | None = None) -> None:
+        self.message = message
+        self.path = path
+        self.line = line
+        where = path or ""
+        if path is not None and line is not None:
+            where = f"{path}:{line}"
+        super().__init__(f"{where}: {message}" if where else message)
+
+
+class ConfigError(TaggerError):
+    """An invalid configuration key, value or override."""
+
+
+class ModelFileError(TaggerError):
+    """A model file that is missing, truncated, corrupted or from an incompatible version."""
