@@ -1,0 +1,9 @@
+#!/usr/bin/env bash
+# The main job on the bundled demo data: check the files, train, evaluate on the test split, tag new text.
+set -euo pipefail
+cd "$(dirname "$0")/.."
+bash scripts/setup_env.sh
+T=.venv/bin/tagger
+$T check data/demo/train.txt data/demo/dev.txt data/demo/test.txt
+$T train --config configs/default.toml --out runs/demo
+$T evaluate runs/demo/model.tagger data/demo/test.txt --predictions runs/demo/test.predicted.txt

@@ -1,0 +1,7 @@
+#!/usr/bin/env bash
+# Set up .venv and run the linter and the whole test suite.
+set -euo pipefail
+cd "$(dirname "$0")/.."
+bash scripts/setup_env.sh
+.venv/bin/ruff check tagger tests scripts
+.venv/bin/python -m pytest "$@"

@@ -1,0 +1,111 @@
+"""Sentences -> padded tensors and masks, and length-bucketed minibatches.
+
+A batch is right-padded: sentence b occupies positions [0, lengths[b]) of every (batch, time) tensor.
+
+    words   (batch, time)        word ids, 0 = padding
+    chars   (batch, time, chars) character ids of each token, 0 = padding
+    mask    (batch, time)        True at real tokens
+    labels  (batch, time)        label ids (0 at padding, ignored through the mask), or None
+"""
+
+from __future__ import annotations
+
+import random
+from collections.abc import Sequence
+from dataclasses import dataclass
+
+import numpy as np
+import torch
+
+from tagger.vocab import Vocabularies
+
+MAX_TOKEN_CHARS = 24  # longer tokens keep their first and last 12 characters: affixes carry the signal
+
+
+@dataclass
+class EncodedSentence:
+    words: list[int]
+    chars: list[list[int]]
+    labels: list[int] | None = None
+
+
+@dataclass
+class Batch:
+    words: torch.Tensor
+    chars: torch.Tensor
+    lengths: torch.Tensor
+    mask: torch.Tensor
+    labels: torch.Tensor | None
+    indices: list[int]  # position of each row in the list the batch was cut from
+
+    @property
+    def tokens(self) -> int:
+        return int(self.lengths.sum())
+
+
+def _clip_chars(token: str) -> str:
+    if len(token) <= MAX_TOKEN_CHARS:
+        return token
+    half = MAX_TOKEN_CHARS // 2
+    return token[:half] + token[-half:]
+
+
+def encode_sentence(
+    tokens: Sequence[str], vocabs: Vocabularies, labels: Sequence[str] | None = None
+) -> EncodedSentence:
+    """Ids for one sentence; labels outside the label vocabulary are read as "O"."""
+    words = [vocabs.words.index(vocabs.word_key(t)) for t in tokens]
+    chars = [vocabs.chars.encode(_clip_chars(t)) or [1] for t in tokens]
+    label_ids = None
+    if labels is not None:
+        outside = vocabs.labels.stoi["O"]
+        label_ids = [vocabs.labels.stoi.get(label, outside) for label in labels]
+    return EncodedSentence(words, chars, label_ids)
+
+
+def collate(sentences: Sequence[EncodedSentence], indices: Sequence[int]) -> Batch:
+    """Pad the chosen sentences into one batch."""
+    chosen = [sentences[i] for i in indices]
+    lengths = [len(s.words) for s in chosen]
+    batch, time = len(chosen), max(lengths)
+    width = max(len(c) for s in chosen for c in s.chars)
+    # numpy slice assignment from lists is much cheaper than one torch.tensor per token
+    words = np.zeros((batch, time), dtype=np.int64)
+    chars = np.zeros((batch, time, width), dtype=np.int64)
+    has_labels = chosen[0].labels is not None
+    labels = np.zeros((batch, time), dtype=np.int64) if has_labels else None
+    for b, sentence in enumerate(chosen):
+        n = lengths[b]
+        words[b, :n] = sentence.words
+        for t, token_chars in enumerate(sentence.chars):
+            chars[b, t, : len(token_chars)] = token_chars
+        if labels is not None:
+            labels[b, :n] = sentence.labels
+    lengths_tensor = torch.tensor(lengths)
+    mask = torch.arange(time)[None, :] < lengths_tensor[:, None]
+    return Batch(
+        torch.from_numpy(words),
+        torch.from_numpy(chars),
+        lengths_tensor,
+        mask,
+        None if labels is None else torch.from_numpy(labels),
+        list(indices),
+    )
+
+
+def bucketed_batches(
+    lengths: Sequence[int], batch_size: int, rng: random.Random | None = None
+) -> list[list[int]]:
+    """Group sentence indices of similar length into batches (little padding).
+
+    With ``rng`` the grouping is shuffled (ties broken at random, batch order random); without it
+    the batches come in ascending length order, which is what prediction wants.
+    """
+    order = list(range(len(lengths)))
+    if rng is not None:
+        rng.shuffle(order)
+    order.sort(key=lambda i: lengths[i])  # stable: shuffled ties stay shuffled
+    batches = [order[i : i + batch_size] for i in range(0, len(order), batch_size)]
+    if rng is not None:
+        rng.shuffle(batches)
+    return batches

@@ -1,0 +1,205 @@
+"""Typed, validated configuration: loaded from TOML, overridden from the command line, saved in model files.
+
+A config file has three tables, each optional, each key optional:
+
+    [data]   where the annotated files are and how to read them
+    [model]  what network to build (travels inside the model file)
+    [train]  how to fit it
+
+Unknown keys, wrong types and values outside the allowed set are rejected with the key's name.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import tomllib
+import typing
+from dataclasses import dataclass, field, fields, replace
+from pathlib import Path
+from typing import Any
+
+from tagger.errors import ConfigError
+
+CELLS = ("rnn", "minimal", "gru", "lstm")
+OUTPUTS = ("crf", "softmax")
+CHAR_ENCODERS = ("cnn", "rnn", "none")
+OPTIMIZERS = ("adam", "sgd")
+SCHEDULES = ("constant", "exponential", "plateau")
+DELIMITERS = ("auto", "tab", "space")
+HOLDOUTS = ("random", "last")
+
+
+@dataclass(frozen=True)
+class DataConfig:
+    train: str = ""
+    dev: str = ""
+    dev_fraction: float = 0.1  # held out of train when no dev file is given
+    dev_holdout: str = "random"  # which sentences: a seeded random draw, or the last ones in the file
+    token_column: int = 0
+    label_column: int = -1
+    delimiter: str = "auto"
+
+
+@dataclass(frozen=True)
+class ModelConfig:
+    cell: str = "lstm"
+    hidden_size: int = 128  # per direction
+    layers: int = 2
+    bidirectional: bool = True
+    word_dim: int = 100
+    char_encoder: str = "cnn"
+    char_dim: int = 32
+    char_features: int = 64  # CNN filters, or hidden units per direction of the character RNN
+    char_kernel: int = 3
+    dropout: float = 0.5
+    output: str = "crf"
+    scheme: str = "BIOES"  # the scheme the network learns; predictions are written in the input's scheme
+    lowercase: bool = False
+    digits_to_zero: bool = True
+    min_word_count: int = 1
+    pretrained_vectors: str = ""  # word2vec/GloVe text file; empty for none
+    fast_kernels: bool = True  # use torch's fused kernels where a cell has one
+
+
+@dataclass(frozen=True)
+class TrainConfig:
+    epochs: int = 30
+    batch_size: int = 32
+    optimizer: str = "adam"
+    learning_rate: float = 0.002
+    lr_schedule: str = "exponential"
+    lr_decay: float = 0.95  # per epoch (exponential) or on each plateau (plateau)
+    weight_decay: float = 0.0
+    clip_norm: float = 5.0
+    patience: int = 6  # epochs without a better dev F1 before stopping
+    unknown_replace: float = 0.3  # chance a word seen once in train is read as unknown
+    seed: int = 1
+    threads: int = 0  # 0: torch's default
+    max_minutes: float = 0.0  # wall-clock budget; 0: none
+
+
+@dataclass(frozen=True)
+class Config:
+    data: DataConfig = field(default_factory=DataConfig)
+    model: ModelConfig = field(default_factory=ModelConfig)
+    train: TrainConfig = field(default_factory=TrainConfig)
+
+    def to_dict(self) -> dict[str, dict[str, Any]]:
+        return dataclasses.asdict(self)
+
+
+SECTIONS: dict[str, type] = {"data": DataConfig, "model": ModelConfig, "train": TrainConfig}
+
+_CHOICES: dict[tuple[str, str], tuple[str, ...]] = {
+    ("model", "cell"): CELLS,
+    ("model", "output"): OUTPUTS,
+    ("model", "char_encoder"): CHAR_ENCODERS,
+    ("train", "optimizer"): OPTIMIZERS,
+    ("train", "lr_schedule"): SCHEDULES,
+    ("data", "delimiter"): DELIMITERS,
+    ("data", "dev_holdout"): HOLDOUTS,
+}
+_POSITIVE = {("model", "hidden_size"), ("model", "layers"), ("model", "word_dim"),
+             ("train", "epochs"), ("train", "batch_size"), ("model", "char_kernel"),
+             ("model", "min_word_count")}
+_FRACTIONS = {("model", "dropout"), ("train", "unknown_replace"), ("data", "dev_fraction")}
+
+
+def _coerce(section: str, name: str, expected: Any, value: Any) -> Any:
+    """Check one value's type; ints are accepted where floats are expected."""
+    key = f"{section}.{name}"
+    if expected is bool:
+        ok = isinstance(value, bool)
+    elif expected is int:
+        ok = isinstance(value, int) and not isinstance(value, bool)
+    elif expected is float:
+        ok = isinstance(value, int | float) and not isinstance(value, bool)
+        value = float(value) if ok else value
+    else:
+        ok = isinstance(value, expected)
+    if not ok:
+        raise ConfigError(f"{key} must be {expected.__name__}, got {value!r}")
+    return value
+
+
+def _validate(section: str, name: str, value: Any) -> None:
+    key = f"{section}.{name}"
+    choices = _CHOICES.get((section, name))
+    if choices and value not in choices:
+        raise ConfigError(f"{key} must be one of {', '.join(choices)}; got {value!r}")
+    if (section, name) in _POSITIVE and value < 1:
+        raise ConfigError(f"{key} must be at least 1; got {value!r}")
+    if (section, name) in _FRACTIONS and not 0.0 <= value < 1.0:
+        raise ConfigError(f"{key} must be in [0, 1); got {value!r}")
+    if name in ("learning_rate", "clip_norm", "lr_decay", "weight_decay", "max_minutes") and value < 0:
+        raise ConfigError(f"{key} must not be negative; got {value!r}")
+    if (section, name) == ("model", "scheme"):
+        from tagger.schemes import normalise_scheme_name
+
+        normalise_scheme_name(value)
+
+
+def _section(section: str, values: dict[str, Any], base: Any) -> Any:
+    cls = SECTIONS[section]
+    hints = typing.get_type_hints(cls)
+    known = {f.name for f in fields(cls)}
+    changes = {}
+    for name, value in values.items():
+        if name not in known:
+            raise ConfigError(
+                f"unknown key {section}.{name}; known keys: {', '.join(sorted(known))}"
+            )
+        value = _coerce(section, name, hints[name], value)
+        _validate(section, name, value)
+        changes[name] = value
+    return replace(base, **changes)
+
+
+def config_from_dict(raw: dict[str, Any], base: Config | None = None) -> Config:
+    """Build a validated Config from nested tables, starting from ``base`` (defaults if None)."""
+    config = base or Config()
+    for section, values in raw.items():
+        if section not in SECTIONS:
+            raise ConfigError(f"unknown table [{section}]; known tables: data, model, train")
+        if not isinstance(values, dict):
+            raise ConfigError(f"[{section}] must be a table of keys")
+        config = replace(config, **{section: _section(section, values, getattr(config, section))})
+    return config
+
+
+def load_config(path: str | Path | None) -> Config:
+    """Read a TOML config file; None gives the defaults."""
+    if path is None:
+        return Config()
+    try:
+        with open(path, "rb") as handle:
+            raw = tomllib.load(handle)
+    except FileNotFoundError:
+        raise ConfigError(f"{path}: config file not found") from None
+    except tomllib.TOMLDecodeError as error:
+        raise ConfigError(f"{path}: not valid TOML ({error})") from None
+    try:
+        return config_from_dict(raw)
+    except ConfigError as error:
+        raise ConfigError(f"{path}: {error}") from None
+
+
+def parse_override(text: str) -> tuple[str, str, Any]:
+    """Parse ``section.key=value``; the value is read as TOML (so 0.5, true, "gru"), else as a string."""
+    key, sep, value_text = text.partition("=")
+    section, dot, name = key.strip().partition(".")
+    if not sep or not dot:
+        raise ConfigError(f"override {text!r} must look like section.key=value, e.g. model.cell=gru")
+    try:
+        value = tomllib.loads(f"v = {value_text.strip()}")["v"]
+    except tomllib.TOMLDecodeError:
+        value = value_text.strip()
+    return section, name, value
+
+
+def apply_overrides(config: Config, overrides: list[str]) -> Config:
+    raw: dict[str, dict[str, Any]] = {}
+    for text in overrides:
+        section, name, value = parse_override(text)
+        raw.setdefault(section, {})[name] = value
+    return config_from_dict(raw, config)

@@ -1,0 +1,132 @@
+"""The tagger network: word and character features -> residual bidirectional encoder -> output layer.
+
+    words (B,T) ──embed──┐
+                         ├─ concat ─ dropout ─ BiResidualEncoder ─ dropout ─ linear ─> emissions (B,T,L)
+    chars (B,T,C) ─CNN/RNN┘                                                  └─ CRF or softmax
+"""
+
+from __future__ import annotations
+
+import torch
+from torch import nn
+
+from tagger.config import ModelConfig
+from tagger.crf import CRF
+from tagger.encoder import BiResidualEncoder
+
+Transitions = tuple[list[bool], list[list[bool]], list[bool]]
+
+
+class CharCNN(nn.Module):
+    """Character convolution with max pooling over each token's characters."""
+
+    def __init__(self, n_chars: int, dim: int, features: int, kernel: int) -> None:
+        super().__init__()
+        self.embed = nn.Embedding(n_chars, dim, padding_idx=0)
+        self.conv = nn.Conv1d(dim, features, kernel, padding=kernel // 2)
+        self.output_size = features
+
+    def forward(self, chars: torch.Tensor) -> torch.Tensor:
+        batch, time, width = chars.shape
+        flat = chars.reshape(batch * time, width)  # (B*T, C)
+        x = self.embed(flat).transpose(1, 2)  # (B*T, dim, C)
+        h = self.conv(x)[:, :, :width]  # (B*T, features, C)
+        h = h.masked_fill((flat == 0)[:, None, :], -1e4)
+        pooled = h.max(dim=2).values.clamp_min(-1.0)  # padding tokens pool to -1e4: keep them finite
+        return pooled.reshape(batch, time, -1)  # (B, T, features)
+
+
+class CharRNN(nn.Module):
+    """A one-layer bidirectional recurrent encoder over each token's characters (same stack code)."""
+
+    def __init__(self, n_chars: int, dim: int, features: int, cell: str, fast: bool) -> None:
+        super().__init__()
+        self.embed = nn.Embedding(n_chars, dim, padding_idx=0)
+        self.encoder = BiResidualEncoder(dim, features, 1, cell, 0.0, fast=fast)
+        self.features = features
+        self.output_size = 2 * features
+
+    def forward(self, chars: torch.Tensor) -> torch.Tensor:
+        batch, time, width = chars.shape
+        flat = chars.reshape(batch * time, width)
+        lengths = (flat != 0).sum(1)  # (B*T,)
+        real = lengths > 0
+        out = flat.new_zeros(batch * time, self.output_size, dtype=torch.float32)
+        if real.any():
+            h = self.encoder(self.embed(flat[real]), lengths[real])  # (N, C, 2F)
+            last = (lengths[real] - 1)[:, None, None].expand(-1, 1, self.features)
+            forward_end = h[:, :, : self.features].gather(1, last).squeeze(1)
+            backward_end = h[:, 0, self.features :]
+            out = out.index_put((real.nonzero().squeeze(1),), torch.cat([forward_end, backward_end], 1))
+        return out.reshape(batch, time, -1)
+
+
+class TaggerNet(nn.Module):
+    def __init__(
+        self,
+        config: ModelConfig,
+        n_words: int,
+        n_chars: int,
+        n_labels: int,
+        transitions: Transitions | None = None,
+    ) -> None:
+        super().__init__()
+        self.config = config
+        self.words = nn.Embedding(n_words, config.word_dim, padding_idx=0)
+        self.chars: nn.Module | None = None
+        char_size = 0
+        if config.char_encoder == "cnn":
+            self.chars = CharCNN(n_chars, config.char_dim, config.char_features, config.char_kernel)
+        elif config.char_encoder == "rnn":
+            self.chars = CharRNN(
+                n_chars, config.char_dim, config.char_features, config.cell, config.fast_kernels
+            )
+        if self.chars is not None:
+            char_size = self.chars.output_size
+        self.dropout = nn.Dropout(config.dropout)
+        self.encoder = BiResidualEncoder(
+            config.word_dim + char_size,
+            config.hidden_size,
+            config.layers,
+            config.cell,
+            config.dropout,
+            fast=config.fast_kernels,
+            bidirectional=config.bidirectional,
+        )
+        self.output = nn.Linear(self.encoder.output_size, n_labels)
+        self.crf = CRF(n_labels, *transitions) if config.output == "crf" else None
+
+    def emissions(self, words: torch.Tensor, chars: torch.Tensor, lengths: torch.Tensor) -> torch.Tensor:
+        features = self.words(words)  # (B, T, word_dim)
+        if self.chars is not None:
+            features = torch.cat([features, self.chars(chars)], dim=-1)
+        h = self.encoder(self.dropout(features), lengths)  # (B, T, output_size)
+        return self.output(self.dropout(h))  # (B, T, L)
+
+    def loss(
+        self, emissions: torch.Tensor, labels: torch.Tensor, mask: torch.Tensor
+    ) -> torch.Tensor:
+        """Summed negative log-likelihood of the gold labels over the batch."""
+        if self.crf is not None:
+            return self.crf.nll(emissions, labels, mask, reduction="sum")
+        log_probs = emissions.log_softmax(-1)
+        picked = log_probs.gather(-1, labels.unsqueeze(-1)).squeeze(-1)  # (B, T)
+        return -(picked * mask).sum()
+
+    def decode(self, emissions: torch.Tensor, mask: torch.Tensor) -> list[list[int]]:
+        lengths = mask.sum(1).tolist()
+        if self.crf is not None:
+            return self.crf.decode(emissions, mask)
+        best = emissions.argmax(-1).tolist()
+        return [row[:n] for row, n in zip(best, lengths, strict=True)]
+
+    def label_probabilities(self, emissions: torch.Tensor, mask: torch.Tensor) -> torch.Tensor:
+        """(B, T, L): CRF marginals or softmax probabilities."""
+        if self.crf is not None:
+            return self.crf.marginals(emissions, mask)
+        return emissions.softmax(-1)
+
+    def flops_per_token(self) -> int:
+        """Forward FLOPs of the word-level encoder and output layer per token (the dominant cost)."""
+        out = self.output
+        return self.encoder.flops_per_token() + 2 * out.in_features * out.out_features

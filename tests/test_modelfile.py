@@ -1,0 +1,68 @@
+from __future__ import annotations
+
+import json
+from pathlib import Path
+
+import pytest
+import torch
+
+from tagger.errors import ModelFileError
+from tagger.modelfile import FORMAT_VERSION, load_model_file, save_model_file
+
+
+def _save(path: Path) -> dict[str, torch.Tensor]:
+    tensors = {"w": torch.randn(4, 3, generator=torch.Generator().manual_seed(0)), "ids": torch.arange(7)}
+    save_model_file(path, tensors, {"config": {"model": {"cell": "gru"}}, "labels": ["O", "B-X"]})
+    return tensors
+
+
+def test_round_trip_keeps_tensors_and_metadata(tmp_path: Path) -> None:
+    tensors = _save(tmp_path / "m.tagger")
+    loaded, meta = load_model_file(tmp_path / "m.tagger")
+    assert meta["labels"] == ["O", "B-X"] and meta["config"]["model"]["cell"] == "gru"
+    for name, tensor in tensors.items():
+        assert torch.equal(loaded[name], tensor)
+
+
+def test_file_is_plain_safetensors_without_pickle(tmp_path: Path) -> None:
+    _save(tmp_path / "m.tagger")
+    blob = (tmp_path / "m.tagger").read_bytes()
+    header = json.loads(blob[8 : 8 + int.from_bytes(blob[:8], "little")])
+    assert set(header) == {"__metadata__", "w", "ids"}
+    assert b"\x80\x04" not in blob[:2]  # a pickle stream starts with its protocol opcode
+
+
+@pytest.mark.parametrize("keep", [0, 5, 40, -3])
+def test_truncated_file_is_a_clear_error(tmp_path: Path, keep: int) -> None:
+    _save(tmp_path / "m.tagger")
+    blob = (tmp_path / "m.tagger").read_bytes()
+    (tmp_path / "m.tagger").write_bytes(blob[:keep])
+    with pytest.raises(ModelFileError, match="m.tagger"):
+        load_model_file(tmp_path / "m.tagger")
+
+
+def test_flipped_weight_byte_is_detected(tmp_path: Path) -> None:
+    _save(tmp_path / "m.tagger")
+    blob = bytearray((tmp_path / "m.tagger").read_bytes())
+    blob[-20] ^= 0x55
+    (tmp_path / "m.tagger").write_bytes(bytes(blob))
+    with pytest.raises(ModelFileError, match="corrupted"):
+        load_model_file(tmp_path / "m.tagger")
+
+
+def test_other_version_is_refused(tmp_path: Path) -> None:
+    _save(tmp_path / "m.tagger")
+    blob = (tmp_path / "m.tagger").read_bytes()
+    old = f'\\"version\\": {FORMAT_VERSION}'.encode()
+    assert old in blob
+    (tmp_path / "m.tagger").write_bytes(blob.replace(old, b'\\"version\\": 9'))
+    with pytest.raises(ModelFileError, match="version 9 is not supported"):
+        load_model_file(tmp_path / "m.tagger")
+
+
+def test_not_a_model_file(tmp_path: Path) -> None:
+    (tmp_path / "notes.txt").write_text("hello world, this is not a model")
+    with pytest.raises(ModelFileError, match="not a tagger model file|truncated"):
+        load_model_file(tmp_path / "notes.txt")
+    with pytest.raises(ModelFileError, match="not found"):
+        load_model_file(tmp_path / "absent.tagger")
