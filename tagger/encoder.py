@@ -1,0 +1,112 @@
+"""The recurrent encoder: residual stacks in each direction, their top outputs concatenated.
+
+          x (B,T,input) ── linear ──> h0 (B,T,hidden)
+                                       ├─ left-to-right stack ──┐
+                                       └─ right-to-left stack ──┴─ concat ─> (B,T,2*hidden)
+    in each stack:  h_l = h_{l-1} + RNN_l(dropout(h_{l-1}))   (no dropout below layer 1)
+
+The right-to-left stack reverses every sentence within its own length once at the bottom, runs
+all its layers left to right, and reverses back once at the top: residual sums and dropout act
+position by position, so they commute with the reversal.
+"""
+
+from __future__ import annotations
+
+import torch
+from torch import Tensor, nn
+
+from tagger.cells import (
+    CELL_KINDS,
+    make_cell,
+    padding_mask,
+    reverse_within_lengths,
+    run_cell,
+    run_cell_fused,
+)
+
+
+class ResidualStack(nn.Module):
+    """One direction: `layers` cells of width hidden -> hidden, each adding to its input."""
+
+    def __init__(
+        self, hidden_size: int, layers: int, cell: str, dropout: float = 0.0, fast: bool = True
+    ) -> None:
+        super().__init__()
+        if layers < 1:
+            raise ValueError(f"layers must be a positive integer, got {layers}")
+        if not 0.0 <= dropout < 1.0:
+            raise ValueError(f"dropout must lie in [0, 1), got {dropout}")
+        self.hidden_size = hidden_size
+        self.cells = nn.ModuleList(make_cell(cell, hidden_size, hidden_size) for _ in range(layers))
+        self.dropout = nn.Dropout(dropout)
+        # torch has no fused minimal gated cell: it always takes the generic loop.
+        self.fast = fast and self.cells[0].has_fused
+
+    def forward(self, x: Tensor, lengths: Tensor, reverse: bool = False) -> Tensor:
+        """(batch, time, hidden) -> (batch, time, hidden), zeros at padding."""
+        run = run_cell_fused if self.fast else run_cell
+        if reverse:
+            x = reverse_within_lengths(x, lengths)
+        h = x
+        for layer, cell in enumerate(self.cells):
+            below = h if layer == 0 else self.dropout(h)
+            h = h + run(cell, below, lengths)  # (batch, time, hidden)
+        h = h * padding_mask(lengths, h.shape[1]).unsqueeze(2).to(h.dtype)
+        if reverse:
+            h = reverse_within_lengths(h, lengths)
+        return h
+
+
+class BiResidualEncoder(nn.Module):
+    """Input projection, then a residual stack per direction; outputs concatenated (left-to-right
+    first). With `bidirectional=False` only the left-to-right stack runs."""
+
+    def __init__(
+        self,
+        input_size: int,
+        hidden_size: int,
+        layers: int,
+        cell: str,
+        dropout: float = 0.0,
+        fast: bool = True,
+        bidirectional: bool = True,
+    ) -> None:
+        super().__init__()
+        if cell not in CELL_KINDS:
+            raise ValueError(f"cell must be one of {', '.join(CELL_KINDS)}; got {cell!r}")
+        if input_size < 1:
+            raise ValueError(f"input_size must be a positive integer, got {input_size}")
+        if hidden_size < 1:
+            raise ValueError(f"hidden_size must be a positive integer, got {hidden_size}")
+        self.input_size = input_size
+        self.hidden_size = hidden_size
+        self.layers = layers
+        self.cell = cell
+        self.bidirectional = bidirectional
+        self.output_size = (2 if bidirectional else 1) * hidden_size
+        # Projecting to the hidden width lets every layer, the first included, add to its input.
+        self.projection = nn.Linear(input_size, hidden_size)
+        self.left_to_right = ResidualStack(hidden_size, layers, cell, dropout, fast)
+        self.right_to_left = (
+            ResidualStack(hidden_size, layers, cell, dropout, fast) if bidirectional else None
+        )
+
+    def forward(self, x: Tensor, lengths: Tensor) -> Tensor:
+        """(batch, time, input), lengths (batch,) -> (batch, time, output_size); 0 at padding."""
+        if x.dim() != 3 or x.shape[2] != self.input_size:
+            raise ValueError(f"x must be (batch, time, {self.input_size}); got {tuple(x.shape)}")
+        h0 = self.projection(x)  # (batch, time, hidden)
+        forward = self.left_to_right(h0, lengths)
+        if self.right_to_left is None:
+            return forward
+        backward = self.right_to_left(h0, lengths, reverse=True)
+        return torch.cat([forward, backward], dim=2)  # (batch, time, 2*hidden)
+
+    def flops_per_token(self) -> int:
+        """Forward FLOPs (2 per multiply-add) per token of the projection and the recurrent layers:
+        2*G*H*(D_in + H) per layer per direction, with D_in = H above the projection."""
+        gates = self.left_to_right.cells[0].gates
+        h = self.hidden_size
+        directions = 2 if self.bidirectional else 1
+        recurrent = directions * self.layers * 2 * gates * h * (h + h)
+        return 2 * self.input_size * h + recurrent
