@@ -32,7 +32,7 @@ def _digest(tensors: dict[str, torch.Tensor]) -> str:
         tensor = tensors[name].detach().contiguous().cpu()
         digest.update(name.encode())
         digest.update(str(tuple(tensor.shape)).encode())
-        digest.update(tensor.view(torch.uint8).numpy().tobytes() if tensor.numel() else b"")
+        digest.update(tensor.reshape(-1).view(torch.uint8).numpy().tobytes() if tensor.numel() else b"")
     return digest.hexdigest()
 
 
