@@ -19,7 +19,9 @@ import torch
 
 from tagger.vocab import Vocabularies
 
-MAX_TOKEN_CHARS = 24  # longer tokens keep their first and last 12 characters: affixes carry the signal
+MAX_TOKEN_CHARS = (
+    24  # longer tokens keep their first and last 12 characters: affixes carry the signal
+)
 
 
 @dataclass

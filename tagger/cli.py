@@ -25,10 +25,16 @@ app = typer.Typer(
     help="Train, evaluate and run sequence taggers on annotated column files, on CPUs.",
 )
 
-TokenColumn = Annotated[int, typer.Option(help="Column holding the token (0-based; negative counts from the end).")]
-LabelColumn = Annotated[int, typer.Option(help="Column holding the label (0-based; -1 is the last).")]
+TokenColumn = Annotated[
+    int, typer.Option(help="Column holding the token (0-based; negative counts from the end).")
+]
+LabelColumn = Annotated[
+    int, typer.Option(help="Column holding the label (0-based; -1 is the last).")
+]
 Delimiter = Annotated[str, typer.Option(help="Column separator: auto, tab or space.")]
-AsJson = Annotated[bool, typer.Option("--json", help="Print machine-readable JSON instead of a table.")]
+AsJson = Annotated[
+    bool, typer.Option("--json", help="Print machine-readable JSON instead of a table.")
+]
 ExistingFile = Annotated[Path, typer.Argument(exists=True, dir_okay=False, readable=True)]
 
 
@@ -46,9 +52,13 @@ def _domain_errors() -> Iterator[None]:
         raise typer.Exit(1) from None
 
 
-def _format(delimiter: str, token_column: int, label_column: int, has_labels: bool = True) -> ColumnFormat:
+def _format(
+    delimiter: str, token_column: int, label_column: int, has_labels: bool = True
+) -> ColumnFormat:
     if delimiter not in ("auto", "tab", "space"):
-        raise typer.BadParameter(f"must be auto, tab or space, not {delimiter!r}", param_hint="--delimiter")
+        raise typer.BadParameter(
+            f"must be auto, tab or space, not {delimiter!r}", param_hint="--delimiter"
+        )
     return ColumnFormat(
         delimiter=None if delimiter == "auto" else delimiter,
         token_column=token_column,
@@ -63,7 +73,12 @@ def _print_json(data: Any) -> None:
 
 @app.command()
 def check(
-    files: Annotated[list[Path], typer.Argument(exists=True, dir_okay=False, help="Column files; the first is read as train.")],
+    files: Annotated[
+        list[Path],
+        typer.Argument(
+            exists=True, dir_okay=False, help="Column files; the first is read as train."
+        ),
+    ],
     token_column: TokenColumn = 0,
     label_column: LabelColumn = -1,
     delimiter: Delimiter = "auto",
@@ -81,8 +96,12 @@ def check(
 def convert(
     source: ExistingFile,
     target: Annotated[Path, typer.Argument(dir_okay=False, help="Output file ('-' for stdout).")],
-    to: Annotated[str, typer.Option("--to", help="Target scheme: IO, IOB1, IOB2, IOE1, IOE2, BIOES, BILOU.")],
-    source_scheme: Annotated[str | None, typer.Option("--from", help="Scheme of SOURCE (detected when omitted).")] = None,
+    to: Annotated[
+        str, typer.Option("--to", help="Target scheme: IO, IOB1, IOB2, IOE1, IOE2, BIOES, BILOU.")
+    ],
+    source_scheme: Annotated[
+        str | None, typer.Option("--from", help="Scheme of SOURCE (detected when omitted).")
+    ] = None,
     token_column: TokenColumn = 0,
     label_column: LabelColumn = -1,
     delimiter: Delimiter = "auto",
@@ -91,8 +110,12 @@ def convert(
     from tagger.reports import convert_file
 
     with _domain_errors():
-        summary = convert_file(source, target, to, _format(delimiter, token_column, label_column), source_scheme)
-    _say(f"converted {summary['sentences']} sentences from {summary['source_scheme']} to {summary['target_scheme']}")
+        summary = convert_file(
+            source, target, to, _format(delimiter, token_column, label_column), source_scheme
+        )
+    _say(
+        f"converted {summary['sentences']} sentences from {summary['source_scheme']} to {summary['target_scheme']}"
+    )
 
 
 @app.command()
@@ -101,7 +124,9 @@ def score(
     predicted: ExistingFile,
     token_column: TokenColumn = 0,
     label_column: LabelColumn = -1,
-    predicted_label_column: Annotated[int | None, typer.Option(help="Label column of PREDICTED if it differs.")] = None,
+    predicted_label_column: Annotated[
+        int | None, typer.Option(help="Label column of PREDICTED if it differs.")
+    ] = None,
     delimiter: Delimiter = "auto",
     as_json: AsJson = False,
 ) -> None:
@@ -110,7 +135,11 @@ def score(
     from tagger.metrics import format_report
 
     gold_fmt = _format(delimiter, token_column, label_column)
-    pred_fmt = _format(delimiter, token_column, label_column if predicted_label_column is None else predicted_label_column)
+    pred_fmt = _format(
+        delimiter,
+        token_column,
+        label_column if predicted_label_column is None else predicted_label_column,
+    )
     with _domain_errors():
         result = score_files(gold, predicted, gold_fmt, pred_fmt)
     _print_json(result) if as_json else print(format_report(result))
@@ -154,12 +183,39 @@ class _TrainingProgress:
 
 @app.command()
 def train(
-    config_path: Annotated[Path | None, typer.Option("--config", exists=True, dir_okay=False, help="TOML config file.")] = None,
-    train_file: Annotated[Path | None, typer.Option("--train", exists=True, dir_okay=False, help="Training column file (overrides data.train).")] = None,
-    dev_file: Annotated[Path | None, typer.Option("--dev", exists=True, dir_okay=False, help="Dev column file (overrides data.dev).")] = None,
-    out: Annotated[Path, typer.Option("--out", file_okay=False, help="Run folder for the model, checkpoint and history.")] = Path("runs/latest"),
-    overrides: Annotated[list[str] | None, typer.Option("--set", help="Override a config key, e.g. --set model.cell=gru (repeatable).")] = None,
-    resume: Annotated[bool, typer.Option("--resume", help="Continue from the run folder's last checkpoint.")] = False,
+    config_path: Annotated[
+        Path | None, typer.Option("--config", exists=True, dir_okay=False, help="TOML config file.")
+    ] = None,
+    train_file: Annotated[
+        Path | None,
+        typer.Option(
+            "--train",
+            exists=True,
+            dir_okay=False,
+            help="Training column file (overrides data.train).",
+        ),
+    ] = None,
+    dev_file: Annotated[
+        Path | None,
+        typer.Option(
+            "--dev", exists=True, dir_okay=False, help="Dev column file (overrides data.dev)."
+        ),
+    ] = None,
+    out: Annotated[
+        Path,
+        typer.Option(
+            "--out", file_okay=False, help="Run folder for the model, checkpoint and history."
+        ),
+    ] = Path("runs/latest"),
+    overrides: Annotated[
+        list[str] | None,
+        typer.Option(
+            "--set", help="Override a config key, e.g. --set model.cell=gru (repeatable)."
+        ),
+    ] = None,
+    resume: Annotated[
+        bool, typer.Option("--resume", help="Continue from the run folder's last checkpoint.")
+    ] = False,
 ) -> None:
     """Train a tagger; the best model by dev span F1 is written to OUT/model.tagger."""
     from tagger.config import apply_overrides, load_config
@@ -182,14 +238,21 @@ def train(
         _say(f"tagger: error: {result.stop_reason}")
         raise typer.Exit(1)
     _say(f"stopped: {result.stop_reason}")
-    _say(f"best dev F1 {100 * result.best_dev['micro']['f1']:.2f} at epoch {result.best_epoch}; model: {result.model_path}")
+    _say(
+        f"best dev F1 {100 * result.best_dev['micro']['f1']:.2f} at epoch {result.best_epoch}; model: {result.model_path}"
+    )
 
 
 @app.command()
 def evaluate(
     model: ExistingFile,
-    files: Annotated[list[Path], typer.Argument(exists=True, dir_okay=False, help="Gold column files.")],
-    predictions: Annotated[Path | None, typer.Option("--predictions", dir_okay=False, help="Write the predicted column file here.")] = None,
+    files: Annotated[
+        list[Path], typer.Argument(exists=True, dir_okay=False, help="Gold column files.")
+    ],
+    predictions: Annotated[
+        Path | None,
+        typer.Option("--predictions", dir_okay=False, help="Write the predicted column file here."),
+    ] = None,
     token_column: TokenColumn = 0,
     label_column: LabelColumn = -1,
     delimiter: Delimiter = "auto",
@@ -202,7 +265,9 @@ def evaluate(
 
     with _domain_errors():
         tagger = load_trained(model)
-        result = evaluate_files(tagger, files, _format(delimiter, token_column, label_column), predictions)
+        result = evaluate_files(
+            tagger, files, _format(delimiter, token_column, label_column), predictions
+        )
     if as_json:
         _print_json(result)
         return

@@ -34,7 +34,9 @@ class DataConfig:
     train: str = ""
     dev: str = ""
     dev_fraction: float = 0.1  # held out of train when no dev file is given
-    dev_holdout: str = "random"  # which sentences: a seeded random draw, or the last ones in the file
+    dev_holdout: str = (
+        "random"  # which sentences: a seeded random draw, or the last ones in the file
+    )
     token_column: int = 0
     label_column: int = -1
     delimiter: str = "auto"
@@ -53,7 +55,9 @@ class ModelConfig:
     char_kernel: int = 3
     dropout: float = 0.5
     output: str = "crf"
-    scheme: str = "BIOES"  # the scheme the network learns; predictions are written in the input's scheme
+    scheme: str = (
+        "BIOES"  # the scheme the network learns; predictions are written in the input's scheme
+    )
     lowercase: bool = False
     digits_to_zero: bool = True
     min_word_count: int = 1
@@ -99,9 +103,15 @@ _CHOICES: dict[tuple[str, str], tuple[str, ...]] = {
     ("data", "delimiter"): DELIMITERS,
     ("data", "dev_holdout"): HOLDOUTS,
 }
-_POSITIVE = {("model", "hidden_size"), ("model", "layers"), ("model", "word_dim"),
-             ("train", "epochs"), ("train", "batch_size"), ("model", "char_kernel"),
-             ("model", "min_word_count")}
+_POSITIVE = {
+    ("model", "hidden_size"),
+    ("model", "layers"),
+    ("model", "word_dim"),
+    ("train", "epochs"),
+    ("train", "batch_size"),
+    ("model", "char_kernel"),
+    ("model", "min_word_count"),
+}
 _FRACTIONS = {("model", "dropout"), ("train", "unknown_replace"), ("data", "dev_fraction")}
 
 
@@ -131,7 +141,10 @@ def _validate(section: str, name: str, value: Any) -> None:
         raise ConfigError(f"{key} must be at least 1; got {value!r}")
     if (section, name) in _FRACTIONS and not 0.0 <= value < 1.0:
         raise ConfigError(f"{key} must be in [0, 1); got {value!r}")
-    if name in ("learning_rate", "clip_norm", "lr_decay", "weight_decay", "max_minutes") and value < 0:
+    if (
+        name in ("learning_rate", "clip_norm", "lr_decay", "weight_decay", "max_minutes")
+        and value < 0
+    ):
         raise ConfigError(f"{key} must not be negative; got {value!r}")
     if (section, name) == ("model", "scheme"):
         from tagger.schemes import normalise_scheme_name
@@ -189,7 +202,9 @@ def parse_override(text: str) -> tuple[str, str, Any]:
     key, sep, value_text = text.partition("=")
     section, dot, name = key.strip().partition(".")
     if not sep or not dot:
-        raise ConfigError(f"override {text!r} must look like section.key=value, e.g. model.cell=gru")
+        raise ConfigError(
+            f"override {text!r} must look like section.key=value, e.g. model.cell=gru"
+        )
     try:
         value = tomllib.loads(f"v = {value_text.strip()}")["v"]
     except tomllib.TOMLDecodeError:

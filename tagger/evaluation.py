@@ -17,8 +17,9 @@ from tagger.metrics import SpanCounts, count_tag_sequences, summarise
 from tagger.predict import TrainedTagger
 
 
-def _paired(gold_path: str | Path, pred_path: str | Path, gold_fmt: ColumnFormat,
-            pred_fmt: ColumnFormat) -> Iterator[tuple[Sentence, Sentence]]:
+def _paired(
+    gold_path: str | Path, pred_path: str | Path, gold_fmt: ColumnFormat, pred_fmt: ColumnFormat
+) -> Iterator[tuple[Sentence, Sentence]]:
     """Sentences of both files side by side; the tokens must agree exactly."""
     gold_iter = read_columns(gold_path, gold_fmt)
     pred_iter = read_columns(pred_path, pred_fmt)
@@ -31,9 +32,8 @@ def _paired(gold_path: str | Path, pred_path: str | Path, gold_fmt: ColumnFormat
                 str(shorter),
             )
         if gold.tokens != pred.tokens:
-            for i, (g, p) in enumerate(zip_longest(gold.tokens, pred.tokens)):
-                if g != p:
-                    break
+            pairs = enumerate(zip_longest(gold.tokens, pred.tokens))
+            i, (g, p) = next((k, pair) for k, pair in pairs if pair[0] != pair[1])
             gold_line = gold.line_numbers[min(i, len(gold.tokens) - 1)]
             pred_line = pred.line_numbers[min(i, len(pred.tokens) - 1)]
             raise DataError(
@@ -44,12 +44,21 @@ def _paired(gold_path: str | Path, pred_path: str | Path, gold_fmt: ColumnFormat
         yield gold, pred
 
 
-def score_files(gold_path: str | Path, pred_path: str | Path, gold_fmt: ColumnFormat = ColumnFormat(),
-                pred_fmt: ColumnFormat | None = None) -> dict[str, Any]:
+def score_files(
+    gold_path: str | Path,
+    pred_path: str | Path,
+    gold_fmt: ColumnFormat = ColumnFormat(),
+    pred_fmt: ColumnFormat | None = None,
+) -> dict[str, Any]:
     """Span scores of a predicted column file against a gold one (streams both files)."""
     pairs = list(_paired(gold_path, pred_path, gold_fmt, pred_fmt or gold_fmt))
     counts = count_tag_sequences([g.labels for g, _ in pairs], [p.labels for _, p in pairs])
-    return {"gold": str(gold_path), "predicted": str(pred_path), "sentences": len(pairs), **summarise(counts)}
+    return {
+        "gold": str(gold_path),
+        "predicted": str(pred_path),
+        "sentences": len(pairs),
+        **summarise(counts),
+    }
 
 
 def evaluate_files(
@@ -72,9 +81,15 @@ def evaluate_files(
         total = total + counts
         per_file.append({"file": str(path), "sentences": len(sentences), **summarise(counts)})
         if predictions is not None:
-            predicted_sentences.extend(s.with_labels(p) for s, p in zip(sentences, predicted, strict=True))
+            predicted_sentences.extend(
+                s.with_labels(p) for s, p in zip(sentences, predicted, strict=True)
+            )
     if predictions is not None:
         write_columns(predictions, predicted_sentences)
     overall = summarise(total) if len(per_file) > 1 else per_file[0]
-    return {"files": per_file, "overall": overall, "model_scheme": tagger.scheme,
-            "input_scheme": tagger.input_scheme}
+    return {
+        "files": per_file,
+        "overall": overall,
+        "model_scheme": tagger.scheme,
+        "input_scheme": tagger.input_scheme,
+    }

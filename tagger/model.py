@@ -1,8 +1,8 @@
 """The tagger network: word and character features -> residual bidirectional encoder -> output layer.
 
-    words (B,T) ──embed──┐
-                         ├─ concat ─ dropout ─ BiResidualEncoder ─ dropout ─ linear ─> emissions (B,T,L)
-    chars (B,T,C) ─CNN/RNN┘                                                  └─ CRF or softmax
+words (B,T) ──embed──┐
+                     ├─ concat ─ dropout ─ BiResidualEncoder ─ dropout ─ linear ─> emissions (B,T,L)
+chars (B,T,C) ─CNN/RNN┘                                                  └─ CRF or softmax
 """
 
 from __future__ import annotations
@@ -32,7 +32,9 @@ class CharCNN(nn.Module):
         x = self.embed(flat).transpose(1, 2)  # (B*T, dim, C)
         h = self.conv(x)[:, :, :width]  # (B*T, features, C)
         h = h.masked_fill((flat == 0)[:, None, :], -1e4)
-        pooled = h.max(dim=2).values.clamp_min(-1.0)  # padding tokens pool to -1e4: keep them finite
+        pooled = h.max(dim=2).values.clamp_min(
+            -1.0
+        )  # padding tokens pool to -1e4: keep them finite
         return pooled.reshape(batch, time, -1)  # (B, T, features)
 
 
@@ -57,7 +59,9 @@ class CharRNN(nn.Module):
             last = (lengths[real] - 1)[:, None, None].expand(-1, 1, self.features)
             forward_end = h[:, :, : self.features].gather(1, last).squeeze(1)
             backward_end = h[:, 0, self.features :]
-            out = out.index_put((real.nonzero().squeeze(1),), torch.cat([forward_end, backward_end], 1))
+            out = out.index_put(
+                (real.nonzero().squeeze(1),), torch.cat([forward_end, backward_end], 1)
+            )
         return out.reshape(batch, time, -1)
 
 
@@ -96,7 +100,9 @@ class TaggerNet(nn.Module):
         self.output = nn.Linear(self.encoder.output_size, n_labels)
         self.crf = CRF(n_labels, *transitions) if config.output == "crf" else None
 
-    def emissions(self, words: torch.Tensor, chars: torch.Tensor, lengths: torch.Tensor) -> torch.Tensor:
+    def emissions(
+        self, words: torch.Tensor, chars: torch.Tensor, lengths: torch.Tensor
+    ) -> torch.Tensor:
         features = self.words(words)  # (B, T, word_dim)
         if self.chars is not None:
             features = torch.cat([features, self.chars(chars)], dim=-1)

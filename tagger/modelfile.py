@@ -32,14 +32,23 @@ def _digest(tensors: dict[str, torch.Tensor]) -> str:
         tensor = tensors[name].detach().contiguous().cpu()
         digest.update(name.encode())
         digest.update(str(tuple(tensor.shape)).encode())
-        digest.update(tensor.reshape(-1).view(torch.uint8).numpy().tobytes() if tensor.numel() else b"")
+        digest.update(
+            tensor.reshape(-1).view(torch.uint8).numpy().tobytes() if tensor.numel() else b""
+        )
     return digest.hexdigest()
 
 
-def save_model_file(path: str | Path, tensors: dict[str, torch.Tensor], metadata: dict[str, Any]) -> None:
+def save_model_file(
+    path: str | Path, tensors: dict[str, torch.Tensor], metadata: dict[str, Any]
+) -> None:
     """Write weights and metadata atomically (a temporary file renamed into place)."""
     tensors = {name: t.detach().contiguous().cpu() for name, t in tensors.items()}
-    header = {"format": FORMAT_NAME, "version": FORMAT_VERSION, "digest": _digest(tensors), **metadata}
+    header = {
+        "format": FORMAT_NAME,
+        "version": FORMAT_VERSION,
+        "digest": _digest(tensors),
+        **metadata,
+    }
     blob = save_safetensors(tensors, metadata={_META_KEY: json.dumps(header, ensure_ascii=False)})
     path = Path(path)
     path.parent.mkdir(parents=True, exist_ok=True)

@@ -86,7 +86,9 @@ def build_net(config: Config, vocabs: Vocabularies) -> TaggerNet:
     transitions = None
     if config.model.output == "crf":
         transitions = allowed_transitions(vocabs.labels.itos, config.model.scheme)
-    return TaggerNet(config.model, len(vocabs.words), len(vocabs.chars), len(vocabs.labels), transitions)
+    return TaggerNet(
+        config.model, len(vocabs.words), len(vocabs.chars), len(vocabs.labels), transitions
+    )
 
 
 def load_trained(path: str | Path) -> TrainedTagger:

@@ -73,7 +73,9 @@ class PreparedData:
 def column_format(config: Config) -> ColumnFormat:
     data = config.data
     delimiter = None if data.delimiter == "auto" else data.delimiter
-    return ColumnFormat(delimiter=delimiter, token_column=data.token_column, label_column=data.label_column)
+    return ColumnFormat(
+        delimiter=delimiter, token_column=data.token_column, label_column=data.label_column
+    )
 
 
 def _fingerprint(paths: Sequence[str]) -> str:
@@ -105,7 +107,11 @@ def prepare_data(config: Config) -> PreparedData:
         held = set(order[-size:])
         dev = [s for i, s in enumerate(train) if i in held]
         train = [s for i, s in enumerate(train) if i not in held]
-        how = "the last" if data.dev_holdout == "last" else f"a random draw (seed {config.train.seed}) of"
+        how = (
+            "the last"
+            if data.dev_holdout == "last"
+            else f"a random draw (seed {config.train.seed}) of"
+        )
         notes.append(
             f"no dev file: held out {how} {len(dev)} of {len(dev) + len(train)} training sentences "
             f"(data.dev_fraction={data.dev_fraction}) to choose the best epoch"
@@ -117,10 +123,14 @@ def prepare_data(config: Config) -> PreparedData:
     train_spans = [tags_to_spans(s.labels, input_scheme) for s in train]
     dev_spans = [tags_to_spans(s.labels, input_scheme) for s in dev]
     paths = [data.train] + ([data.dev] if data.dev else [])
-    return PreparedData(train, dev, input_scheme, train_spans, dev_spans, _fingerprint(paths), notes)
+    return PreparedData(
+        train, dev, input_scheme, train_spans, dev_spans, _fingerprint(paths), notes
+    )
 
 
-def _initialise_embeddings(net: torch.nn.Module, vocabs: Vocabularies, words: list[str], matrix: Any) -> int:
+def _initialise_embeddings(
+    net: torch.nn.Module, vocabs: Vocabularies, words: list[str], matrix: Any
+) -> int:
     """Copy pretrained vectors into the word embedding; returns how many words found one."""
     weight = net.words.weight
     if matrix.shape[1] != weight.shape[1]:
@@ -147,7 +157,9 @@ def _epoch_seed(seed: int, epoch: int) -> int:
 def _optimizer(config: Config, net: torch.nn.Module) -> torch.optim.Optimizer:
     train = config.train
     if train.optimizer == "adam":
-        return torch.optim.Adam(net.parameters(), lr=train.learning_rate, weight_decay=train.weight_decay)
+        return torch.optim.Adam(
+            net.parameters(), lr=train.learning_rate, weight_decay=train.weight_decay
+        )
     return torch.optim.SGD(
         net.parameters(), lr=train.learning_rate, momentum=0.9, weight_decay=train.weight_decay
     )
@@ -177,7 +189,9 @@ def _optimizer_from_file(tensors: dict[str, torch.Tensor], saved: dict) -> dict:
     return {"state": state, "param_groups": saved["param_groups"]}
 
 
-def evaluate_spans(tagger: TrainedTagger, sentences: Sequence[Sentence], gold: Sequence[list[Span]]) -> dict:
+def evaluate_spans(
+    tagger: TrainedTagger, sentences: Sequence[Sentence], gold: Sequence[list[Span]]
+) -> dict:
     predicted = tagger.predict_spans([s.tokens for s in sentences])
     counts = count_spans(gold, predicted)
     return summarise(counts)
@@ -224,7 +238,11 @@ def train(
     internal = config.model.scheme
     types = sorted({span[0] for spans in data.train_spans for span in spans})
     labels = labels_for_types(types, internal)
-    vectors = read_word_vectors(config.model.pretrained_vectors) if config.model.pretrained_vectors else None
+    vectors = (
+        read_word_vectors(config.model.pretrained_vectors)
+        if config.model.pretrained_vectors
+        else None
+    )
     vocabs, word_counts = build_vocabularies(
         (s.tokens for s in data.train),
         labels,
@@ -246,12 +264,21 @@ def train(
     net = build_net(config, vocabs)
     if vectors:
         found = _initialise_embeddings(net, vocabs, *vectors)
-        report({"event": "note", "message": f"pretrained vectors for {found} of {len(vocabs.words) - 2} words"})
+        report(
+            {
+                "event": "note",
+                "message": f"pretrained vectors for {found} of {len(vocabs.words) - 2} words",
+            }
+        )
     optimizer = _optimizer(config, net)
     tagger = TrainedTagger(net, vocabs, config, data.input_scheme)
     meta_common = {
-        "training_data": {"fingerprint": data.fingerprint, "train": config.data.train,
-                          "dev": config.data.dev, "sentences": len(data.train)},
+        "training_data": {
+            "fingerprint": data.fingerprint,
+            "train": config.data.train,
+            "dev": config.data.dev,
+            "sentences": len(data.train),
+        },
         "types": types,
     }
 
@@ -269,16 +296,25 @@ def train(
             )
         net.load_state_dict({k[4:]: v for k, v in tensors.items() if k.startswith("net.")})
         optimizer.load_state_dict(
-            _optimizer_from_file({k: v for k, v in tensors.items() if k.startswith("optimizer.")},
-                                 meta["optimizer"])
+            _optimizer_from_file(
+                {k: v for k, v in tensors.items() if k.startswith("optimizer.")}, meta["optimizer"]
+            )
         )
         state = meta["state"]
         history, best_f1, best_epoch = state["history"], state["best_f1"], state["best_epoch"]
-        best_dev, bad_epochs, learning_rate = state["best_dev"], state["bad_epochs"], state["learning_rate"]
+        best_dev, bad_epochs, learning_rate = (
+            state["best_dev"],
+            state["bad_epochs"],
+            state["learning_rate"],
+        )
         start_epoch = state["epoch"] + 1
-        report({"event": "note", "message": f"resuming after epoch {state['epoch']} from {checkpoint}"})
+        report(
+            {"event": "note", "message": f"resuming after epoch {state['epoch']} from {checkpoint}"}
+        )
     elif resume:
-        report({"event": "note", "message": f"no checkpoint in {run_dir}: starting from the beginning"})
+        report(
+            {"event": "note", "message": f"no checkpoint in {run_dir}: starting from the beginning"}
+        )
     with atomic_output(run_dir / "config.toml") as out:
         out.write(config_to_toml(config))
 
@@ -307,7 +343,11 @@ def train(
             loss = net.loss(emissions, batch.labels, batch.mask)
             if not math.isfinite(loss.item()):
                 diverged = True
-                kept = f"{run_dir / MODEL_NAME} keeps epoch {best_epoch}" if best_epoch else "no model was saved"
+                kept = (
+                    f"{run_dir / MODEL_NAME} keeps epoch {best_epoch}"
+                    if best_epoch
+                    else "no model was saved"
+                )
                 stop_reason = (
                     f"the training loss became {loss.item()} at epoch {epoch}, batch {number}; "
                     f"{kept}. Try a lower train.learning_rate or train.clip_norm"
@@ -321,12 +361,18 @@ def train(
             total_loss += loss.item()
             tokens_seen += batch.tokens
             elapsed = time.monotonic() - epoch_started
-            report({
-                "event": "batch", "epoch": epoch, "epochs": config.train.epochs, "batch": number,
-                "batches": len(batches), "loss": total_loss / max(tokens_seen, 1),
-                "tokens_per_second": tokens_seen / max(elapsed, 1e-9),
-                "epoch_seconds_left": elapsed / number * (len(batches) - number),
-            })
+            report(
+                {
+                    "event": "batch",
+                    "epoch": epoch,
+                    "epochs": config.train.epochs,
+                    "batch": number,
+                    "batches": len(batches),
+                    "loss": total_loss / max(tokens_seen, 1),
+                    "tokens_per_second": tokens_seen / max(elapsed, 1e-9),
+                    "epoch_seconds_left": elapsed / number * (len(batches) - number),
+                }
+            )
         if diverged:
             break
         train_seconds = time.monotonic() - epoch_started
@@ -350,24 +396,37 @@ def train(
             "best": improved,
             "stop": "",
         }
-        if config.train.lr_schedule == "exponential":
-            learning_rate *= config.train.lr_decay
-        elif config.train.lr_schedule == "plateau" and not improved:
+        if config.train.lr_schedule == "exponential" or config.train.lr_schedule == "plateau" and not improved:
             learning_rate *= config.train.lr_decay
         if bad_epochs >= config.train.patience:
-            row["stop"] = f"no better dev F1 for {bad_epochs} epochs (train.patience={config.train.patience})"
+            row["stop"] = (
+                f"no better dev F1 for {bad_epochs} epochs (train.patience={config.train.patience})"
+            )
         elif budget and time.monotonic() - started >= budget:
             row["stop"] = f"time budget of train.max_minutes={config.train.max_minutes} used"
         history.append(row)
         _write_history(run_dir, history)
         net_tensors = {f"net.{k}": v for k, v in net.state_dict().items()}
         optimizer_tensors, optimizer_meta = _optimizer_to_file(optimizer)
-        save_model_file(checkpoint, {**net_tensors, **optimizer_tensors}, {
-            "kind": "checkpoint", "config": config.to_dict(), "fingerprint": data.fingerprint,
-            "optimizer": optimizer_meta,
-            "state": {"epoch": epoch, "history": history, "best_f1": best_f1, "best_epoch": best_epoch,
-                      "best_dev": best_dev, "bad_epochs": bad_epochs, "learning_rate": learning_rate},
-        })
+        save_model_file(
+            checkpoint,
+            {**net_tensors, **optimizer_tensors},
+            {
+                "kind": "checkpoint",
+                "config": config.to_dict(),
+                "fingerprint": data.fingerprint,
+                "optimizer": optimizer_meta,
+                "state": {
+                    "epoch": epoch,
+                    "history": history,
+                    "best_f1": best_f1,
+                    "best_epoch": best_epoch,
+                    "best_dev": best_dev,
+                    "bad_epochs": bad_epochs,
+                    "learning_rate": learning_rate,
+                },
+            },
+        )
         report({"event": "epoch", **row, "best_dev_f1": best_f1, "best_epoch": best_epoch})
         if row["stop"]:
             stop_reason = row["stop"]
@@ -375,8 +434,16 @@ def train(
 
     result = TrainResult(history, best_epoch, best_dev, stop_reason, diverged, run_dir, data.notes)
     with atomic_output(run_dir / "metrics.json") as out:
-        json.dump({
-            "best_epoch": best_epoch, "dev": best_dev, "stop_reason": stop_reason,
-            "diverged": diverged, "input_scheme": data.input_scheme, "notes": data.notes,
-        }, out, indent=2)
+        json.dump(
+            {
+                "best_epoch": best_epoch,
+                "dev": best_dev,
+                "stop_reason": stop_reason,
+                "diverged": diverged,
+                "input_scheme": data.input_scheme,
+                "notes": data.notes,
+            },
+            out,
+            indent=2,
+        )
     return result

@@ -27,12 +27,16 @@ def read_word_vectors(path: str | Path) -> tuple[list[str], np.ndarray]:
                 continue
             if len(parts) < 2:
                 if line.strip():
-                    raise DataError(f"expected a word and its numbers, found {line[:60]!r}", str(path), number)
+                    raise DataError(
+                        f"expected a word and its numbers, found {line[:60]!r}", str(path), number
+                    )
                 continue
             dim = dim or len(parts) - 1
             if len(parts) - 1 != dim:
                 raise DataError(
-                    f"expected {dim} numbers after the word, found {len(parts) - 1}", str(path), number
+                    f"expected {dim} numbers after the word, found {len(parts) - 1}",
+                    str(path),
+                    number,
                 )
             try:
                 vector = np.asarray(parts[1:], dtype=np.float32)

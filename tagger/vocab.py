@@ -106,8 +106,11 @@ def build_vocabularies(
         for token in tokens:
             word_counts[normalise_word(token, lowercase, digits_to_zero)] += 1
             char_counts.update(token)
-    words = [w for w, c in sorted(word_counts.items(), key=lambda kv: (-kv[1], kv[0]))
-             if c >= min_word_count]
+    words = [
+        w
+        for w, c in sorted(word_counts.items(), key=lambda kv: (-kv[1], kv[0]))
+        if c >= min_word_count
+    ]
     words.extend(sorted(set(extra_words) - set(words)))
     chars = [ch for ch, _ in sorted(char_counts.items(), key=lambda kv: (-kv[1], kv[0]))]
     vocabs = Vocabularies(

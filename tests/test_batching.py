@@ -10,8 +10,10 @@ from tagger.vocab import Vocab, Vocabularies, build_vocabularies, normalise_word
 
 def _vocabs() -> Vocabularies:
     vocabs, counts = build_vocabularies(
-        [["Pitch", "bearing", "T-14"], ["bearing", "at", "7.2"]], ["O", "B-X", "I-X"],
-        lowercase=True, digits_to_zero=True,
+        [["Pitch", "bearing", "T-14"], ["bearing", "at", "7.2"]],
+        ["O", "B-X", "I-X"],
+        lowercase=True,
+        digits_to_zero=True,
     )
     assert counts["bearing"] == 2 and counts["0.0"] == 1
     return vocabs
@@ -49,7 +51,9 @@ def test_long_tokens_keep_their_first_and_last_characters() -> None:
 
 def test_collate_pads_right_and_masks() -> None:
     vocabs = _vocabs()
-    sentences = [encode_sentence(t, vocabs, ["O"] * len(t)) for t in (["a"], ["Pitch", "bearing", "at"])]
+    sentences = [
+        encode_sentence(t, vocabs, ["O"] * len(t)) for t in (["a"], ["Pitch", "bearing", "at"])
+    ]
     batch = collate(sentences, [1, 0])
     assert batch.lengths.tolist() == [3, 1] and batch.indices == [1, 0]
     assert batch.mask.tolist() == [[True, True, True], [True, False, False]]

@@ -11,7 +11,10 @@ from tagger.modelfile import FORMAT_VERSION, load_model_file, save_model_file
 
 
 def _save(path: Path) -> dict[str, torch.Tensor]:
-    tensors = {"w": torch.randn(4, 3, generator=torch.Generator().manual_seed(0)), "ids": torch.arange(7)}
+    tensors = {
+        "w": torch.randn(4, 3, generator=torch.Generator().manual_seed(0)),
+        "ids": torch.arange(7),
+    }
     save_model_file(path, tensors, {"config": {"model": {"cell": "gru"}}, "labels": ["O", "B-X"]})
     return tensors
 

@@ -15,8 +15,16 @@ from tagger.predict import load_trained
 from tagger.train import train
 
 TINY = [
-    [("Crew", "O"), ("B", "O"), ("swapped", "O"), ("the", "O"), ("pitch", "B-COMP"), ("bearing", "I-COMP"),
-     ("on", "O"), ("T-14", "B-ASSET")],
+    [
+        ("Crew", "O"),
+        ("B", "O"),
+        ("swapped", "O"),
+        ("the", "O"),
+        ("pitch", "B-COMP"),
+        ("bearing", "I-COMP"),
+        ("on", "O"),
+        ("T-14", "B-ASSET"),
+    ],
     [("Oil", "B-DEF"), ("leak", "I-DEF"), ("at", "O"), ("T-3", "B-ASSET")],
     [("vibration", "O"), ("hit", "O"), ("7.2", "B-READ"), ("mm/s", "I-READ")],
     [("replaced", "O"), ("yaw", "B-COMP"), ("drive", "I-COMP"), ("motor", "I-COMP")],
@@ -26,17 +34,32 @@ TINY = [
 
 
 def write_columns_file(path: Path, sentences: list[list[tuple[str, str]]]) -> Path:
-    path.write_text("".join("".join(f"{t}\t{l}\n" for t, l in s) + "\n" for s in sentences), encoding="utf-8")
+    path.write_text(
+        "".join("".join(f"{token}\t{label}\n" for token, label in s) + "\n" for s in sentences), encoding="utf-8"
+    )
     return path
 
 
 def small_config(train_path: Path, dev_path: Path | None, **sections: dict) -> Config:
     raw = {
         "data": {"train": str(train_path), "dev": str(dev_path) if dev_path else ""},
-        "model": {"hidden_size": 24, "layers": 1, "word_dim": 16, "char_dim": 8, "char_features": 12,
-                  "dropout": 0.0},
-        "train": {"epochs": 40, "batch_size": 4, "learning_rate": 0.02, "patience": 100, "threads": 1,
-                  "unknown_replace": 0.0, "lr_schedule": "constant"},
+        "model": {
+            "hidden_size": 24,
+            "layers": 1,
+            "word_dim": 16,
+            "char_dim": 8,
+            "char_features": 12,
+            "dropout": 0.0,
+        },
+        "train": {
+            "epochs": 40,
+            "batch_size": 4,
+            "learning_rate": 0.02,
+            "patience": 100,
+            "threads": 1,
+            "unknown_replace": 0.0,
+            "lr_schedule": "constant",
+        },
     }
     for name, values in sections.items():
         raw[name] = {**raw[name], **values}
@@ -67,8 +90,10 @@ def _later_token_task(seed: int, sentences: int) -> list[list[tuple[str, str]]]:
     data = []
     for _ in range(sentences):
         tokens = [rng.choice("abxy") for _ in range(rng.randint(3, 9))]
-        labels = ["B-T" if t == "a" and i + 1 < len(tokens) and tokens[i + 1] == "x" else "O"
-                  for i, t in enumerate(tokens)]
+        labels = [
+            "B-T" if t == "a" and i + 1 < len(tokens) and tokens[i + 1] == "x" else "O"
+            for i, t in enumerate(tokens)
+        ]
         data.append(list(zip(tokens, labels, strict=True)))
     return data
 
@@ -78,7 +103,8 @@ def test_a_label_that_depends_on_a_later_token(tmp_path: Path, bidirectional: bo
     train_path = write_columns_file(tmp_path / "train.txt", _later_token_task(1, 300))
     dev_path = write_columns_file(tmp_path / "dev.txt", _later_token_task(2, 100))
     config = small_config(
-        train_path, dev_path,
+        train_path,
+        dev_path,
         model={"bidirectional": bidirectional, "char_encoder": "none", "output": "softmax"},
         train={"epochs": 12, "batch_size": 16, "learning_rate": 0.01},
     )
@@ -91,13 +117,19 @@ def test_a_label_that_depends_on_a_later_token(tmp_path: Path, bidirectional: bo
 
 def test_same_config_and_data_give_the_same_run(tiny_files: Path, tmp_path: Path) -> None:
     data = tiny_files / "train.txt"
-    config = small_config(data, data, model={"dropout": 0.3}, train={"epochs": 4, "unknown_replace": 0.3})
+    config = small_config(
+        data, data, model={"dropout": 0.3}, train={"epochs": 4, "unknown_replace": 0.3}
+    )
     first = train(config, tmp_path / "a").history
     second = train(config, tmp_path / "b").history
-    strip = [{k: v for k, v in row.items() if k not in ("train_tokens_per_second", "epoch_seconds")}
-             for row in first]
-    assert strip == [{k: v for k, v in row.items() if k not in ("train_tokens_per_second", "epoch_seconds")}
-                     for row in second]
+    strip = [
+        {k: v for k, v in row.items() if k not in ("train_tokens_per_second", "epoch_seconds")}
+        for row in first
+    ]
+    assert strip == [
+        {k: v for k, v in row.items() if k not in ("train_tokens_per_second", "epoch_seconds")}
+        for row in second
+    ]
 
 
 class _KillAt:
@@ -105,18 +137,27 @@ class _KillAt:
         self.epoch, self.batch = epoch, batch
 
     def __call__(self, event: dict) -> None:
-        if event["event"] == "batch" and (event["epoch"], event["batch"]) == (self.epoch, self.batch):
+        if event["event"] == "batch" and (event["epoch"], event["batch"]) == (
+            self.epoch,
+            self.batch,
+        ):
             raise KeyboardInterrupt
 
 
 def test_resume_after_a_kill_equals_an_uninterrupted_run(tiny_files: Path, tmp_path: Path) -> None:
     data = tiny_files / "train.txt"
-    config = small_config(data, data, model={"dropout": 0.3}, train={"epochs": 5, "unknown_replace": 0.3,
-                                                                      "lr_schedule": "exponential"})
+    config = small_config(
+        data,
+        data,
+        model={"dropout": 0.3},
+        train={"epochs": 5, "unknown_replace": 0.3, "lr_schedule": "exponential"},
+    )
     whole = train(config, tmp_path / "whole")
     with pytest.raises(KeyboardInterrupt):
         train(config, tmp_path / "cut", progress=_KillAt(epoch=3, batch=1))
-    assert [row["epoch"] for row in json.loads((tmp_path / "cut" / "history.json").read_text())] == [1, 2]
+    assert [
+        row["epoch"] for row in json.loads((tmp_path / "cut" / "history.json").read_text())
+    ] == [1, 2]
     resumed = train(config, tmp_path / "cut", resume=True)
     assert [r["train_loss_per_token"] for r in resumed.history] == [
         r["train_loss_per_token"] for r in whole.history
@@ -133,7 +174,11 @@ def test_resume_refuses_a_changed_config(tiny_files: Path, tmp_path: Path) -> No
     from tagger.errors import ModelFileError
 
     with pytest.raises(ModelFileError, match="another config"):
-        train(small_config(data, data, train={"epochs": 1, "learning_rate": 0.5}), tmp_path / "run", resume=True)
+        train(
+            small_config(data, data, train={"epochs": 1, "learning_rate": 0.5}),
+            tmp_path / "run",
+            resume=True,
+        )
 
 
 def test_non_finite_loss_stops_and_keeps_the_last_good_model(
@@ -146,7 +191,9 @@ def test_non_finite_loss_stops_and_keeps_the_last_good_model(
     def poisoned(self: TaggerNet, *args: torch.Tensor) -> torch.Tensor:
         calls["n"] += 1
         loss = real_loss(self, *args)
-        return loss * float("nan") if calls["n"] > 4 else loss  # 2 batches per epoch: breaks in epoch 3
+        return (
+            loss * float("nan") if calls["n"] > 4 else loss
+        )  # 2 batches per epoch: breaks in epoch 3
 
     monkeypatch.setattr(TaggerNet, "loss", poisoned)
     result = train(small_config(data, data, train={"epochs": 10}), tmp_path / "run")
@@ -158,15 +205,21 @@ def test_non_finite_loss_stops_and_keeps_the_last_good_model(
 
 def test_without_a_dev_file_a_seeded_part_of_train_is_held_out(tmp_path: Path) -> None:
     data = write_columns_file(tmp_path / "train.txt", TINY * 5)
-    result = train(small_config(data, None, data={"dev_fraction": 0.2}, train={"epochs": 1}), tmp_path / "run")
+    result = train(
+        small_config(data, None, data={"dev_fraction": 0.2}, train={"epochs": 1}), tmp_path / "run"
+    )
     assert any("held out" in note and "6 of 30" in note for note in result.notes)
     meta = json.loads((tmp_path / "run" / "metrics.json").read_text())
     assert meta["notes"] == result.notes
 
 
 def test_types_seen_only_in_dev_are_scored_not_a_crash(tiny_files: Path, tmp_path: Path) -> None:
-    dev = write_columns_file(tmp_path / "dev.txt", TINY + [[("new", "B-UNSEEN"), ("thing", "I-UNSEEN")]])
-    result = train(small_config(tiny_files / "train.txt", dev, train={"epochs": 2}), tmp_path / "run")
+    dev = write_columns_file(
+        tmp_path / "dev.txt", TINY + [[("new", "B-UNSEEN"), ("thing", "I-UNSEEN")]]
+    )
+    result = train(
+        small_config(tiny_files / "train.txt", dev, train={"epochs": 2}), tmp_path / "run"
+    )
     assert result.best_dev["per_type"]["UNSEEN"]["gold"] == 1
     assert result.best_dev["per_type"]["UNSEEN"]["correct"] == 0
 
@@ -175,22 +228,36 @@ def test_run_folder_holds_config_history_and_metrics(tiny_files: Path, tmp_path:
     data = tiny_files / "train.txt"
     train(small_config(data, data, train={"epochs": 2}), tmp_path / "run")
     names = {p.name for p in (tmp_path / "run").iterdir()}
-    assert {"config.toml", "history.json", "history.csv", "metrics.json", "model.tagger",
-            "checkpoint.tagger"} <= names
+    assert {
+        "config.toml",
+        "history.json",
+        "history.csv",
+        "metrics.json",
+        "model.tagger",
+        "checkpoint.tagger",
+    } <= names
     from tagger.config import load_config
 
-    assert load_config(tmp_path / "run" / "config.toml") == small_config(data, data, train={"epochs": 2})
+    assert load_config(tmp_path / "run" / "config.toml") == small_config(
+        data, data, train={"epochs": 2}
+    )
     assert (tmp_path / "run" / "history.csv").read_text().count("\n") == 3
 
 
 @pytest.mark.parametrize("header", [True, False], ids=["word2vec", "glove"])
-def test_pretrained_vectors_initialise_the_embedding(tiny_files: Path, tmp_path: Path, header: bool) -> None:
+def test_pretrained_vectors_initialise_the_embedding(
+    tiny_files: Path, tmp_path: Path, header: bool
+) -> None:
     lines = ["bearing " + " ".join(["0.5"] * 16), "leak " + " ".join(["-0.25"] * 16)]
     text = ("2 16\n" if header else "") + "\n".join(lines) + "\n"
     (tmp_path / "vectors.txt").write_text(text)
     data = tiny_files / "train.txt"
-    config = small_config(data, data, model={"pretrained_vectors": str(tmp_path / "vectors.txt")},
-                          train={"epochs": 1, "learning_rate": 0.0})
+    config = small_config(
+        data,
+        data,
+        model={"pretrained_vectors": str(tmp_path / "vectors.txt")},
+        train={"epochs": 1, "learning_rate": 0.0},
+    )
     result = train(config, tmp_path / "run")
     tagger = load_trained(result.model_path)
     weight = tagger.net.words.weight
