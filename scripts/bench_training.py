@@ -1,0 +1,305 @@
+"""Training benchmark: speed against the machine's ceiling, and accuracy on the demo and CoNLL-2000 data.
+
+    .venv/bin/python scripts/bench_training.py speed              # a minute or two
+    .venv/bin/python scripts/bench_training.py demo               # trains configs/default.toml (<= 5 min)
+    .venv/bin/python scripts/bench_training.py conll2000 [--seeds 1 2 3]   # ~15 min a seed
+
+Results are merged into benchmarks/training.json and rendered to benchmarks/training.md, each entry
+with the date, machine, torch version, threads, commit and command that produced it.
+Speed figures are ratios measured side by side in one run: absolute numbers on shared machines are noisy.
+"""
+
+from __future__ import annotations
+
+import argparse
+import datetime as dt
+import json
+import os
+import platform
+import random
+import subprocess
+import sys
+import time
+from pathlib import Path
+from statistics import median
+
+import torch
+
+ROOT = Path(__file__).resolve().parents[1]
+sys.path.insert(0, str(ROOT))
+
+from tagger.batching import bucketed_batches, collate, encode_sentence  # noqa: E402
+from tagger.config import apply_overrides, load_config  # noqa: E402
+from tagger.evaluation import evaluate_files  # noqa: E402
+from tagger.predict import build_net, load_trained  # noqa: E402
+from tagger.schemes import labels_for_types, spans_to_tags  # noqa: E402
+from tagger.train import prepare_data, train  # noqa: E402
+from tagger.vocab import build_vocabularies  # noqa: E402
+
+RESULTS = ROOT / "benchmarks" / "training.json"
+SUMMARY = ROOT / "benchmarks" / "training.md"
+CORPORA = ROOT.parent / "shared" / "corpora"
+
+
+def machine() -> dict:
+    cpu = "unknown"
+    try:
+        for line in Path("/proc/cpuinfo").read_text().splitlines():
+            if line.startswith("model name"):
+                cpu = line.split(":", 1)[1].strip()
+                break
+    except OSError:
+        pass
+    commit = subprocess.run(
+        ["git", "rev-parse", "--short", "HEAD"], capture_output=True, text=True, cwd=ROOT
+    ).stdout.strip()
+    return {
+        "date": dt.datetime.now(dt.UTC).strftime("%Y-%m-%d %H:%M UTC"),
+        "cores": os.cpu_count(),
+        "cpu": cpu,
+        "torch": torch.__version__,
+        "python": platform.python_version(),
+        "threads": torch.get_num_threads(),
+        "commit": commit,
+        "command": " ".join([Path(sys.argv[0]).name, *sys.argv[1:]]),
+    }
+
+
+def matmul_gflops(size: int = 1024, repeats: int = 10) -> float:
+    """The machine's matrix-product rate: the ceiling every efficiency figure is measured against."""
+    a, b = torch.randn(size, size), torch.randn(size, size)
+    for _ in range(3):
+        a @ b
+    times = []
+    for _ in range(repeats):
+        start = time.perf_counter()
+        a @ b
+        times.append(time.perf_counter() - start)
+    return 2 * size**3 / median(times) / 1e9
+
+
+def training_speed(overrides: list[str], seconds: float = 20.0) -> dict:
+    """Training tokens/s of full steps (forward, backward, clipping, Adam) on demo batches."""
+    config = apply_overrides(load_config(ROOT / "configs" / "default.toml"), overrides)
+    data = prepare_data(config)
+    types = sorted({s[0] for spans in data.train_spans for s in spans})
+    labels = labels_for_types(types, config.model.scheme)
+    vocabs, _ = build_vocabularies(
+        (s.tokens for s in data.train), labels, config.model.lowercase, config.model.digits_to_zero
+    )
+    encoded = [
+        encode_sentence(s.tokens, vocabs, spans_to_tags(sp, len(s.tokens), config.model.scheme))
+        for s, sp in zip(data.train, data.train_spans, strict=True)
+    ]
+    net = build_net(config, vocabs)
+    optimizer = torch.optim.Adam(net.parameters(), lr=1e-3)
+    batches = [
+        collate(encoded, b)
+        for b in bucketed_batches(
+            [len(e.words) for e in encoded], config.train.batch_size, random.Random(1)
+        )
+    ]
+    net.train()
+
+    def step(batch) -> None:
+        emissions = net.emissions(batch.words, batch.chars, batch.lengths)
+        loss = net.loss(emissions, batch.labels, batch.mask)
+        optimizer.zero_grad()
+        (loss / len(batch.indices)).backward()
+        torch.nn.utils.clip_grad_norm_(net.parameters(), 5.0)
+        optimizer.step()
+
+    for batch in batches[:5]:
+        step(batch)
+    tokens, start, i = 0, time.perf_counter(), 0
+    while time.perf_counter() - start < seconds:
+        batch = batches[i % len(batches)]
+        step(batch)
+        tokens += batch.tokens
+        i += 1
+    rate = tokens / (time.perf_counter() - start)
+    # Training costs about 3x the forward FLOPs (PERFORMANCE.md, common practice for dense layers).
+    flops = 3 * net.flops_per_token()
+    return {
+        "overrides": overrides,
+        "tokens_per_second": round(rate),
+        "train_flops_per_token": flops,
+        "achieved_gflops": round(rate * flops / 1e9, 2),
+    }
+
+
+def run_speed(args: argparse.Namespace) -> dict:
+    rows = []
+    for threads in args.threads:
+        torch.set_num_threads(threads)
+        ceiling_before = matmul_gflops()
+        variants = [[]] + [[f"model.cell={c!r}"] for c in ("rnn", "minimal", "gru")]
+        variants += [["model.fast_kernels=false"]]
+        for overrides in variants:
+            result = training_speed(overrides, args.seconds)
+            rows.append({"threads": threads, **result})
+        ceiling_after = matmul_gflops()
+        ceiling = (ceiling_before + ceiling_after) / 2
+        for row in rows:
+            if row["threads"] == threads:
+                row["ceiling_gflops"] = round(ceiling, 1)
+                row["ceiling_tokens_per_second"] = round(
+                    ceiling * 1e9 / row["train_flops_per_token"]
+                )
+                row["efficiency"] = round(
+                    row["tokens_per_second"] / row["ceiling_tokens_per_second"], 3
+                )
+    return {"kind": "speed", "machine": machine(), "rows": rows}
+
+
+def run_accuracy(
+    config_path: Path, overrides: list[str], test_file: Path, seeds: list[int], label: str
+) -> dict:
+    runs = []
+    for seed in seeds:
+        config = apply_overrides(load_config(config_path), [*overrides, f"train.seed={seed}"])
+        out = ROOT / "runs" / f"bench-{label}-seed{seed}"
+        start = time.perf_counter()
+        result = train(config, out, progress=_print_epoch)
+        seconds = time.perf_counter() - start
+        tagger = load_trained(result.model_path)
+        test = evaluate_files(tagger, [test_file])["overall"]
+        runs.append(
+            {
+                "seed": seed,
+                "test_f1": round(100 * test["micro"]["f1"], 2),
+                "dev_f1": round(100 * result.best_dev["micro"]["f1"], 2),
+                "per_type_f1": {t: round(100 * v["f1"], 2) for t, v in test["per_type"].items()},
+                "train_seconds": round(seconds, 1),
+                "epochs": len(result.history),
+                "best_epoch": result.best_epoch,
+                "stop": result.stop_reason,
+                "model_bytes": result.model_path.stat().st_size,
+            }
+        )
+        print(json.dumps(runs[-1]), flush=True)
+    f1s = sorted(r["test_f1"] for r in runs)
+    return {
+        "kind": label,
+        "machine": machine(),
+        "config": str(config_path.relative_to(ROOT)),
+        "overrides": overrides,
+        "test_file": str(test_file),
+        "runs": runs,
+        "test_f1_median": median(f1s),
+        "test_f1_min": f1s[0],
+        "test_f1_max": f1s[-1],
+    }
+
+
+def _print_epoch(event: dict) -> None:
+    if event["event"] == "epoch":
+        print(
+            f"  epoch {event['epoch']} dev F1 {100 * event['dev_f1']:.2f} "
+            f"{event['train_tokens_per_second']:.0f} tok/s {event['epoch_seconds']:.0f}s",
+            flush=True,
+        )
+    elif event["event"] == "note":
+        print(f"  note: {event['message']}", flush=True)
+
+
+def render(results: dict) -> str:
+    lines = [
+        "# Training benchmarks",
+        "",
+        "Written by `scripts/bench_training.py`; each section names the run that produced it.",
+        "",
+    ]
+    speed = results.get("speed")
+    if speed:
+        m = speed["machine"]
+        lines += [
+            "## Training speed against the machine's ceiling",
+            "",
+            f"{m['date']}, commit {m['commit']}, {m['cores']} cores ({m['cpu']}), torch {m['torch']}; "
+            f"`{m['command']}`",
+            "",
+            "Ceiling = measured 1024^3 float32 matrix-product rate / (3 x forward FLOPs per token of "
+            "the word-level encoder and output layer). Full steps: forward, backward, clipping, Adam.",
+            "",
+            "| threads | variant | tokens/s | ceiling tokens/s | efficiency | matmul GFLOP/s |",
+            "|---|---|---|---|---|---|",
+        ]
+        for row in speed["rows"]:
+            variant = ", ".join(row["overrides"]) or "default (lstm, fused kernel)"
+            lines.append(
+                f"| {row['threads']} | {variant} | {row['tokens_per_second']:,} | "
+                f"{row['ceiling_tokens_per_second']:,} | {100 * row['efficiency']:.0f}% | "
+                f"{row['ceiling_gflops']} |"
+            )
+        lines.append("")
+    for key, title in (
+        ("demo", "Demo corpus (configs/default.toml)"),
+        ("conll2000", "CoNLL-2000 chunking (configs/conll2000.toml)"),
+    ):
+        acc = results.get(key)
+        if not acc:
+            continue
+        m = acc["machine"]
+        lines += [
+            f"## {title}",
+            "",
+            f"{m['date']}, commit {m['commit']}, {m['cores']} cores, torch {m['torch']}, "
+            f"{m['threads']} threads; `{m['command']}`",
+            "",
+            f"Test span F1: median {acc['test_f1_median']} (min {acc['test_f1_min']}, max "
+            f"{acc['test_f1_max']}) over {len(acc['runs'])} seed(s).",
+            "",
+            "| seed | test F1 | dev F1 | epochs (best) | training time | model size | stopped because |",
+            "|---|---|---|---|---|---|---|",
+        ]
+        for r in acc["runs"]:
+            lines.append(
+                f"| {r['seed']} | {r['test_f1']} | {r['dev_f1']} | {r['epochs']} ({r['best_epoch']}) | "
+                f"{r['train_seconds'] / 60:.1f} min | {r['model_bytes'] / 1e6:.1f} MB | {r['stop']} |"
+            )
+        lines.append("")
+    return "\n".join(lines)
+
+
+def main() -> None:
+    parser = argparse.ArgumentParser(
+        description=__doc__, formatter_class=argparse.RawDescriptionHelpFormatter
+    )
+    parser.add_argument("what", choices=["speed", "demo", "conll2000"])
+    parser.add_argument("--seeds", type=int, nargs="+", default=[1])
+    parser.add_argument("--threads", type=int, nargs="+", default=[2])
+    parser.add_argument(
+        "--seconds", type=float, default=20.0, help="timing window per speed variant"
+    )
+    parser.add_argument("--set", dest="overrides", action="append", default=[])
+    args = parser.parse_args()
+    results = json.loads(RESULTS.read_text()) if RESULTS.exists() else {}
+    if args.what == "speed":
+        results["speed"] = run_speed(args)
+    elif args.what == "demo":
+        results["demo"] = run_accuracy(
+            ROOT / "configs" / "default.toml",
+            args.overrides,
+            ROOT / "data" / "demo" / "test.txt",
+            args.seeds,
+            "demo",
+        )
+    else:
+        if not (CORPORA / "conll2000" / "train.txt").exists():
+            sys.exit(f"skipped: {CORPORA / 'conll2000'} is absent")
+        results["conll2000"] = run_accuracy(
+            ROOT / "configs" / "conll2000.toml",
+            args.overrides,
+            CORPORA / "conll2000" / "test.txt",
+            args.seeds,
+            "conll2000",
+        )
+    RESULTS.parent.mkdir(exist_ok=True)
+    RESULTS.write_text(json.dumps(results, indent=2) + "\n")
+    SUMMARY.write_text(render(results))
+    print(SUMMARY.read_text())
+
+
+if __name__ == "__main__":
+    main()
