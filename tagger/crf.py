@@ -17,6 +17,23 @@ from torch import Tensor, nn
 NEG = -1e4
 
 
+def _exp_transitions(trans: Tensor) -> tuple[Tensor, Tensor]:
+    """exp(trans - max) (entries <= 1, forbidden ones 0) and the max that was taken off."""
+    shift = trans.max().detach()
+    return shift, (trans - shift).exp()
+
+
+def _log_matmul(log_x: Tensor, exp_trans: Tensor) -> Tensor:
+    """log(exp(log_x) @ exp_trans), stable: the log-sum-exp over labels as one matrix product.
+
+    A (batch, L, L) logsumexp per step costs far more than a (batch, L) @ (L, L) product, in the
+    forward and even more in the backward pass. The clamp keeps log() finite when every path into
+    a label is forbidden or underflows (those paths have probability below e^-69 anyway).
+    """
+    top = log_x.max(dim=1, keepdim=True).values.detach()  # (batch, 1)
+    return ((log_x - top).exp() @ exp_trans).clamp_min(1e-30).log() + top
+
+
 def _bool_buffer(
     values: list[bool] | list[list[bool]] | None, shape: tuple[int, ...], name: str
 ) -> Tensor:
@@ -78,12 +95,13 @@ class CRF(nn.Module):
         """Forward variables: alpha_t[b, j] = log-sum of all prefixes ending in label j at t,
         each (batch, L); at padding alpha_t carries the last real alpha forward."""
         start, trans, _ = self._scores()
+        shift, exp_trans = _exp_transitions(trans)
         steps = emissions.transpose(0, 1).unbind(0)  # time x (batch, L)
         real = mask.transpose(0, 1).unsqueeze(2).unbind(0)  # time x (batch, 1)
         alpha = start + steps[0]  # (batch, L)
         alphas = [alpha]
         for e_t, m_t in zip(steps[1:], real[1:], strict=True):
-            nxt = torch.logsumexp(alpha.unsqueeze(2) + trans, dim=1) + e_t  # (batch, L)
+            nxt = _log_matmul(alpha, exp_trans) + shift + e_t  # (batch, L)
             alpha = torch.where(m_t, nxt, alpha)
             alphas.append(alpha)
         return alphas
@@ -160,11 +178,12 @@ class CRF(nn.Module):
         real = mask.transpose(0, 1).unsqueeze(2).unbind(0)  # time x (batch, 1)
         # beta_t[b, i]: log-sum of all suffixes after t given label i at t; at the last real
         # position (and at padding, where it is unused) it is the end score.
+        shift, exp_trans = _exp_transitions(trans)
+        exp_trans_back = exp_trans.t()
         beta = end.expand_as(alphas[-1])  # (batch, L)
         betas = [beta]
         for t in range(len(steps) - 2, -1, -1):
-            after = (steps[t + 1] + beta).unsqueeze(1)  # (batch, 1, L)
-            nxt = torch.logsumexp(trans + after, dim=2)  # (batch, L)
+            nxt = _log_matmul(steps[t + 1] + beta, exp_trans_back) + shift  # (batch, L)
             beta = torch.where(real[t + 1], nxt, end)
             betas.append(beta)
         log_p = torch.stack(alphas, 1) + torch.stack(betas[::-1], 1) - log_z.unsqueeze(2)
