@@ -1,3 +1,22 @@
 """tagger: train, evaluate and run bidirectional recurrent sequence taggers on CPUs."""
 
+from __future__ import annotations
+
+from typing import TYPE_CHECKING
+
+if TYPE_CHECKING:
+    from pathlib import Path
+
+    from tagger.tagging import DocumentTagger
+
 __version__ = "0.1.0"
+
+
+def load_tagger(path: str | Path, threads: int | None = None) -> DocumentTagger:
+    """Load a model file for tagging raw texts: ``load_tagger(path).tag(["some text"])``.
+
+    torch is imported here, not when the package is, so ``import tagger`` stays light.
+    """
+    from tagger.tagging import DocumentTagger
+
+    return DocumentTagger.load(path, threads=threads)

@@ -5,9 +5,11 @@ from __future__ import annotations
 import platform
 from collections.abc import Sequence
 from dataclasses import dataclass, field
+from functools import cached_property
 from pathlib import Path
 from typing import Any
 
+import numpy as np
 import torch
 
 from tagger import __version__
@@ -16,10 +18,24 @@ from tagger.config import Config, config_from_dict
 from tagger.errors import ModelFileError
 from tagger.model import TaggerNet
 from tagger.modelfile import load_model_file, save_model_file
-from tagger.schemes import Span, allowed_transitions, spans_to_tags, tags_to_spans
+from tagger.schemes import (
+    OUTSIDE,
+    Span,
+    allowed_transitions,
+    spans_to_tags,
+    split_tag,
+    tags_to_spans,
+)
 from tagger.vocab import Vocabularies
 
+# Prefixes that close / open a span in the lenient reading (schemes.spans_lenient).
+_CLOSES = frozenset("ESLU")
+_OPENS = frozenset("BSU")
+
 PREDICT_BATCH = 64  # sentences per batch when predicting (PERFORMANCE.md: 64-128 on 2 threads)
+
+ScoredSpan = tuple[str, int, int, float]  # (type, start, end, score), end exclusive
+TOKEN_CACHE = 50_000  # distinct tokens whose ids are remembered between calls (a few MB)
 
 
 @dataclass
@@ -57,6 +73,144 @@ class TrainedTagger:
                 result[i] = tags_to_spans([labels[j] for j in path], self.scheme)
         self.net.train(was_training)
         return result
+
+    def encode_cached(self, token_lists: Sequence[Sequence[str]]) -> list[EncodedSentence]:
+        """Like :meth:`encode`, remembering each distinct token's ids: looking up a token's word
+        and characters costs far more than a dict hit, and text repeats its tokens."""
+        cache = self._token_ids
+        if len(cache) > TOKEN_CACHE:
+            cache.clear()
+        vocabs = self.vocabs
+        encoded = []
+        for tokens in token_lists:
+            words: list[int] = []
+            chars: list[list[int]] = []
+            for token in tokens:
+                ids = cache.get(token)
+                if ids is None:
+                    one = encode_sentence([token], vocabs)
+                    ids = cache[token] = (one.words[0], one.chars[0])
+                words.append(ids[0])
+                chars.append(ids[1])
+            encoded.append(EncodedSentence(words, chars))
+        return encoded
+
+    @cached_property
+    def _token_ids(self) -> dict[str, tuple[int, list[int]]]:
+        return {}
+
+    @cached_property
+    def _label_parts(self) -> tuple[list[str], list[str]]:
+        """(prefix, type) of each label id, split once."""
+        parts = [split_tag(label) for label in self.vocabs.labels.itos]
+        return [p for p, _ in parts], [t for _, t in parts]
+
+    def path_spans(self, path: Sequence[int]) -> list[Span]:
+        """The spans of a label-id path: ``tags_to_spans`` of its labels, computed on ids.
+
+        ``tags_to_spans`` reads well-formed sequences in the scheme and others leniently, and
+        on well-formed sequences the two readings agree; so the lenient reading (CoNLL's: B/S/U
+        open a span, E/S/L/U close one, a change of type or O ends one) is always the answer.
+        """
+        prefixes, types = self._label_parts
+        spans: list[Span] = []
+        open_type = ""
+        start = 0
+        previous = OUTSIDE
+        for i, j in enumerate(path):
+            prefix = prefixes[j]
+            if prefix == OUTSIDE:
+                if open_type:
+                    spans.append((open_type, start, i))
+                    open_type = ""
+                previous = prefix
+                continue
+            kind = types[j]
+            if open_type and (kind != open_type or previous in _CLOSES or prefix in _OPENS):
+                spans.append((open_type, start, i))
+                open_type = ""
+            if not open_type:
+                open_type, start = kind, i
+            previous = prefix
+        if open_type:
+            spans.append((open_type, start, len(path)))
+        return spans
+
+    @torch.inference_mode()
+    def predict_scored_spans(
+        self, token_lists: Sequence[Sequence[str]], batch_size: int = PREDICT_BATCH
+    ) -> list[list[ScoredSpan]]:
+        """The spans of :meth:`predict_spans`, each with a confidence score in [0, 1].
+
+        A span's score is the smallest, over its tokens, of the probability the model gives the
+        label the decoder chose at that token: the CRF's marginal P(label at t | sentence), or the
+        softmax probability without a CRF. A span scores high only if every one of its tokens is
+        sure, so one doubtful boundary or type is enough to flag it.
+
+        Built for many sentences at once: a token's character features do not depend on its
+        neighbours, so they are computed once per distinct token of the call, not per occurrence.
+        """
+        was_training = self.net.training
+        self.net.eval()
+        net = self.net
+        # Distinct tokens get ids 1.., 0 is padding:  rows[s][t] = id of token t of sentence s.
+        distinct: dict[str, int] = {}
+        rows = [
+            [distinct.setdefault(t, len(distinct) + 1) for t in tokens] for tokens in token_lists
+        ]
+        (encoded,) = (
+            self.encode_cached([list(distinct)]) if distinct else (EncodedSentence([], []),)
+        )
+        word_of = torch.tensor([0, *encoded.words])  # (N+1,) word id of each distinct token
+        char_table = self._char_features([[0], *encoded.chars])  # (N+1, char features) or None
+        result: list[list[ScoredSpan]] = [[] for _ in token_lists]
+        real = [i for i, tokens in enumerate(token_lists) if len(tokens) > 0]
+        real.sort(key=lambda i: len(token_lists[i]))  # similar lengths together: little padding
+        for first in range(0, len(real), batch_size):
+            indices = real[first : first + batch_size]
+            lengths = [len(rows[i]) for i in indices]
+            ids = np.zeros((len(indices), max(lengths)), dtype=np.int64)  # (B, T)
+            for b, i in enumerate(indices):
+                ids[b, : lengths[b]] = rows[i]
+            ids_tensor = torch.from_numpy(ids)
+            length_tensor = torch.tensor(lengths)
+            mask = ids_tensor != 0  # (B, T)
+            # TaggerNet.emissions, with the character features looked up instead of recomputed.
+            features = net.words(word_of[ids_tensor])  # (B, T, word_dim)
+            if char_table is not None:
+                features = torch.cat([features, char_table[ids_tensor]], dim=-1)
+            h = net.encoder(net.dropout(features), length_tensor)  # (B, T, 2*hidden)
+            emissions = net.output(net.dropout(h))  # (B, T, L)
+            paths = net.decode(emissions, mask)
+            probabilities = net.label_probabilities(emissions, mask)  # (B, T, L)
+            chosen = np.zeros(ids.shape, dtype=np.int64)  # (B, T) decoded label ids
+            for b, path in enumerate(paths):
+                chosen[b, : len(path)] = path
+            picked = probabilities.gather(2, torch.from_numpy(chosen).unsqueeze(2)).squeeze(2)
+            for i, path, p in zip(indices, paths, picked.tolist(), strict=True):
+                # exp() of a log-probability may overshoot 1 by a rounding error
+                result[i] = [(t, s, e, min(1.0, min(p[s:e]))) for t, s, e in self.path_spans(path)]
+        self.net.train(was_training)
+        return result
+
+    def _char_features(self, chars: list[list[int]], block: int = 4096) -> torch.Tensor | None:
+        """(N, features): the character encoder's output for each token's character ids, in
+        blocks of similar length; None when the model has no character encoder."""
+        if self.net.chars is None:
+            return None
+        order = sorted(range(len(chars)), key=lambda i: len(chars[i]))
+        out: torch.Tensor | None = None
+        for first in range(0, len(order), block):
+            chosen = order[first : first + block]
+            width = len(chars[chosen[-1]])
+            padded = np.zeros((len(chosen), 1, width), dtype=np.int64)  # (n, 1 "time", chars)
+            for row, i in enumerate(chosen):
+                padded[row, 0, : len(chars[i])] = chars[i]
+            features = self.net.chars(torch.from_numpy(padded)).squeeze(1)  # (n, features)
+            if out is None:
+                out = features.new_empty((len(chars), features.shape[1]))
+            out[torch.tensor(chosen)] = features
+        return out
 
     def predict_labels(
         self, token_lists: Sequence[Sequence[str]], scheme: str | None = None

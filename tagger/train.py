@@ -36,6 +36,7 @@ from tagger.metrics import count_spans, summarise
 from tagger.modelfile import load_model_file, save_model_file
 from tagger.predict import TrainedTagger, build_net
 from tagger.schemes import Span, detect_scheme, labels_for_types, spans_to_tags, tags_to_spans
+from tagger.text import TokenizerSettings
 from tagger.vectors import read_word_vectors
 from tagger.vocab import Vocabularies, build_vocabularies
 
@@ -280,6 +281,8 @@ def train(
             "sentences": len(data.train),
         },
         "types": types,
+        # How tagging will cut raw text into tokens; stored so that tagging matches training.
+        "tokenizer": TokenizerSettings().to_dict(),
     }
 
     history: list[dict[str, Any]] = []
