@@ -16,6 +16,7 @@ Output formats:
 
     jsonl    one object per document: its input keys (id first, added as "SOURCE:LINE" when the
              input has none), "text", "spans" (start, end, label, text, score) and "review"
+             ("spans" and "review" keys of the input, e.g. from an earlier run, are replaced)
     columns  one token per line with the predicted label appended, in the training files' scheme
              (or `scheme`); a blank line after each sentence; documents read from text or jsonl
              start with a "-DOCSTART- ID" line
