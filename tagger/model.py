@@ -101,11 +101,19 @@ class TaggerNet(nn.Module):
         self.crf = CRF(n_labels, *transitions) if config.output == "crf" else None
 
     def emissions(
-        self, words: torch.Tensor, chars: torch.Tensor, lengths: torch.Tensor
+        self,
+        words: torch.Tensor,
+        chars: torch.Tensor | None,
+        lengths: torch.Tensor,
+        char_features: torch.Tensor | None = None,
     ) -> torch.Tensor:
+        """(B, T, L) label scores. ``char_features`` (B, T, F), when given, replaces running the
+        character encoder on ``chars``: prediction computes it once per distinct token."""
         features = self.words(words)  # (B, T, word_dim)
         if self.chars is not None:
-            features = torch.cat([features, self.chars(chars)], dim=-1)
+            if char_features is None:
+                char_features = self.chars(chars)
+            features = torch.cat([features, char_features], dim=-1)
         h = self.encoder(self.dropout(features), lengths)  # (B, T, output_size)
         return self.output(self.dropout(h))  # (B, T, L)
 

@@ -13,7 +13,7 @@ import numpy as np
 import torch
 
 from tagger import __version__
-from tagger.batching import EncodedSentence, collate, encode_sentence
+from tagger.batching import EncodedSentence, encode_sentence
 from tagger.config import Config, config_from_dict
 from tagger.errors import ModelFileError
 from tagger.model import TaggerNet
@@ -24,7 +24,6 @@ from tagger.schemes import (
     allowed_transitions,
     spans_to_tags,
     split_tag,
-    tags_to_spans,
 )
 from tagger.vocab import Vocabularies
 
@@ -54,25 +53,12 @@ class TrainedTagger:
     def encode(self, token_lists: Sequence[Sequence[str]]) -> list[EncodedSentence]:
         return [encode_sentence(tokens, self.vocabs) for tokens in token_lists]
 
-    @torch.inference_mode()
     def predict_spans(
         self, token_lists: Sequence[Sequence[str]], batch_size: int = PREDICT_BATCH
     ) -> list[list[Span]]:
         """Spans (type, start, end) per sentence; empty sentences get no spans."""
-        was_training = self.net.training
-        self.net.eval()
-        encoded = self.encode(token_lists)
-        result: list[list[Span]] = [[] for _ in token_lists]
-        real = [i for i, tokens in enumerate(token_lists) if len(tokens) > 0]
-        real.sort(key=lambda i: len(token_lists[i]))  # similar lengths together: little padding
-        labels = self.vocabs.labels.itos
-        for start in range(0, len(real), batch_size):
-            batch = collate(encoded, real[start : start + batch_size])
-            emissions = self.net.emissions(batch.words, batch.chars, batch.lengths)
-            for i, path in zip(batch.indices, self.net.decode(emissions, batch.mask), strict=True):
-                result[i] = tags_to_spans([labels[j] for j in path], self.scheme)
-        self.net.train(was_training)
-        return result
+        scored = self.predict_scored_spans(token_lists, batch_size, with_scores=False)
+        return [[span[:3] for span in spans] for spans in scored]
 
     def encode_cached(self, token_lists: Sequence[Sequence[str]]) -> list[EncodedSentence]:
         """Like :meth:`encode`, remembering each distinct token's ids: looking up a token's word
@@ -138,9 +124,12 @@ class TrainedTagger:
 
     @torch.inference_mode()
     def predict_scored_spans(
-        self, token_lists: Sequence[Sequence[str]], batch_size: int = PREDICT_BATCH
+        self,
+        token_lists: Sequence[Sequence[str]],
+        batch_size: int = PREDICT_BATCH,
+        with_scores: bool = True,
     ) -> list[list[ScoredSpan]]:
-        """The spans of :meth:`predict_spans`, each with a confidence score in [0, 1].
+        """Spans per sentence, each with a confidence score in [0, 1] (1.0 without ``with_scores``).
 
         A span's score is the smallest, over its tokens, of the probability the model gives the
         label the decoder chose at that token: the CRF's marginal P(label at t | sentence), or the
@@ -175,13 +164,13 @@ class TrainedTagger:
             ids_tensor = torch.from_numpy(ids)
             length_tensor = torch.tensor(lengths)
             mask = ids_tensor != 0  # (B, T)
-            # TaggerNet.emissions, with the character features looked up instead of recomputed.
-            features = net.words(word_of[ids_tensor])  # (B, T, word_dim)
-            if char_table is not None:
-                features = torch.cat([features, char_table[ids_tensor]], dim=-1)
-            h = net.encoder(net.dropout(features), length_tensor)  # (B, T, 2*hidden)
-            emissions = net.output(net.dropout(h))  # (B, T, L)
+            char_features = None if char_table is None else char_table[ids_tensor]
+            emissions = net.emissions(word_of[ids_tensor], None, length_tensor, char_features)
             paths = net.decode(emissions, mask)
+            if not with_scores:
+                for i, path in zip(indices, paths, strict=True):
+                    result[i] = [(t, s, e, 1.0) for t, s, e in self.path_spans(path)]
+                continue
             probabilities = net.label_probabilities(emissions, mask)  # (B, T, L)
             chosen = np.zeros(ids.shape, dtype=np.int64)  # (B, T) decoded label ids
             for b, path in enumerate(paths):

@@ -399,7 +399,11 @@ def train(
             "best": improved,
             "stop": "",
         }
-        if config.train.lr_schedule == "exponential" or config.train.lr_schedule == "plateau" and not improved:
+        if (
+            config.train.lr_schedule == "exponential"
+            or config.train.lr_schedule == "plateau"
+            and not improved
+        ):
             learning_rate *= config.train.lr_decay
         if bad_epochs >= config.train.patience:
             row["stop"] = (

@@ -14,6 +14,7 @@ from hypothesis import strategies as st
 from typer.testing import CliRunner
 
 from tagger import load_tagger
+from tagger.batching import collate
 from tagger.cli import app
 from tagger.config import Config, config_from_dict
 from tagger.corpus import read_sentences
@@ -288,14 +289,25 @@ def test_label_paths_read_as_tags_to_spans_reads_them(scheme: str, data: st.Data
     assert reader.path_spans(path) == tags_to_spans([labels[j] for j in path], scheme)
 
 
-def test_scored_spans_are_the_spans_of_predict_spans(model: Path) -> None:
-    # predict_spans runs TaggerNet.emissions as training does; the scored path looks up character
-    # features per distinct token instead. Both must find the same spans.
+def test_predicted_spans_equal_decoding_the_training_forward_pass(model: Path) -> None:
+    # Prediction looks up character features per distinct token; training runs TaggerNet.emissions
+    # on padded batches. Both must find the same spans.
     tagger = load_trained(model)
     token_lists = [[t for t, _ in s] for s in _sentences(11, 80, unseen=True)]
-    token_lists += [[], ["x" * 40, "T-14"], ["Ünseen", "gearbox", "🙂"]]
+    token_lists += [["x" * 40, "T-14"], ["Ünseen", "gearbox", "🙂"]]
+    encoded = tagger.encode(token_lists)
+    expected = []
+    with torch.no_grad():
+        for i in range(len(token_lists)):
+            batch = collate(encoded, [i])
+            emissions = tagger.net.emissions(batch.words, batch.chars, batch.lengths)
+            (path,) = tagger.net.decode(emissions, batch.mask)
+            expected.append(
+                tags_to_spans([tagger.vocabs.labels.itos[j] for j in path], tagger.scheme)
+            )
+    assert tagger.predict_spans(token_lists, batch_size=16) == expected
     scored = tagger.predict_scored_spans(token_lists, batch_size=16)
-    assert [[s[:3] for s in spans] for spans in scored] == tagger.predict_spans(token_lists)
+    assert [[s[:3] for s in spans] for spans in scored] == expected
 
 
 def test_cached_encoding_equals_encoding(model: Path) -> None:

@@ -35,7 +35,8 @@ TINY = [
 
 def write_columns_file(path: Path, sentences: list[list[tuple[str, str]]]) -> Path:
     path.write_text(
-        "".join("".join(f"{token}\t{label}\n" for token, label in s) + "\n" for s in sentences), encoding="utf-8"
+        "".join("".join(f"{token}\t{label}\n" for token, label in s) + "\n" for s in sentences),
+        encoding="utf-8",
     )
     return path
 
