@@ -6,6 +6,15 @@ A batch is right-padded: sentence b occupies positions [0, lengths[b]) of every 
     chars   (batch, time, chars) character ids of each token, 0 = padding
     mask    (batch, time)        True at real tokens
     labels  (batch, time)        label ids (0 at padding, ignored through the mask), or None
+    features (batch, time, slots) ids of the extra features (tagger.features), or None
+
+An encoded sentence holds its feature ids slot-major (one list per slot, as `FeatureSpec.encode`
+gives them); `collate` lays them out token-major:
+
+    features of sentence b:  slot 0: [f00 f01 f02]      batch.features[b]:  [[f00 f10]
+                             slot 1: [f10 f11 f12]  ->                       [f01 f11]
+                                                                             [f02 f12]
+                                                                             [ 0   0 ]]  padding
 """
 
 from __future__ import annotations
@@ -29,6 +38,7 @@ class EncodedSentence:
     words: list[int]
     chars: list[list[int]]
     labels: list[int] | None = None
+    features: list[list[int]] | None = None  # (slots, tokens) feature ids, or None
 
 
 @dataclass
@@ -39,6 +49,7 @@ class Batch:
     mask: torch.Tensor
     labels: torch.Tensor | None
     indices: list[int]  # position of each row in the list the batch was cut from
+    features: torch.Tensor | None = None  # (batch, time, slots) feature ids
 
     @property
     def tokens(self) -> int:
@@ -53,16 +64,21 @@ def _clip_chars(token: str) -> str:
 
 
 def encode_sentence(
-    tokens: Sequence[str], vocabs: Vocabularies, labels: Sequence[str] | None = None
+    tokens: Sequence[str],
+    vocabs: Vocabularies,
+    labels: Sequence[str] | None = None,
+    features: list[list[int]] | None = None,
 ) -> EncodedSentence:
-    """Ids for one sentence; labels outside the label vocabulary are read as "O"."""
+    """Ids for one sentence; labels outside the label vocabulary are read as "O".
+
+    ``features`` are the sentence's feature ids, slot-major, from `FeatureSpec.encode`."""
     words = [vocabs.words.index(vocabs.word_key(t)) for t in tokens]
     chars = [vocabs.chars.encode(_clip_chars(t)) or [1] for t in tokens]
     label_ids = None
     if labels is not None:
         outside = vocabs.labels.stoi["O"]
         label_ids = [vocabs.labels.stoi.get(label, outside) for label in labels]
-    return EncodedSentence(words, chars, label_ids)
+    return EncodedSentence(words, chars, label_ids, features)
 
 
 def collate(sentences: Sequence[EncodedSentence], indices: Sequence[int]) -> Batch:
@@ -76,6 +92,8 @@ def collate(sentences: Sequence[EncodedSentence], indices: Sequence[int]) -> Bat
     chars = np.zeros((batch, time, width), dtype=np.int64)
     has_labels = chosen[0].labels is not None
     labels = np.zeros((batch, time), dtype=np.int64) if has_labels else None
+    slots = chosen[0].features
+    features = None if slots is None else np.zeros((batch, time, len(slots)), dtype=np.int64)
     for b, sentence in enumerate(chosen):
         n = lengths[b]
         words[b, :n] = sentence.words
@@ -83,6 +101,8 @@ def collate(sentences: Sequence[EncodedSentence], indices: Sequence[int]) -> Bat
             chars[b, t, : len(token_chars)] = token_chars
         if labels is not None:
             labels[b, :n] = sentence.labels
+        if features is not None and n:
+            features[b, :n] = np.asarray(sentence.features, dtype=np.int64).T  # (n, slots)
     lengths_tensor = torch.tensor(lengths)
     mask = torch.arange(time)[None, :] < lengths_tensor[:, None]
     return Batch(
@@ -92,6 +112,7 @@ def collate(sentences: Sequence[EncodedSentence], indices: Sequence[int]) -> Bat
         mask,
         None if labels is None else torch.from_numpy(labels),
         list(indices),
+        None if features is None else torch.from_numpy(features),
     )
 
 

@@ -82,13 +82,34 @@ def check(
     token_column: TokenColumn = 0,
     label_column: LabelColumn = -1,
     delimiter: Delimiter = "auto",
+    lexicons: Annotated[
+        list[Path] | None,
+        typer.Option(
+            "--lexicon",
+            exists=True,
+            dir_okay=False,
+            help="A lexicon file ('entry' or 'entry<TAB>type' per line) whose coverage of the "
+            "annotated spans to report (repeatable).",
+        ),
+    ] = None,
+    lexicon_case: Annotated[
+        str, typer.Option(help="How lexicon entries meet tokens: ignore, exact or smart.")
+    ] = "ignore",
     as_json: AsJson = False,
 ) -> None:
-    """Inspect annotated column files: counts, scheme, ill-formed tags, leakage and inconsistencies."""
+    """Inspect annotated column files: counts, scheme, ill-formed tags, leakage, inconsistencies,
+    values of extra columns and lexicon coverage."""
+    from tagger.lexicon import CASE_MODES, read_lexicon
     from tagger.reports import check_files, format_check
 
+    if lexicon_case not in CASE_MODES:
+        raise typer.BadParameter(
+            f"must be one of {', '.join(CASE_MODES)}, not {lexicon_case!r}",
+            param_hint="--lexicon-case",
+        )
     with _domain_errors():
-        report = check_files(files, _format(delimiter, token_column, label_column))
+        loaded = [read_lexicon(path, lexicon_case) for path in lexicons or []]
+        report = check_files(files, _format(delimiter, token_column, label_column), lexicons=loaded)
     _print_json(report) if as_json else print(format_check(report))
 
 

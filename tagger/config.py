@@ -7,6 +7,8 @@ A config file has three tables, each optional, each key optional:
     [train]  how to fit it
 
 Unknown keys, wrong types and values outside the allowed set are rejected with the key's name.
+List-valued keys (e.g. `feature_columns = [1]`) are TOML arrays, held as tuples so that a config
+stays immutable; `Config.to_dict` gives them back as lists.
 """
 
 from __future__ import annotations
@@ -27,6 +29,7 @@ OPTIMIZERS = ("adam", "sgd")
 SCHEDULES = ("constant", "exponential", "plateau")
 DELIMITERS = ("auto", "tab", "space")
 HOLDOUTS = ("random", "last")
+LEXICON_CASES = ("ignore", "exact", "smart")  # see tagger.lexicon
 
 
 @dataclass(frozen=True)
@@ -63,6 +66,14 @@ class ModelConfig:
     min_word_count: int = 1
     pretrained_vectors: str = ""  # word2vec/GloVe text file; empty for none
     fast_kernels: bool = True  # use torch's fused kernels where a cell has one
+    # Extra input features (tagger.features); none by default.
+    feature_columns: tuple[int, ...] = ()  # 0-based columns of the input files read as features
+    feature_dim: int = 16  # embedding size of each feature column's values
+    lexicons: tuple[str, ...] = ()  # lexicon files: "entry" or "entry<TAB>type" per line
+    lexicon_case: str = "ignore"  # ignore, exact, or smart (lower-case entries ignore case)
+    lexicon_dim: int = 8  # embedding size of each lexicon category's match tags
+    word_shape: bool = False  # read each token's shape (case, digits, punctuation, length)
+    shape_dim: int = 8
 
 
 @dataclass(frozen=True)
@@ -89,7 +100,11 @@ class Config:
     train: TrainConfig = field(default_factory=TrainConfig)
 
     def to_dict(self) -> dict[str, dict[str, Any]]:
-        return dataclasses.asdict(self)
+        """Plain JSON-ready tables: list-valued keys come back as lists."""
+        return {
+            section: {k: list(v) if isinstance(v, tuple) else v for k, v in values.items()}
+            for section, values in dataclasses.asdict(self).items()
+        }
 
 
 SECTIONS: dict[str, type] = {"data": DataConfig, "model": ModelConfig, "train": TrainConfig}
@@ -102,6 +117,7 @@ _CHOICES: dict[tuple[str, str], tuple[str, ...]] = {
     ("train", "lr_schedule"): SCHEDULES,
     ("data", "delimiter"): DELIMITERS,
     ("data", "dev_holdout"): HOLDOUTS,
+    ("model", "lexicon_case"): LEXICON_CASES,
 }
 _POSITIVE = {
     ("model", "hidden_size"),
@@ -111,17 +127,30 @@ _POSITIVE = {
     ("train", "batch_size"),
     ("model", "char_kernel"),
     ("model", "min_word_count"),
+    ("model", "feature_dim"),
+    ("model", "lexicon_dim"),
+    ("model", "shape_dim"),
 }
 _FRACTIONS = {("model", "dropout"), ("train", "unknown_replace"), ("data", "dev_fraction")}
 
 
+def _is_int(value: Any) -> bool:
+    return isinstance(value, int) and not isinstance(value, bool)
+
+
 def _coerce(section: str, name: str, expected: Any, value: Any) -> Any:
-    """Check one value's type; ints are accepted where floats are expected."""
+    """Check one value's type; ints are accepted where floats are expected, lists where tuples are."""
     key = f"{section}.{name}"
+    if typing.get_origin(expected) is tuple:
+        item = typing.get_args(expected)[0]
+        check = _is_int if item is int else lambda v: isinstance(v, item)
+        if not isinstance(value, list | tuple) or not all(check(v) for v in value):
+            raise ConfigError(f"{key} must be a list of {item.__name__}, got {value!r}")
+        return tuple(value)
     if expected is bool:
         ok = isinstance(value, bool)
     elif expected is int:
-        ok = isinstance(value, int) and not isinstance(value, bool)
+        ok = _is_int(value)
     elif expected is float:
         ok = isinstance(value, int | float) and not isinstance(value, bool)
         value = float(value) if ok else value
@@ -146,6 +175,15 @@ def _validate(section: str, name: str, value: Any) -> None:
         and value < 0
     ):
         raise ConfigError(f"{key} must not be negative; got {value!r}")
+    if (section, name) == ("model", "feature_columns"):
+        if any(v < 0 for v in value):
+            raise ConfigError(
+                f"{key} must hold column numbers of 0 or more (counted from the first); got {list(value)}"
+            )
+        if len(set(value)) != len(value):
+            raise ConfigError(f"{key} lists a column twice: {list(value)}")
+    if (section, name) == ("model", "lexicons") and not all(v.strip() for v in value):
+        raise ConfigError(f"{key} must hold file paths, not empty strings; got {list(value)}")
     if (section, name) == ("model", "scheme"):
         from tagger.schemes import normalise_scheme_name
 

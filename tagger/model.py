@@ -1,11 +1,17 @@
 """The tagger network: word and character features -> residual bidirectional encoder -> output layer.
 
 words (B,T) ──embed──┐
-                     ├─ concat ─ dropout ─ BiResidualEncoder ─ dropout ─ linear ─> emissions (B,T,L)
-chars (B,T,C) ─CNN/RNN┘                                                  └─ CRF or softmax
+chars (B,T,C) ─CNN/RNN┤
+features (B,T,K) ─────┴─ concat ─ dropout ─ BiResidualEncoder ─ dropout ─ linear ─> emissions (B,T,L)
+  one embedding per slot (optional)                                      └─ CRF or softmax
+
+The feature slots (extra columns, lexicon categories, word shape; see tagger.features) each get a
+small embedding; a model without them has no such modules, so its parameters are as they were.
 """
 
 from __future__ import annotations
+
+from collections.abc import Sequence
 
 import torch
 from torch import nn
@@ -73,7 +79,9 @@ class TaggerNet(nn.Module):
         n_chars: int,
         n_labels: int,
         transitions: Transitions | None = None,
+        feature_slots: Sequence[tuple[int, int]] = (),
     ) -> None:
+        """``feature_slots``: (number of ids, embedding size) of each feature slot, in slot order."""
         super().__init__()
         self.config = config
         self.words = nn.Embedding(n_words, config.word_dim, padding_idx=0)
@@ -88,8 +96,9 @@ class TaggerNet(nn.Module):
         if self.chars is not None:
             char_size = self.chars.output_size
         self.dropout = nn.Dropout(config.dropout)
+        feature_size = sum(dim for _, dim in feature_slots)
         self.encoder = BiResidualEncoder(
-            config.word_dim + char_size,
+            config.word_dim + char_size + feature_size,
             config.hidden_size,
             config.layers,
             config.cell,
@@ -99,6 +108,15 @@ class TaggerNet(nn.Module):
         )
         self.output = nn.Linear(self.encoder.output_size, n_labels)
         self.crf = CRF(n_labels, *transitions) if config.output == "crf" else None
+        # Made last, so the modules above draw the same initial weights as without features.
+        self.features: nn.ModuleList | None = None
+        if feature_slots:
+            self.features = nn.ModuleList(
+                nn.Embedding(size, dim, padding_idx=0) for size, dim in feature_slots
+            )
+            with torch.no_grad():
+                for embedding in self.features:
+                    embedding.weight[1].zero_()  # id 1, "nothing known", starts neutral
 
     def emissions(
         self,
@@ -106,15 +124,23 @@ class TaggerNet(nn.Module):
         chars: torch.Tensor | None,
         lengths: torch.Tensor,
         char_features: torch.Tensor | None = None,
+        features: torch.Tensor | None = None,
     ) -> torch.Tensor:
         """(B, T, L) label scores. ``char_features`` (B, T, F), when given, replaces running the
-        character encoder on ``chars``: prediction computes it once per distinct token."""
-        features = self.words(words)  # (B, T, word_dim)
+        character encoder on ``chars``: prediction computes it once per distinct token.
+        ``features`` (B, T, K) holds the ids of the K feature slots of a model that has them."""
+        parts = [self.words(words)]  # (B, T, word_dim)
         if self.chars is not None:
             if char_features is None:
                 char_features = self.chars(chars)
-            features = torch.cat([features, char_features], dim=-1)
-        h = self.encoder(self.dropout(features), lengths)  # (B, T, output_size)
+            parts.append(char_features)  # (B, T, char features)
+        if self.features is not None:
+            if features is None:
+                raise ValueError("this network reads feature ids; none were given")
+            # (B, T, dim) per slot
+            parts.extend(embed(features[:, :, k]) for k, embed in enumerate(self.features))
+        inputs = parts[0] if len(parts) == 1 else torch.cat(parts, dim=-1)
+        h = self.encoder(self.dropout(inputs), lengths)  # (B, T, output_size)
         return self.output(self.dropout(h))  # (B, T, L)
 
     def loss(

@@ -15,7 +15,8 @@ import torch
 from tagger import __version__
 from tagger.batching import EncodedSentence, encode_sentence
 from tagger.config import Config, config_from_dict
-from tagger.errors import ModelFileError
+from tagger.errors import ModelFileError, TaggerError
+from tagger.features import FeatureSpec
 from tagger.model import TaggerNet
 from tagger.modelfile import load_model_file, save_model_file
 from tagger.schemes import (
@@ -35,6 +36,7 @@ PREDICT_BATCH = 64  # sentences per batch when predicting (PERFORMANCE.md: 64-12
 
 ScoredSpan = tuple[str, int, int, float]  # (type, start, end, score), end exclusive
 TOKEN_CACHE = 50_000  # distinct tokens whose ids are remembered between calls (a few MB)
+Rows = Sequence[Sequence[Sequence[str]]]  # per sentence, per token: every column of its line
 
 
 @dataclass
@@ -44,20 +46,55 @@ class TrainedTagger:
     config: Config
     input_scheme: str  # the scheme of the training files; predictions are written back in it
     meta: dict[str, Any] = field(default_factory=dict)
+    features: FeatureSpec | None = None  # extra columns, lexicons, word shape; None: words only
 
     @property
     def scheme(self) -> str:
         """The scheme the network predicts in."""
         return self.config.model.scheme
 
-    def encode(self, token_lists: Sequence[Sequence[str]]) -> list[EncodedSentence]:
-        return [encode_sentence(tokens, self.vocabs) for tokens in token_lists]
+    @property
+    def needs_columns(self) -> bool:
+        """Does the model read extra input columns (so that it can tag column files only)?"""
+        return self.features is not None and self.features.needs_columns
+
+    def feature_ids(
+        self, token_lists: Sequence[Sequence[str]], rows: Rows | None = None
+    ) -> list[list[list[int]] | None]:
+        """Per sentence, its feature ids (slot-major), or None for a model without features.
+
+        ``rows`` (per sentence, the column-file lines of its tokens) are needed by models that
+        read extra columns; without them such a model raises FeatureInputError.
+        """
+        spec = self.features
+        if spec is None:
+            return [None] * len(token_lists)
+        if rows is not None and len(rows) != len(token_lists):
+            raise ValueError(
+                f"got rows for {len(rows)} sentences and {len(token_lists)} token lists"
+            )
+        return [
+            spec.encode(tokens, None if rows is None else rows[i])
+            for i, tokens in enumerate(token_lists)
+        ]
+
+    def encode(
+        self, token_lists: Sequence[Sequence[str]], rows: Rows | None = None
+    ) -> list[EncodedSentence]:
+        features = self.feature_ids(token_lists, rows)
+        return [
+            encode_sentence(tokens, self.vocabs, features=f)
+            for tokens, f in zip(token_lists, features, strict=True)
+        ]
 
     def predict_spans(
-        self, token_lists: Sequence[Sequence[str]], batch_size: int = PREDICT_BATCH
+        self,
+        token_lists: Sequence[Sequence[str]],
+        batch_size: int = PREDICT_BATCH,
+        rows: Rows | None = None,
     ) -> list[list[Span]]:
         """Spans (type, start, end) per sentence; empty sentences get no spans."""
-        scored = self.predict_scored_spans(token_lists, batch_size, with_scores=False)
+        scored = self.predict_scored_spans(token_lists, batch_size, with_scores=False, rows=rows)
         return [[span[:3] for span in spans] for spans in scored]
 
     def encode_cached(self, token_lists: Sequence[Sequence[str]]) -> list[EncodedSentence]:
@@ -128,6 +165,7 @@ class TrainedTagger:
         token_lists: Sequence[Sequence[str]],
         batch_size: int = PREDICT_BATCH,
         with_scores: bool = True,
+        rows: Rows | None = None,
     ) -> list[list[ScoredSpan]]:
         """Spans per sentence, each with a confidence score in [0, 1] (1.0 without ``with_scores``).
 
@@ -138,7 +176,10 @@ class TrainedTagger:
 
         Built for many sentences at once: a token's character features do not depend on its
         neighbours, so they are computed once per distinct token of the call, not per occurrence.
+        Feature ids (extra columns, lexicon matches) do depend on the sentence, so they are
+        computed per sentence; ``rows`` gives the column-file lines of models that read columns.
         """
+        features = self.feature_ids(token_lists, rows)  # before any work: may refuse the input
         was_training = self.net.training
         self.net.eval()
         net = self.net
@@ -165,7 +206,15 @@ class TrainedTagger:
             length_tensor = torch.tensor(lengths)
             mask = ids_tensor != 0  # (B, T)
             char_features = None if char_table is None else char_table[ids_tensor]
-            emissions = net.emissions(word_of[ids_tensor], None, length_tensor, char_features)
+            feature_tensor = None
+            if self.features is not None:
+                slots = np.zeros((*ids.shape, net_slots(net)), dtype=np.int64)  # (B, T, K)
+                for b, i in enumerate(indices):
+                    slots[b, : lengths[b]] = np.asarray(features[i], dtype=np.int64).T
+                feature_tensor = torch.from_numpy(slots)
+            emissions = net.emissions(
+                word_of[ids_tensor], None, length_tensor, char_features, feature_tensor
+            )
             paths = net.decode(emissions, mask)
             if not with_scores:
                 for i, path in zip(indices, paths, strict=True):
@@ -202,11 +251,14 @@ class TrainedTagger:
         return out
 
     def predict_labels(
-        self, token_lists: Sequence[Sequence[str]], scheme: str | None = None
+        self,
+        token_lists: Sequence[Sequence[str]],
+        scheme: str | None = None,
+        rows: Rows | None = None,
     ) -> list[list[str]]:
         """Labels per token, in ``scheme`` (default: the scheme of the training files)."""
         target = scheme or self.input_scheme
-        spans = self.predict_spans(token_lists)
+        spans = self.predict_spans(token_lists, rows=rows)
         return [spans_to_tags(s, len(t), target) for s, t in zip(spans, token_lists, strict=True)]
 
     def save(self, path: str | Path, extra: dict[str, Any] | None = None) -> None:
@@ -216,6 +268,7 @@ class TrainedTagger:
             "config": self.config.to_dict(),
             "vocabularies": self.vocabs.to_dict(),
             "input_scheme": self.input_scheme,
+            **({"features": self.features.to_dict()} if self.features is not None else {}),
             "versions": {
                 "tagger": __version__,
                 "torch": torch.__version__,
@@ -225,12 +278,20 @@ class TrainedTagger:
         save_model_file(path, self.net.state_dict(), meta)
 
 
-def build_net(config: Config, vocabs: Vocabularies) -> TaggerNet:
+def net_slots(net: TaggerNet) -> int:
+    """How many feature slots a network reads."""
+    return 0 if net.features is None else len(net.features)
+
+
+def build_net(
+    config: Config, vocabs: Vocabularies, features: FeatureSpec | None = None
+) -> TaggerNet:
     transitions = None
     if config.model.output == "crf":
         transitions = allowed_transitions(vocabs.labels.itos, config.model.scheme)
+    slots = features.slot_sizes(config.model) if features is not None else ()
     return TaggerNet(
-        config.model, len(vocabs.words), len(vocabs.chars), len(vocabs.labels), transitions
+        config.model, len(vocabs.words), len(vocabs.chars), len(vocabs.labels), transitions, slots
     )
 
 
@@ -241,12 +302,15 @@ def load_trained(path: str | Path) -> TrainedTagger:
         config = config_from_dict(meta["config"])
         vocabs = Vocabularies.from_dict(meta["vocabularies"])
         input_scheme = meta["input_scheme"]
-    except (KeyError, TypeError) as error:
+        features = FeatureSpec.from_dict(meta["features"]) if "features" in meta else None
+    except (KeyError, TypeError, IndexError) as error:
         raise ModelFileError(f"{path}: model metadata lacks {error}") from None
-    net = build_net(config, vocabs)
+    except (TaggerError, ValueError) as error:
+        raise ModelFileError(f"{path}: the stored features are unreadable ({error})") from None
+    net = build_net(config, vocabs, features)
     try:
         net.load_state_dict(tensors)
     except RuntimeError as error:
         raise ModelFileError(f"{path}: weights do not fit the stored config ({error})") from None
     net.eval()
-    return TrainedTagger(net, vocabs, config, input_scheme, meta)
+    return TrainedTagger(net, vocabs, config, input_scheme, meta, features)

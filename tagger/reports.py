@@ -1,8 +1,10 @@
 """File-level reports behind the `check` and `convert` commands.
 
 `check_files` reads annotated column files and describes them: counts, the tagging scheme they
-fit, ill-formed transitions, characters one cannot see, sentences labelled two ways, and, across
-files, what dev/test hold that train does not and which sentences they share with train.
+fit, ill-formed transitions, characters one cannot see, sentences labelled two ways, the value
+sets of columns other than token and label, how well given lexicons cover the annotated spans,
+and, across files, what dev/test hold that train does not and which sentences they share with
+train.
 `convert_file` rewrites a file's labels in another scheme. Both return plain JSON-ready dicts;
 `format_check` lays a check report out as text.
 
@@ -25,6 +27,7 @@ from typing import Any
 
 from tagger.corpus import STDIO, ColumnFormat, ColumnReader, ReadStats, Sentence, write_columns
 from tagger.errors import DataError
+from tagger.lexicon import Lexicon
 from tagger.schemes import (
     convert_tags,
     detect_scheme,
@@ -44,6 +47,8 @@ SHOWN_TEXT = 80
 # short ones ("1 .", "He declined to elaborate .") recur in any large corpus (common practice,
 # not a measured threshold).
 LONG_SENTENCE = 5
+# Values shown per extra column (with the count of distinct values).
+SHOWN_VALUES = 5
 
 
 @dataclass
@@ -86,6 +91,60 @@ class _Examples:
 
 
 @dataclass
+class _Coverage:
+    """How one lexicon's matches (tagger.lexicon) meet the gold spans of one file."""
+
+    lexicon: Lexicon
+    exact: Counter[str] = field(default_factory=Counter)  # per gold type
+    same_type: Counter[str] = field(default_factory=Counter)  # exact, and of the gold type
+    partial: Counter[str] = field(default_factory=Counter)
+    missed: Counter[str] = field(default_factory=Counter)
+    matches: int = 0
+    outside: int = 0  # matches that overlap no gold span
+
+    def add(self, tokens: Sequence[str], spans: Sequence[tuple[str, int, int]]) -> None:
+        matches = self.lexicon.match(tokens)
+        self.matches += len(matches)
+        for start, end, _ in matches:
+            if not any(start < b and a < end for _, a, b in spans):
+                self.outside += 1
+        for kind, a, b in spans:
+            exact = [types for start, end, types in matches if (start, end) == (a, b)]
+            if exact:
+                self.exact[kind] += 1
+                self.same_type[kind] += any(kind in types for types in exact)
+            elif any(start < b and a < end for start, end, _ in matches):
+                self.partial[kind] += 1
+            else:
+                self.missed[kind] += 1
+
+    def as_dict(self) -> dict[str, Any]:
+        types = sorted(set(self.exact) | set(self.partial) | set(self.missed))
+        per_type = {
+            kind: {
+                "spans": self.exact[kind] + self.partial[kind] + self.missed[kind],
+                "exact": self.exact[kind],
+                "exact_same_type": self.same_type[kind],
+                "partial": self.partial[kind],
+                "none": self.missed[kind],
+            }
+            for kind in types
+        }
+        return {
+            "lexicon": self.lexicon.name,
+            "entries": len(self.lexicon),
+            "spans": sum(t["spans"] for t in per_type.values()),
+            "exact": sum(self.exact.values()),
+            "exact_same_type": sum(self.same_type.values()),
+            "partial": sum(self.partial.values()),
+            "none": sum(self.missed.values()),
+            "matches": self.matches,
+            "matches_outside_spans": self.outside,
+            "per_type": per_type,
+        }
+
+
+@dataclass
 class _FileScan:
     """Everything gathered about one file on the first pass."""
 
@@ -107,6 +166,8 @@ class _FileScan:
     leaked_long: int = 0
     tag_sentences: int = 0  # sentences whose labels are all span tags
     first_non_tag: tuple[str, int] | None = None  # (label, line)
+    values: dict[int, Counter[str]] = field(default_factory=dict)  # extra column -> values
+    coverage: list[_Coverage] = field(default_factory=list)
 
     def __post_init__(self) -> None:
         self.inconsistent = _Examples(self.limit)
@@ -116,7 +177,10 @@ class _FileScan:
 
 
 def check_files(
-    paths: Sequence[str | Path], fmt: ColumnFormat = _ANY_FORMAT, max_examples: int = 5
+    paths: Sequence[str | Path],
+    fmt: ColumnFormat = _ANY_FORMAT,
+    max_examples: int = 5,
+    lexicons: Sequence[Lexicon] = (),
 ) -> dict[str, Any]:
     """Describe annotated column files; the first is taken as train, any others as dev/test.
 
@@ -127,7 +191,12 @@ def check_files(
     A file's report holds "file", "delimiter", "columns", "lines", "sentences", "tokens",
     "documents", "docstart_lines", "comment_lines", "whitespace_only_lines" (blank lines holding
     spaces or TABs), "trailing_lines", "longest_sentence" {"tokens", "line"},
-    "repeated_sentences" and "invisible_characters"; with labels also "distinct_labels",
+    "repeated_sentences", "invisible_characters" and "extra_columns" (per column other than
+    token and label: {"column", "distinct", "most_frequent": [{"value", "count"}, ...]});
+    with labels also "lexicon_coverage" (per lexicon: {"lexicon", "entries", "spans", "exact",
+    "exact_same_type", "partial", "none", "matches", "matches_outside_spans", "per_type"}: of
+    the gold spans, how many a chosen match covers exactly, how many it only overlaps, how
+    many it misses; how many matches overlap no gold span), "distinct_labels",
     "labels" (most frequent first, at most MAX_LABELS_SHOWN), "labels_not_shown",
     "not_span_tags", "span_types", "spans", "scheme" {"candidates", "ambiguous", "checked_as",
     "note"}, "ill_formed" (None when no scheme applies) and "inconsistent_labelling"; later
@@ -145,7 +214,7 @@ def check_files(
     comparisons: list[dict[str, Any]] = []
     train: _FileScan | None = None
     for index, path in enumerate(paths):
-        scan, report = _check_one(_Source(path, fmt), fmt, max_examples, train)
+        scan, report = _check_one(_Source(path, fmt), fmt, max_examples, train, lexicons)
         files.append(report)
         if index == 0:
             train = scan
@@ -166,9 +235,14 @@ def check_files(
 
 
 def _check_one(
-    source: _Source, fmt: ColumnFormat, limit: int, train: _FileScan | None
+    source: _Source,
+    fmt: ColumnFormat,
+    limit: int,
+    train: _FileScan | None,
+    lexicons: Sequence[Lexicon] = (),
 ) -> tuple[_FileScan, dict[str, Any]]:
     scan = _FileScan(name=str(source.path), limit=limit)
+    scan.coverage = [_Coverage(lexicon) for lexicon in lexicons]
     # First pass: counts, hashes and the scheme. detect_scheme pulls the label sequences through
     # _first_pass, which does the rest of the counting on the way.
     labelled = _first_pass(source, scan, train)
@@ -234,8 +308,22 @@ def _check_one(
         "longest_sentence": {"tokens": scan.longest[0], "line": scan.longest[1]},
         "repeated_sentences": scan.repeated,
         "invisible_characters": scan.invisible.as_dict(),
+        "extra_columns": [
+            {
+                "column": column,
+                "distinct": len(counts),
+                "most_frequent": [
+                    {"value": value, "count": count}
+                    for value, count in sorted(counts.items(), key=lambda kv: (-kv[1], kv[0]))[
+                        :SHOWN_VALUES
+                    ]
+                ],
+            }
+            for column, counts in sorted(scan.values.items())
+        ],
     }
     if fmt.has_labels:
+        report["lexicon_coverage"] = [coverage.as_dict() for coverage in scan.coverage]
         shown = scan.labels.most_common(MAX_LABELS_SHOWN)
         report.update(
             {
@@ -260,8 +348,15 @@ def _first_pass(
 ) -> Iterator[Sequence[str]]:
     """Reads the file once, counting into `scan`; yields each sentence's labels if all are tags."""
     has_labels = source.fmt.has_labels
+    extra: list[int] | None = None
     for sentence in source.sentences():
         tokens = sentence.tokens
+        if extra is None and sentence.rows:  # every line of a file has the same columns
+            used = (sentence.token_column, sentence.label_column)
+            extra = [c for c in range(len(sentence.rows[0])) if c not in used]
+            scan.values = {c: Counter() for c in extra}
+        for column in extra or ():
+            scan.values[column].update(row[column] for row in sentence.rows)
         first_line = sentence.line_numbers[0]
         length = len(tokens)
         scan.sentences += 1
@@ -311,8 +406,11 @@ def _first_pass(
             scan.not_tags.add(lambda label=labels[bad], line=line: {"line": line, "label": label})
             continue
         scan.tag_sentences += 1
-        for type_, _, _ in spans_lenient(labels):
+        spans = spans_lenient(labels)
+        for type_, _, _ in spans:
             scan.spans[type_] += 1
+        for coverage in scan.coverage:
+            coverage.add(tokens, spans)
         yield labels
 
 
@@ -475,6 +573,16 @@ def _format_file(entry: dict[str, Any]) -> list[str]:
         )
     if "scheme" in entry:
         out += _format_labels(entry)
+    for column in entry["extra_columns"]:
+        shown = ", ".join(f"{v['value']}={v['count']:,}" for v in column["most_frequent"])
+        more = column["distinct"] - len(column["most_frequent"])
+        out += _row(
+            f"column {column['column']}",
+            f"{_count(column['distinct'], 'distinct value')}: {shown}"
+            + (f", and {more:,} more" if more > 0 else ""),
+        )
+    for coverage in entry.get("lexicon_coverage", []):
+        out += _format_coverage(coverage)
     found = entry["invisible_characters"]
     if found["count"]:
         out += _row(
@@ -529,6 +637,30 @@ def _format_labels(entry: dict[str, Any]) -> list[str]:
             f"{_count(found['count'], 'token sequence')} labelled in more than one way:",
         )
         out += _examples(found, _describe_conflict)
+    return out
+
+
+def _share(part: int, whole: int) -> str:
+    return f"{100 * part / whole:.1f}%" if whole else "-"
+
+
+def _format_coverage(coverage: dict[str, Any]) -> list[str]:
+    spans, entries, matches = coverage["spans"], coverage["entries"], coverage["matches"]
+    text = (
+        f"{coverage['lexicon']} ({entries:,} {'entry' if entries == 1 else 'entries'}) covers "
+        f"{coverage['exact']:,} of {_count(spans, 'gold span')} exactly "
+        f"({_share(coverage['exact'], spans)}; {coverage['exact_same_type']:,} with the same "
+        f"type), {coverage['partial']:,} in part, {coverage['none']:,} not at all; "
+        f"{coverage['matches_outside_spans']:,} of its {matches:,} "
+        f"{'match' if matches == 1 else 'matches'} lie outside every gold span"
+    )
+    out = _row("lexicon", text)
+    by_type = "; ".join(
+        f"{kind} {t['exact']:,} of {t['spans']:,} exactly, {t['partial']:,} in part"
+        for kind, t in coverage["per_type"].items()
+    )
+    if by_type:
+        out += _row("", f"by type: {by_type}")
     return out
 
 

@@ -10,7 +10,11 @@ input, as text):
     jsonl    one JSON object per line with a "text" string and optionally an "id"; every other
              key is carried through to jsonl output untouched; blank lines are ignored
     columns  a pre-tokenised column file (`tagger.corpus`); each sentence is one document whose
-             text is its tokens joined by single spaces; all its columns are kept
+             text is its tokens joined by single spaces; all its columns are kept, and a model
+             trained with extra feature columns (model.feature_columns) reads them from it
+
+A model that reads extra columns tags column files only: text and jsonl inputs are refused up
+front with `FeatureInputError` (the columns it learnt from are not there to read).
 
 Output formats:
 
@@ -452,6 +456,11 @@ class _Engine:
     def analyse(self, doc: Document) -> _Analysed | Skipped:
         limit = self.settings.max_sentence_tokens
         if doc.sentence is not None:
+            spec = self.tagger.features
+            if spec is not None and doc.sentence.rows:
+                problem = spec.missing_columns(doc.sentence.rows[0])
+                if problem:
+                    return Skipped(doc.source, doc.line, problem)
             tokens = doc.sentence.tokens
             if len(tokens) > limit:
                 return Skipped(
@@ -487,8 +496,18 @@ class _Engine:
     def tag(self, items: Sequence[Item]) -> list[TaggedDocument | Skipped]:
         """Tag the documents of one chunk together (batched by length across documents)."""
         prepared = [item if isinstance(item, Skipped) else self.analyse(item) for item in items]
-        token_lists = [t for a in prepared if isinstance(a, _Analysed) for t in a.tokens]
-        scored = iter(self.tagger.predict_scored_spans(token_lists, self.options.batch_size))
+        analysed = [a for a in prepared if isinstance(a, _Analysed)]
+        token_lists = [t for a in analysed for t in a.tokens]
+        rows = None
+        if self.tagger.needs_columns:
+            # Column documents are one sentence each; anything else has no columns to give.
+            for a in analysed:
+                if a.doc.sentence is None:
+                    raise self.tagger.features.refusal(a.doc.source)  # type: ignore[union-attr]
+            rows = [a.doc.sentence.rows for a in analysed]  # type: ignore[union-attr]
+        scored = iter(
+            self.tagger.predict_scored_spans(token_lists, self.options.batch_size, rows=rows)
+        )
         results: list[TaggedDocument | Skipped] = []
         for entry in prepared:
             if isinstance(entry, Skipped):
@@ -632,6 +651,16 @@ def tag_files(
 
     started = time.monotonic()
     tagger = load_trained(model)  # also checks the model file before any worker starts
+    if tagger.features is not None and tagger.needs_columns:
+        for path in inputs or [STDIO]:
+            kind = (
+                detect_input_format(path)
+                if options.input_format == "auto"
+                else options.input_format
+            )
+            if kind != "columns":
+                name = "<stdin>" if str(path) == STDIO else str(path)
+                raise tagger.features.refusal(f"{name} ({kind} input)")
     engine = _Engine(tagger, options)
     summary = TagSummary()
     items = read_documents(inputs, options.input_format, options.token_column, summary.notes)
@@ -696,8 +725,11 @@ class DocumentTagger:
     def tag(self, texts: Iterable[str], min_score: float = 0.0) -> list[list[TaggedSpan]]:
         """Spans per text, in order; texts are tagged in chunks as the command does.
 
-        Raises DataError for a text holding a sentence longer than max_sentence_tokens.
+        Raises DataError for a text holding a sentence longer than max_sentence_tokens, and
+        FeatureInputError for a model that reads extra input columns (raw text has none).
         """
+        if self.tagger.features is not None and self.tagger.needs_columns:
+            raise self.tagger.features.refusal("raw text")
         docs = (Document(i, text, f"text {i}", 1) for i, text in enumerate(texts))
         found: list[list[TaggedSpan]] = []
         for chunk in _chunks(docs, self.options.chunk_chars, stop_at_skip=False):

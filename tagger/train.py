@@ -32,6 +32,7 @@ from tagger.batching import bucketed_batches, collate, encode_sentence
 from tagger.config import Config
 from tagger.corpus import ColumnFormat, Sentence, read_sentences
 from tagger.errors import ConfigError, DataError, ModelFileError
+from tagger.features import build_features, check_columns
 from tagger.metrics import count_spans, summarise
 from tagger.modelfile import load_model_file, save_model_file
 from tagger.predict import TrainedTagger, build_net
@@ -123,7 +124,8 @@ def prepare_data(config: Config) -> PreparedData:
         notes.append(f"input scheme read as {input_scheme}: {guess.note}")
     train_spans = [tags_to_spans(s.labels, input_scheme) for s in train]
     dev_spans = [tags_to_spans(s.labels, input_scheme) for s in dev]
-    paths = [data.train] + ([data.dev] if data.dev else [])
+    # Lexicons are training data too: a changed list must not resume an old checkpoint.
+    paths = [data.train] + ([data.dev] if data.dev else []) + list(config.model.lexicons)
     return PreparedData(
         train, dev, input_scheme, train_spans, dev_spans, _fingerprint(paths), notes
     )
@@ -193,7 +195,8 @@ def _optimizer_from_file(tensors: dict[str, torch.Tensor], saved: dict) -> dict:
 def evaluate_spans(
     tagger: TrainedTagger, sentences: Sequence[Sentence], gold: Sequence[list[Span]]
 ) -> dict:
-    predicted = tagger.predict_spans([s.tokens for s in sentences])
+    rows = [s.rows for s in sentences] if tagger.needs_columns else None
+    predicted = tagger.predict_spans([s.tokens for s in sentences], rows=rows)
     counts = count_spans(gold, predicted)
     return summarise(counts)
 
@@ -252,8 +255,17 @@ def train(
         config.model.min_word_count,
         extra_words=vectors[0] if vectors else (),
     )
+    settings = TokenizerSettings()
+    features, value_counts = build_features(config.model, data.train, config.data.train, settings)
+    if features is not None:
+        check_columns(features, data.dev, config.data.dev or config.data.train)
     encoded = [
-        encode_sentence(s.tokens, vocabs, spans_to_tags(spans, len(s.tokens), internal))
+        encode_sentence(
+            s.tokens,
+            vocabs,
+            spans_to_tags(spans, len(s.tokens), internal),
+            features.encode(s.tokens, s.rows) if features is not None else None,
+        )
         for s, spans in zip(data.train, data.train_spans, strict=True)
     ]
     lengths = [len(e.words) for e in encoded]
@@ -261,8 +273,16 @@ def train(
     for word, count in word_counts.items():
         if count == 1 and word in vocabs.words:
             singletons[vocabs.words.index(word)] = True
+    # Feature-column values seen once are read as unknown now and then too, so that the unknown
+    # value's embedding learns something before it meets new values at tagging time.
+    value_singletons = [
+        (slot, torch.tensor([counts.get(v, 0) == 1 for v in column.values.itos]))
+        for slot, (column, counts) in enumerate(
+            zip(features.columns if features else [], value_counts, strict=True)
+        )
+    ]
 
-    net = build_net(config, vocabs)
+    net = build_net(config, vocabs, features)
     if vectors:
         found = _initialise_embeddings(net, vocabs, *vectors)
         report(
@@ -272,7 +292,7 @@ def train(
             }
         )
     optimizer = _optimizer(config, net)
-    tagger = TrainedTagger(net, vocabs, config, data.input_scheme)
+    tagger = TrainedTagger(net, vocabs, config, data.input_scheme, features=features)
     meta_common = {
         "training_data": {
             "fingerprint": data.fingerprint,
@@ -282,7 +302,7 @@ def train(
         },
         "types": types,
         # How tagging will cut raw text into tokens; stored so that tagging matches training.
-        "tokenizer": TokenizerSettings().to_dict(),
+        "tokenizer": settings.to_dict(),
     }
 
     history: list[dict[str, Any]] = []
@@ -342,7 +362,13 @@ def train(
             if config.train.unknown_replace > 0:
                 drop = singletons[words] & (torch.rand(words.shape) < config.train.unknown_replace)
                 words = words.masked_fill(drop, 1)
-            emissions = net.emissions(words, batch.chars, batch.lengths)
+            feature_ids = batch.features
+            if feature_ids is not None and value_singletons and config.train.unknown_replace > 0:
+                for slot, single in value_singletons:
+                    ids = feature_ids[:, :, slot]  # (B, T), a view: collate made a fresh tensor
+                    rare = single[ids] & (torch.rand(ids.shape) < config.train.unknown_replace)
+                    ids.masked_fill_(rare, 1)
+            emissions = net.emissions(words, batch.chars, batch.lengths, features=feature_ids)
             loss = net.loss(emissions, batch.labels, batch.mask)
             if not math.isfinite(loss.item()):
                 diverged = True

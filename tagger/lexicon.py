@@ -1,0 +1,240 @@
+"""Domain lexicons: lists of known names, matched against tokenised sentences.
+
+This module owns the lexicon file format, the matcher, and the per-token match tags the model
+reads. No torch here: `tagger check` uses the same matcher to measure coverage.
+
+A lexicon file is UTF-8 text with one entry per line, optionally followed by a TAB and a type:
+
+    pitch bearing<TAB>COMPONENT
+    oil leak<TAB>DEFECT
+    anemometer
+
+Blank lines and lines whose first character is "#" are skipped. An entry is cut into tokens by
+`tagger.text.tokenize` (the tokeniser tagging uses), so "gbx oil-filter" matches the tokens the
+tagger sees. The same entry may be listed with several types; it then marks each of them.
+
+Each (lexicon, type) pair is a *category*; an entry without a type belongs to the category named
+after the lexicon alone. Matching, per lexicon and sentence:
+
+1. every occurrence of every entry is found by a hashed n-gram lookup: a table keyed by an
+   entry's first token gives the entry lengths to try at a position, and a set of token tuples
+   says which of those are entries (no scan over the entries);
+2. occurrences are chosen longest first (ties: leftmost first), each skipped when it overlaps
+   one already chosen, so a token belongs to at most one match of a lexicon;
+3. each chosen match marks its tokens with BIOES tags in the category of each of its types.
+
+Case handling (`case`): "exact" compares tokens as written; "ignore" compares them case-folded;
+"smart" lets an all-lower-case entry match any casing ("gearbox" matches "GEARBOX") while an entry
+holding a capital must match exactly ("UPS" does not match "ups").
+"""
+
+from __future__ import annotations
+
+from collections.abc import Iterable, Sequence
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Any
+
+from tagger.errors import ConfigError, DataError
+from tagger.text import TokenizerSettings, tokenize
+
+CASE_MODES = ("ignore", "exact", "smart")
+
+# Tag ids of a category, as the model reads them: 0 is padding, 1 "no match".
+PAD_ID, NO_MATCH, BEGIN, INSIDE, END, SINGLE = 0, 1, 2, 3, 4, 5
+TAG_IDS = 6  # how many ids a category uses
+
+Match = tuple[int, int, tuple[str, ...]]  # (start, end exclusive, types), token indices
+
+
+@dataclass
+class _Index:
+    """Entries under one key function: token tuples -> type ids; first token -> lengths to try."""
+
+    entries: dict[tuple[str, ...], tuple[int, ...]]
+    lengths: dict[str, tuple[int, ...]]  # longest first
+
+    @classmethod
+    def build(cls, items: Iterable[tuple[tuple[str, ...], int]]) -> _Index:
+        entries: dict[tuple[str, ...], list[int]] = {}
+        for key, type_id in items:
+            ids = entries.setdefault(key, [])
+            if type_id not in ids:
+                ids.append(type_id)
+        lengths: dict[str, set[int]] = {}
+        for key in entries:
+            lengths.setdefault(key[0], set()).add(len(key))
+        return cls(
+            {k: tuple(sorted(v)) for k, v in entries.items()},
+            {k: tuple(sorted(v, reverse=True)) for k, v in lengths.items()},
+        )
+
+    def find(self, keys: Sequence[str], out: dict[tuple[int, int], set[int]]) -> None:
+        """Add every occurrence in `keys` to `out`: (start, end) -> type ids."""
+        entries, lengths = self.entries, self.lengths
+        n = len(keys)
+        for start, key in enumerate(keys):
+            tries = lengths.get(key)
+            if tries is None:
+                continue
+            for length in tries:
+                end = start + length
+                if end > n:
+                    continue
+                found = entries.get(tuple(keys[start:end]))
+                if found is not None:
+                    out.setdefault((start, end), set()).update(found)
+
+
+class Lexicon:
+    """One lexicon: its entries (as token tuples with a type each) and a matcher over them."""
+
+    def __init__(
+        self,
+        name: str,
+        entries: Iterable[tuple[Sequence[str], str]],
+        case: str = "ignore",
+    ) -> None:
+        if case not in CASE_MODES:
+            raise ConfigError(f"lexicon case must be one of {', '.join(CASE_MODES)}; got {case!r}")
+        if not name:
+            raise ConfigError("a lexicon needs a name")
+        self.name = name
+        self.case = case
+        seen: set[tuple[tuple[str, ...], str]] = set()
+        self.entries: list[tuple[tuple[str, ...], str]] = []
+        for tokens, type_ in entries:
+            item = (tuple(tokens), type_)
+            if not item[0]:
+                raise ValueError("a lexicon entry needs at least one token")
+            if item not in seen:
+                seen.add(item)
+                self.entries.append(item)
+        self.types: tuple[str, ...] = tuple(sorted({t for _, t in self.entries}))
+        self._type_id = type_id = {t: i for i, t in enumerate(self.types)}
+        exact: list[tuple[tuple[str, ...], int]] = []
+        folded: list[tuple[tuple[str, ...], int]] = []
+        for tokens, type_ in self.entries:
+            as_written = case == "exact" or (case == "smart" and _has_upper(tokens))
+            if as_written:
+                exact.append((tokens, type_id[type_]))
+            else:
+                folded.append((tuple(t.casefold() for t in tokens), type_id[type_]))
+        self._exact = _Index.build(exact) if exact else None
+        self._folded = _Index.build(folded) if folded else None
+
+    def __len__(self) -> int:
+        return len(self.entries)
+
+    @property
+    def categories(self) -> list[str]:
+        """One name per type: "NAME/TYPE", or "NAME" for entries without a type."""
+        return [f"{self.name}/{t}" if t else self.name for t in self.types]
+
+    def find(self, tokens: Sequence[str]) -> list[Match]:
+        """Every occurrence of every entry in a sentence, overlapping ones included, in order."""
+        found: dict[tuple[int, int], set[int]] = {}
+        if self._exact is not None:
+            self._exact.find(tokens, found)
+        if self._folded is not None:
+            self._folded.find([t.casefold() for t in tokens], found)
+        types = self.types
+        return [
+            (start, end, tuple(types[i] for i in sorted(ids)))
+            for (start, end), ids in sorted(found.items())
+        ]
+
+    def match(self, tokens: Sequence[str]) -> list[Match]:
+        """The matches chosen longest first (ties: leftmost), none overlapping, in sentence order."""
+        occurrences = self.find(tokens)
+        occurrences.sort(key=lambda m: (m[0] - m[1], m[0]))  # longest first, then leftmost
+        taken = [False] * len(tokens)
+        chosen: list[Match] = []
+        for start, end, types in occurrences:
+            if any(taken[start:end]):
+                continue
+            taken[start:end] = [True] * (end - start)
+            chosen.append((start, end, types))
+        chosen.sort()
+        return chosen
+
+    def tags(self, tokens: Sequence[str]) -> list[list[int]]:
+        """Per category (in `categories` order), one BIOES tag id per token."""
+        out = [[NO_MATCH] * len(tokens) for _ in self.types]
+        if not tokens:
+            return out
+        index = self._type_id
+        for start, end, types in self.match(tokens):
+            for type_ in types:
+                row = out[index[type_]]
+                if end - start == 1:
+                    row[start] = SINGLE
+                else:
+                    row[start] = BEGIN
+                    row[start + 1 : end - 1] = [INSIDE] * (end - start - 2)
+                    row[end - 1] = END
+        return out
+
+    def to_dict(self) -> dict[str, Any]:
+        """JSON-ready: the entries as token lists, so that matching never depends on re-tokenising."""
+        return {
+            "name": self.name,
+            "case": self.case,
+            "types": list(self.types),
+            "entries": [[list(tokens), self._type_id[t]] for tokens, t in self.entries],
+        }
+
+    @classmethod
+    def from_dict(cls, data: dict[str, Any]) -> Lexicon:
+        types = data["types"]
+        return cls(data["name"], ((e[0], types[e[1]]) for e in data["entries"]), data["case"])
+
+
+def _has_upper(tokens: Sequence[str]) -> bool:
+    return any(ch.isupper() for token in tokens for ch in token)
+
+
+def read_lexicon(
+    path: str | Path,
+    case: str = "ignore",
+    settings: TokenizerSettings = TokenizerSettings(),
+    name: str | None = None,
+) -> Lexicon:
+    """Read a lexicon file (see the module docstring); `name` defaults to the file's stem.
+
+    Raises DataError with file and line for a line that is not `entry` or `entry<TAB>type`.
+    """
+    path = Path(path)
+    try:
+        raw = path.read_bytes()
+    except OSError as error:
+        raise DataError(f"cannot read the lexicon: {error.strerror}", str(path)) from None
+    if raw.startswith(b"\xef\xbb\xbf"):
+        raw = raw[3:]
+    entries: list[tuple[list[str], str]] = []
+    for number, line in enumerate(raw.split(b"\n"), start=1):
+        try:
+            text = line.decode("utf-8").rstrip("\r")
+        except UnicodeDecodeError as error:
+            raise DataError(
+                f"bytes {line[error.start : error.end]!r} are not valid UTF-8", str(path), number
+            ) from None
+        if not text.strip() or text.startswith("#"):
+            continue
+        fields = text.split("\t")
+        if len(fields) > 2:
+            raise DataError(
+                f"expected 'entry' or 'entry<TAB>type', found {len(fields)} TAB-separated fields",
+                str(path),
+                number,
+            )
+        type_ = fields[1].strip() if len(fields) == 2 else ""
+        if len(fields) == 2 and not type_:
+            raise DataError("empty type after the TAB", str(path), number)
+        tokens = [t.text for t in tokenize(fields[0], settings)]
+        if not tokens:
+            raise DataError(f"the entry {fields[0]!r} holds no token", str(path), number)
+        entries.append((tokens, type_))
+    if not entries:
+        raise DataError("the lexicon holds no entries", str(path))
+    return Lexicon(name or path.stem, entries, case)
