@@ -19,6 +19,11 @@ tagger is scored on names it has never seen, most of them built from pieces it h
 
 Everything comes from one ``random.Random(seed)``: the same seed gives the same files, byte for
 byte.  Run ``python scripts/make_demo_data.py`` (options ``--seed`` and ``--out``).
+
+Beside the splits the script writes ``lexicon.tsv``, an invented parts-and-defects catalogue
+(``name<TAB>COMPONENT`` or ``name<TAB>DEFECT``): the plain names the generator draws from, the
+withheld ones included (so some occur only in dev and test), without the crews' shorthand, typos
+or case changes, and with a seeded share left out, as a real catalogue is never complete.
 """
 
 from __future__ import annotations
@@ -42,6 +47,12 @@ HELDOUT_SITE_DRAW = 0.4
 # Share of modifier + head pairs (per modifier) and of whole names withheld from train.
 HELDOUT_FRACTION = 0.22
 HELDOUT_SITES = 7
+# Share of catalogue names left out of the demo lexicon (drawn from a stream of its own).
+LEXICON_DROP = 0.15
+LEXICON_HEADER = (
+    "# Invented catalogue of turbine components and defects for the demo corpus.\n"
+    "# Written by scripts/make_demo_data.py; one name per line: name<TAB>type.\n"
+)
 
 Segment = tuple[str, str | None]  # (text, entity type or None for outside)
 Sentence = list[tuple[str, str]]  # [(token, IOB2 label)]
@@ -899,6 +910,39 @@ def summary(corpus: dict[str, list[Sentence]]) -> str:
     return "\n".join(lines)
 
 
+def demo_lexicon(seed: int = DEFAULT_SEED) -> tuple[list[tuple[str, str]], set[str]]:
+    """The catalogue's (name, type) entries, sorted, and the names of those withheld from train.
+
+    A fresh Generator built from the same seed holds the same name pools `generate_corpus` draws
+    from; the corpus files do not change. Which names are left out comes from its own stream.
+    """
+    gen = Generator(random.Random(seed))
+    held: set[str] = set()
+    entries: set[tuple[str, str]] = set()
+    pools: list[tuple[list[str], str, bool]] = [
+        ([f"{m} {h}" for m, h in gen.components], "COMPONENT", False),
+        ([f"{m} {h}" for m, h in gen.heldout_components], "COMPONENT", True),
+        (gen.single_components.names, "COMPONENT", False),
+        (gen.heldout_single_components.names, "COMPONENT", True),
+        ([f"{m} {h}" for m, h, _ in gen.defects], "DEFECT", False),
+        ([f"{m} {h}" for m, h, _ in gen.heldout_defects], "DEFECT", True),
+        (gen.single_defects.names, "DEFECT", False),
+        (gen.heldout_single_defects.names, "DEFECT", True),
+    ]
+    for names, kind, withheld in pools:
+        for name in names:
+            entries.add((name, kind))
+            if withheld:
+                held.add(name)
+    rng = random.Random(seed + 1)
+    kept = [e for e in sorted(entries, key=lambda e: (e[1], e[0])) if rng.random() >= LEXICON_DROP]
+    return kept, held
+
+
+def format_lexicon(entries: Sequence[tuple[str, str]]) -> str:
+    return LEXICON_HEADER + "".join(f"{name}\t{kind}\n" for name, kind in entries)
+
+
 def write_corpus(corpus: dict[str, list[Sentence]], out: Path) -> None:
     out.mkdir(parents=True, exist_ok=True)
     for split, sentences in corpus.items():
@@ -913,7 +957,16 @@ def main(argv: Sequence[str] | None = None) -> int:
     args = parser.parse_args(argv)
     corpus = generate_corpus(args.seed)
     write_corpus(corpus, args.out)
+    entries, held = demo_lexicon(args.seed)
+    with open(args.out / "lexicon.tsv", "w", encoding="utf-8", newline="\n") as f:
+        f.write(format_lexicon(entries))
     print(summary(corpus))
+    kinds = {kind: sum(k == kind for _, k in entries) for kind in ("COMPONENT", "DEFECT")}
+    print(
+        f"\nlexicon.tsv: {len(entries)} names ({kinds['COMPONENT']} COMPONENT, "
+        f"{kinds['DEFECT']} DEFECT), {sum(name in held for name, _ in entries)} of them "
+        "withheld from train"
+    )
     return 0
 
 
