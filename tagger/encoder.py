@@ -25,6 +25,34 @@ from tagger.cells import (
 )
 
 
+class SharedDropout(nn.Module):
+    """Dropout with one mask per sentence and feature, shared by every time step.
+
+    This is the recurrent-network dropout of Gal & Ghahramani (2016). It also draws T times fewer
+    random numbers than element-wise dropout, whose Bernoulli draws cost as much as a whole
+    recurrent layer's forward pass on a CPU.
+    """
+
+    def __init__(self, p: float) -> None:
+        super().__init__()
+        if not 0.0 <= p < 1.0:
+            raise ValueError(f"dropout must lie in [0, 1), got {p}")
+        self.p = p
+
+    def forward(self, x: Tensor) -> Tensor:
+        """(batch, time, features) -> same shape."""
+        if not self.training or self.p == 0.0:
+            return x
+        keep = 1.0 - self.p
+        mask = (
+            x.new_empty(x.shape[0], 1, x.shape[2]).bernoulli_(keep).div_(keep)
+        )  # (batch, 1, features)
+        return x * mask
+
+    def extra_repr(self) -> str:
+        return f"p={self.p}"
+
+
 class ResidualStack(nn.Module):
     """One direction: `layers` cells of width hidden -> hidden, each adding to its input."""
 
@@ -34,11 +62,9 @@ class ResidualStack(nn.Module):
         super().__init__()
         if layers < 1:
             raise ValueError(f"layers must be a positive integer, got {layers}")
-        if not 0.0 <= dropout < 1.0:
-            raise ValueError(f"dropout must lie in [0, 1), got {dropout}")
         self.hidden_size = hidden_size
         self.cells = nn.ModuleList(make_cell(cell, hidden_size, hidden_size) for _ in range(layers))
-        self.dropout = nn.Dropout(dropout)
+        self.dropout = SharedDropout(dropout)
         # torch has no fused minimal gated cell: it always takes the generic loop.
         self.fast = fast and self.cells[0].has_fused
 
