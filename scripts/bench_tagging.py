@@ -21,10 +21,8 @@ Results go to benchmarks/tagging.json and benchmarks/tagging.md.
 from __future__ import annotations
 
 import argparse
-import datetime as dt
 import json
 import os
-import platform
 import random
 import re
 import subprocess
@@ -32,12 +30,14 @@ import sys
 import tempfile
 import time
 from pathlib import Path
-from statistics import median
 
 import torch
 
 ROOT = Path(__file__).resolve().parents[1]
 sys.path.insert(0, str(ROOT))
+sys.path.insert(0, str(ROOT / "scripts"))
+
+from benchlib import machine, matmul_gflops  # noqa: E402
 
 from tagger.corpus import read_sentences  # noqa: E402
 from tagger.predict import load_trained  # noqa: E402
@@ -53,30 +53,6 @@ _NO_SPACE_AFTER = re.compile(r"([(]) ")
 _SUMMARY = re.compile(
     r"tagged ([\d,]+) documents?.*?([\d,]+) sentences?, ([\d,]+) tokens?.*?([\d,]+) tokens/s"
 )
-
-
-def machine() -> dict:
-    cpu = "unknown"
-    try:
-        for line in Path("/proc/cpuinfo").read_text().splitlines():
-            if line.startswith("model name"):
-                cpu = line.split(":", 1)[1].strip()
-                break
-    except OSError:
-        pass
-    commit = subprocess.run(
-        ["git", "rev-parse", "--short", "HEAD"], capture_output=True, text=True, cwd=ROOT
-    ).stdout.strip()
-    return {
-        "date": dt.datetime.now(dt.UTC).strftime("%Y-%m-%d %H:%M UTC"),
-        "cores": os.cpu_count(),
-        "cpu": cpu,
-        "torch": torch.__version__,
-        "python": platform.python_version(),
-        "default_threads": torch.get_num_threads(),
-        "commit": commit,
-        "load_before": os.getloadavg()[0],
-    }
 
 
 def demo_data(folder: Path | None) -> Path:
@@ -196,19 +172,6 @@ def reference(model: Path, source: Path, threads: int, limit_sentences: int) -> 
     }
 
 
-def matmul_rate(threads: int, repeats: int = 7) -> float:
-    """GFLOP/s of a 1024^3 float32 matrix product (median of several after a warm-up)."""
-    torch.set_num_threads(threads)
-    a, b = torch.randn(1024, 1024), torch.randn(1024, 1024)
-    a @ b
-    times = []
-    for _ in range(repeats):
-        started = time.perf_counter()
-        a @ b
-        times.append(time.perf_counter() - started)
-    return 2 * 1024**3 / median(times) / 1e9
-
-
 def render(entry: dict) -> str:
     m, runs, ref = entry["machine"], entry["runs"], entry["reference"]
     lines = [
@@ -295,7 +258,7 @@ def main() -> int:
     speed_input = folder / "speed.jsonl"
     documents = write_documents(sentences, speed_input, int(args.speed_mb * 1e6))
 
-    rates = {str(t): matmul_rate(t) for t in (1, 2)}
+    rates = {str(t): matmul_gflops(t) for t in (1, 2)}
     ceiling = {t: round(rate * 1e9 / flops) for t, rate in rates.items()}
     refs = [reference(model_path, speed_input, t, args.reference_sentences) for t in (1, 2)]
     best_reference = max(r["tokens_per_second"] for r in refs)

@@ -12,12 +12,8 @@ Speed figures are ratios measured side by side in one run: absolute numbers on s
 from __future__ import annotations
 
 import argparse
-import datetime as dt
 import json
-import os
-import platform
 import random
-import subprocess
 import sys
 import time
 from pathlib import Path
@@ -27,6 +23,9 @@ import torch
 
 ROOT = Path(__file__).resolve().parents[1]
 sys.path.insert(0, str(ROOT))
+sys.path.insert(0, str(ROOT / "scripts"))
+
+from benchlib import machine, matmul_gflops  # noqa: E402
 
 from tagger.batching import bucketed_batches, collate, encode_sentence  # noqa: E402
 from tagger.config import apply_overrides, load_config  # noqa: E402
@@ -39,43 +38,6 @@ from tagger.vocab import build_vocabularies  # noqa: E402
 RESULTS = ROOT / "benchmarks" / "training.json"
 SUMMARY = ROOT / "benchmarks" / "training.md"
 CORPORA = ROOT.parent / "shared" / "corpora"
-
-
-def machine() -> dict:
-    cpu = "unknown"
-    try:
-        for line in Path("/proc/cpuinfo").read_text().splitlines():
-            if line.startswith("model name"):
-                cpu = line.split(":", 1)[1].strip()
-                break
-    except OSError:
-        pass
-    commit = subprocess.run(
-        ["git", "rev-parse", "--short", "HEAD"], capture_output=True, text=True, cwd=ROOT
-    ).stdout.strip()
-    return {
-        "date": dt.datetime.now(dt.UTC).strftime("%Y-%m-%d %H:%M UTC"),
-        "cores": os.cpu_count(),
-        "cpu": cpu,
-        "torch": torch.__version__,
-        "python": platform.python_version(),
-        "threads": torch.get_num_threads(),
-        "commit": commit,
-        "command": " ".join([Path(sys.argv[0]).name, *sys.argv[1:]]),
-    }
-
-
-def matmul_gflops(size: int = 1024, repeats: int = 10) -> float:
-    """The machine's matrix-product rate: the ceiling every efficiency figure is measured against."""
-    a, b = torch.randn(size, size), torch.randn(size, size)
-    for _ in range(3):
-        a @ b
-    times = []
-    for _ in range(repeats):
-        start = time.perf_counter()
-        a @ b
-        times.append(time.perf_counter() - start)
-    return 2 * size**3 / median(times) / 1e9
 
 
 def training_speed(overrides: list[str], seconds: float = 20.0) -> dict:
@@ -132,13 +94,13 @@ def run_speed(args: argparse.Namespace) -> dict:
     rows = []
     for threads in args.threads:
         torch.set_num_threads(threads)
-        ceiling_before = matmul_gflops()
+        ceiling_before = matmul_gflops(threads)
         variants = [[]] + [[f"model.cell={c!r}"] for c in ("rnn", "minimal", "gru")]
         variants += [["model.fast_kernels=false"]]
         for overrides in variants:
             result = training_speed(overrides, args.seconds)
             rows.append({"threads": threads, **result})
-        ceiling_after = matmul_gflops()
+        ceiling_after = matmul_gflops(threads)
         ceiling = (ceiling_before + ceiling_after) / 2
         for row in rows:
             if row["threads"] == threads:
@@ -186,6 +148,7 @@ def run_accuracy(
         "overrides": overrides,
         "test_file": str(test_file),
         "runs": runs,
+        "threads": torch.get_num_threads(),
         "test_f1_median": median(f1s),
         "test_f1_min": f1s[0],
         "test_f1_max": f1s[-1],
@@ -245,7 +208,7 @@ def render(results: dict) -> str:
             f"## {title}",
             "",
             f"{m['date']}, commit {m['commit']}, {m['cores']} cores, torch {m['torch']}, "
-            f"{m['threads']} threads; `{m['command']}`",
+            f"{acc.get('threads', m.get('threads'))} threads; `{m['command']}`",
             "",
             f"Test span F1: median {acc['test_f1_median']} (min {acc['test_f1_min']}, max "
             f"{acc['test_f1_max']}) over {len(acc['runs'])} seed(s).",

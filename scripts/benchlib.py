@@ -1,0 +1,58 @@
+"""What every benchmark script records: the machine it ran on, and the matrix-product ceiling."""
+
+from __future__ import annotations
+
+import datetime as dt
+import os
+import platform
+import subprocess
+import sys
+import time
+from pathlib import Path
+from statistics import median
+
+import torch
+
+ROOT = Path(__file__).resolve().parents[1]
+
+
+def machine() -> dict:
+    """Date, cores, CPU model, versions, threads, commit, load and the command that ran."""
+    cpu = "unknown"
+    try:
+        for line in Path("/proc/cpuinfo").read_text().splitlines():
+            if line.startswith("model name"):
+                cpu = line.split(":", 1)[1].strip()
+                break
+    except OSError:
+        pass
+    commit = subprocess.run(
+        ["git", "rev-parse", "--short", "HEAD"], capture_output=True, text=True, cwd=ROOT
+    ).stdout.strip()
+    return {
+        "date": dt.datetime.now(dt.UTC).strftime("%Y-%m-%d %H:%M UTC"),
+        "cores": os.cpu_count(),
+        "cpu": cpu,
+        "torch": torch.__version__,
+        "python": platform.python_version(),
+        "default_threads": torch.get_num_threads(),
+        "commit": commit,
+        "load_before": round(os.getloadavg()[0], 2),
+        "command": " ".join([f"scripts/{Path(sys.argv[0]).name}", *sys.argv[1:]]),
+    }
+
+
+def matmul_gflops(threads: int, size: int = 1024, repeats: int = 7) -> float:
+    """GFLOP/s of a size^3 float32 matrix product (median after a warm-up): the ceiling."""
+    previous = torch.get_num_threads()
+    torch.set_num_threads(threads)
+    a, b = torch.randn(size, size), torch.randn(size, size)
+    for _ in range(2):
+        a @ b
+    times = []
+    for _ in range(repeats):
+        started = time.perf_counter()
+        a @ b
+        times.append(time.perf_counter() - started)
+    torch.set_num_threads(previous)
+    return 2 * size**3 / median(times) / 1e9
