@@ -315,7 +315,7 @@ def main() -> int:
             ),
             ">= 60% of the encoder ceiling": verdict(share >= 0.6, f"best {100 * share:.0f}%"),
             "peak memory independent of input size": verdict(
-                growth < 1.2,
+                growth < 1.1,
                 f"{memory[1]['megabytes']} MB input uses {growth:.2f}x the memory of "
                 f"{memory[0]['megabytes']} MB",
             ),
