@@ -189,7 +189,12 @@ class FeatureSpec:
         slots: list[list[int]] = []
         if self.columns:
             if rows is None:
-                raise self.refusal("this input")
+                columns = self.column_numbers
+                raise FeatureInputError(
+                    f"the model reads input column{'s' if len(columns) > 1 else ''} "
+                    f"{_listed(columns)} as features (model.feature_columns), but the sentences "
+                    "came without their columns (the rows of their column file)"
+                )
             if rows and self.missing_columns(rows[0]):
                 raise DataError(str(self.missing_columns(rows[0])))
             for feature in self.columns:

@@ -1,0 +1,339 @@
+"""Feature benchmark: what the demo lexicon does for names never seen in training, and what it costs.
+
+    .venv/bin/python scripts/bench_features.py                       # about 9 minutes on 2 cores
+    .venv/bin/python scripts/bench_features.py --variants words lexicon shape --minutes 3
+
+Each variant trains configs/default.toml on the demo corpus (data/demo train and dev, one seed,
+train.max_minutes bounded by --minutes) and tags data/demo/test.txt:
+
+    words     the default config: words and characters only
+    lexicon   plus model.lexicons = ["data/demo/lexicon.tsv"], the invented catalogue
+    shape     plus the lexicon and model.word_shape = true
+
+Accuracy: strict span P/R/F1 on the whole test split, and on the spans "unseen in train": recall
+over the gold test spans whose (type, text) never occurs as a gold span in train, precision over
+the predicted spans whose (type, text) never does, and their F1; also for COMPONENT and DEFECT
+alone (the lexicon's types).
+
+Speed, measured side by side in alternating rounds (these machines are shared and noisy):
+training tokens/s of full steps (collate, forward, backward, clipping, Adam) on the demo batches,
+and tagging tokens/s of `predict_scored_spans` (the `tag` command's path: feature ids, lexicon
+matching, character features per distinct token, CRF decoding and marginals) on the test split.
+
+Writes benchmarks/features.json and benchmarks/features.md (date, machine, commit, command).
+"""
+
+from __future__ import annotations
+
+import argparse
+import datetime as dt
+import json
+import os
+import platform
+import random
+import subprocess
+import sys
+import tempfile
+import time
+from pathlib import Path
+from statistics import median
+from typing import Any
+
+import torch
+
+ROOT = Path(__file__).resolve().parents[1]
+sys.path.insert(0, str(ROOT))
+
+from tagger.batching import bucketed_batches, collate, encode_sentence  # noqa: E402
+from tagger.config import Config, apply_overrides, load_config  # noqa: E402
+from tagger.corpus import read_sentences  # noqa: E402
+from tagger.features import build_features  # noqa: E402
+from tagger.metrics import count_spans, summarise  # noqa: E402
+from tagger.predict import TrainedTagger, build_net, load_trained  # noqa: E402
+from tagger.schemes import Span, labels_for_types, spans_to_tags, tags_to_spans  # noqa: E402
+from tagger.train import prepare_data, train  # noqa: E402
+from tagger.vocab import build_vocabularies  # noqa: E402
+
+RESULTS = ROOT / "benchmarks" / "features.json"
+SUMMARY = ROOT / "benchmarks" / "features.md"
+DEMO = ROOT / "data" / "demo"
+LEXICON = "data/demo/lexicon.tsv"
+VARIANTS: dict[str, list[str]] = {
+    "words": [],
+    "lexicon": [f'model.lexicons=["{LEXICON}"]'],
+    "shape": [f'model.lexicons=["{LEXICON}"]', "model.word_shape=true"],
+}
+LEXICON_TYPES = ("COMPONENT", "DEFECT")
+
+
+def machine(threads: int) -> dict[str, Any]:
+    cpu = "unknown"
+    try:
+        for line in Path("/proc/cpuinfo").read_text().splitlines():
+            if line.startswith("model name"):
+                cpu = line.split(":", 1)[1].strip()
+                break
+    except OSError:
+        pass
+    commit = subprocess.run(
+        ["git", "rev-parse", "--short", "HEAD"], capture_output=True, text=True, cwd=ROOT
+    ).stdout.strip()
+    return {
+        "date": dt.datetime.now(dt.UTC).strftime("%Y-%m-%d %H:%M UTC"),
+        "cores": os.cpu_count(),
+        "cpu": cpu,
+        "torch": torch.__version__,
+        "python": platform.python_version(),
+        "threads": threads,
+        "commit": commit,
+        "command": " ".join([Path(sys.argv[0]).name, *sys.argv[1:]]),
+    }
+
+
+def variant_config(name: str, threads: int, minutes: float) -> Config:
+    config = load_config(ROOT / "configs" / "default.toml")
+    return apply_overrides(
+        config,
+        [
+            f'data.train="{DEMO / "train.txt"}"',
+            f'data.dev="{DEMO / "dev.txt"}"',
+            f"train.threads={threads}",
+            f"train.max_minutes={minutes}",
+            *[o.replace(LEXICON, str(ROOT / LEXICON)) for o in VARIANTS[name]],
+        ],
+    )
+
+
+# --- accuracy ------------------------------------------------------------------------------------
+
+
+def span_keys(tokens: list[str], spans: list[Span]) -> list[tuple[str, str]]:
+    return [(kind, " ".join(tokens[a:b])) for kind, a, b in spans]
+
+
+def unseen_scores(
+    token_lists: list[list[str]],
+    gold: list[list[Span]],
+    predicted: list[list[Span]],
+    train_spans: set[tuple[str, str]],
+    types: tuple[str, ...] | None = None,
+) -> dict[str, float | int]:
+    """Recall over gold spans, and precision over predicted spans, whose (type, text) train lacks."""
+    gold_unseen = correct_gold = predicted_unseen = correct_predicted = 0
+    for tokens, g, p in zip(token_lists, gold, predicted, strict=True):
+        g_set, p_set = set(g), set(p)
+        for span, key in zip(g, span_keys(tokens, g), strict=True):
+            if key not in train_spans and (types is None or span[0] in types):
+                gold_unseen += 1
+                correct_gold += span in p_set
+        for span, key in zip(p, span_keys(tokens, p), strict=True):
+            if key not in train_spans and (types is None or span[0] in types):
+                predicted_unseen += 1
+                correct_predicted += span in g_set
+    recall = correct_gold / gold_unseen if gold_unseen else 0.0
+    precision = correct_predicted / predicted_unseen if predicted_unseen else 0.0
+    f1 = 2 * precision * recall / (precision + recall) if precision + recall else 0.0
+    return {
+        "gold_spans": gold_unseen,
+        "found": correct_gold,
+        "predicted_spans": predicted_unseen,
+        "correct": correct_predicted,
+        "precision": round(precision, 4),
+        "recall": round(recall, 4),
+        "f1": round(f1, 4),
+    }
+
+
+def accuracy(tagger: TrainedTagger) -> dict[str, Any]:
+    train_sentences = read_sentences(DEMO / "train.txt")
+    train_spans = {
+        key for s in train_sentences for key in span_keys(s.tokens, tags_to_spans(s.labels, "IOB2"))
+    }
+    test = read_sentences(DEMO / "test.txt")
+    token_lists = [s.tokens for s in test]
+    gold = [tags_to_spans(s.labels, "IOB2") for s in test]
+    predicted = tagger.predict_spans(token_lists, rows=[s.rows for s in test])
+    overall = summarise(count_spans(gold, predicted))["micro"]
+    return {
+        "test": {k: round(overall[k], 4) for k in ("precision", "recall", "f1")},
+        "unseen": unseen_scores(token_lists, gold, predicted, train_spans),
+        "unseen_component_defect": unseen_scores(
+            token_lists, gold, predicted, train_spans, LEXICON_TYPES
+        ),
+    }
+
+
+# --- speed ---------------------------------------------------------------------------------------
+
+
+def training_step(config: Config) -> Any:
+    """A function running one training step on the next demo batch; returns its token count."""
+    data = prepare_data(config)
+    scheme = config.model.scheme
+    types = sorted({s[0] for spans in data.train_spans for s in spans})
+    vocabs, _ = build_vocabularies(
+        (s.tokens for s in data.train),
+        labels_for_types(types, scheme),
+        config.model.lowercase,
+        config.model.digits_to_zero,
+    )
+    features, _ = build_features(config.model, data.train, config.data.train)
+    encoded = [
+        encode_sentence(
+            s.tokens,
+            vocabs,
+            spans_to_tags(spans, len(s.tokens), scheme),
+            features.encode(s.tokens, s.rows) if features is not None else None,
+        )
+        for s, spans in zip(data.train, data.train_spans, strict=True)
+    ]
+    torch.manual_seed(1)
+    net = build_net(config, vocabs, features)
+    net.train()
+    optimizer = torch.optim.Adam(net.parameters(), lr=config.train.learning_rate)
+    order = bucketed_batches(
+        [len(e.words) for e in encoded], config.train.batch_size, random.Random(1)
+    )
+    position = [0]
+
+    def step() -> int:
+        indices = order[position[0] % len(order)]
+        position[0] += 1
+        batch = collate(encoded, indices)
+        emissions = net.emissions(batch.words, batch.chars, batch.lengths, features=batch.features)
+        loss = net.loss(emissions, batch.labels, batch.mask)
+        optimizer.zero_grad(set_to_none=True)
+        (loss / len(indices)).backward()
+        torch.nn.utils.clip_grad_norm_(net.parameters(), config.train.clip_norm)
+        optimizer.step()
+        return batch.tokens
+
+    for _ in range(5):  # warm up
+        step()
+    return step
+
+
+def side_by_side(runs: dict[str, Any], rounds: int, seconds: float) -> dict[str, float]:
+    """Median over alternating rounds of each runner's tokens/s (a runner returns tokens done)."""
+    rates: dict[str, list[float]] = {name: [] for name in runs}
+    for _ in range(rounds):
+        for name, run in runs.items():
+            tokens, start = 0, time.perf_counter()
+            while time.perf_counter() - start < seconds:
+                tokens += run()
+            rates[name].append(tokens / (time.perf_counter() - start))
+    return {name: round(median(values), 1) for name, values in rates.items()}
+
+
+def tagging_run(tagger: TrainedTagger) -> Any:
+    test = read_sentences(DEMO / "test.txt")
+    token_lists = [s.tokens for s in test]
+    total = sum(len(t) for t in token_lists)
+    tagger.predict_scored_spans(token_lists)  # warm the per-token caches, as a long run would
+
+    def run() -> int:
+        tagger.predict_scored_spans(token_lists)
+        return total
+
+    return run
+
+
+# --- report --------------------------------------------------------------------------------------
+
+
+def render(entry: dict[str, Any]) -> str:
+    m = entry["machine"]
+    lines = [
+        "# Feature benchmark: the demo lexicon and word shapes",
+        "",
+        f"- date: {m['date']}; commit {m['commit']}; command: `{m['command']}`",
+        f"- machine: {m['cores']} cores, {m['cpu']}; torch {m['torch']}, python {m['python']}, "
+        f"{m['threads']} torch thread(s)",
+        f"- training: configs/default.toml on data/demo train/dev, seed 1, at most "
+        f"{entry['minutes']} minutes a run; scores on data/demo/test.txt",
+        "- unseen: spans whose (type, text) never occurs as a gold span in train; recall over such "
+        "gold spans, precision over such predicted spans",
+        "",
+        "| variant | epochs (best) | test F1 | unseen: gold found | unseen R | unseen P | unseen F1 "
+        "| COMPONENT+DEFECT unseen F1 |",
+        "|---|---|---|---|---|---|---|---|",
+    ]
+    for name, v in entry["variants"].items():
+        u, cd = v["unseen"], v["unseen_component_defect"]
+        lines.append(
+            f"| {name} | {v['epochs']} ({v['best_epoch']}) | {100 * v['test']['f1']:.2f} | "
+            f"{u['found']}/{u['gold_spans']} | {100 * u['recall']:.2f} | {100 * u['precision']:.2f} "
+            f"| {100 * u['f1']:.2f} | {100 * cd['f1']:.2f} |"
+        )
+    lines += [
+        "",
+        "Speed, side by side (median of alternating rounds; ratio to `words`):",
+        "",
+        "| variant | training tokens/s | ratio | tagging tokens/s | ratio |",
+        "|---|---|---|---|---|",
+    ]
+    base = entry["variants"].get("words")
+    for name, v in entry["variants"].items():
+        train_ratio = v["train_tokens_per_second"] / base["train_tokens_per_second"] if base else 1
+        tag_ratio = v["tag_tokens_per_second"] / base["tag_tokens_per_second"] if base else 1
+        lines.append(
+            f"| {name} | {v['train_tokens_per_second']:,.0f} | {train_ratio:.3f} | "
+            f"{v['tag_tokens_per_second']:,.0f} | {tag_ratio:.3f} |"
+        )
+    return "\n".join(lines) + "\n"
+
+
+def main() -> int:
+    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    parser.add_argument(
+        "--variants", nargs="+", choices=list(VARIANTS), default=["words", "lexicon"]
+    )
+    parser.add_argument("--minutes", type=float, default=3.2, help="training budget per variant")
+    parser.add_argument("--threads", type=int, default=1)
+    parser.add_argument("--rounds", type=int, default=5, help="alternating speed rounds")
+    parser.add_argument("--seconds", type=float, default=4.0, help="seconds per speed round")
+    parser.add_argument("--runs", type=Path, default=None, help="keep the run folders here")
+    args = parser.parse_args()
+    torch.set_num_threads(args.threads)
+    entry: dict[str, Any] = {
+        "machine": machine(args.threads),
+        "minutes": args.minutes,
+        "variants": {},
+    }
+    taggers: dict[str, TrainedTagger] = {}
+    with tempfile.TemporaryDirectory(prefix="bench-features-") as scratch:
+        folder = args.runs or Path(scratch)
+        for name in args.variants:
+            config = variant_config(name, args.threads, args.minutes)
+            started = time.monotonic()
+            result = train(config, folder / name)
+            seconds = time.monotonic() - started
+            tagger = load_trained(result.model_path)
+            taggers[name] = tagger
+            entry["variants"][name] = {
+                "overrides": VARIANTS[name],
+                "epochs": len(result.history),
+                "best_epoch": result.best_epoch,
+                "stop": result.stop_reason,
+                "train_seconds": round(seconds, 1),
+                "dev_f1": round(result.best_dev["micro"]["f1"], 4),
+                **accuracy(tagger),
+            }
+            print(f"{name}: {json.dumps(entry['variants'][name])}", file=sys.stderr, flush=True)
+    steps = {name: training_step(variant_config(name, args.threads, 0)) for name in args.variants}
+    train_rates = side_by_side(steps, args.rounds, args.seconds)
+    tag_rates = side_by_side(
+        {name: tagging_run(t) for name, t in taggers.items()}, args.rounds, args.seconds
+    )
+    for name in args.variants:
+        entry["variants"][name]["train_tokens_per_second"] = train_rates[name]
+        entry["variants"][name]["tag_tokens_per_second"] = tag_rates[name]
+    RESULTS.parent.mkdir(exist_ok=True)
+    RESULTS.write_text(json.dumps(entry, indent=2) + "\n")
+    SUMMARY.write_text(render(entry))
+    print(render(entry))
+    return 0
+
+
+if __name__ == "__main__":
+    sys.exit(main())
