@@ -91,6 +91,7 @@ def training_speed(overrides: list[str], seconds: float = 20.0) -> dict:
 
 
 def run_speed(args: argparse.Namespace) -> dict:
+    started_on = machine()
     rows = []
     for threads in args.threads:
         torch.set_num_threads(threads)
@@ -111,12 +112,13 @@ def run_speed(args: argparse.Namespace) -> dict:
                 row["efficiency"] = round(
                     row["tokens_per_second"] / row["ceiling_tokens_per_second"], 3
                 )
-    return {"kind": "speed", "machine": machine(), "rows": rows}
+    return {"kind": "speed", "machine": started_on, "rows": rows}
 
 
 def run_accuracy(
     config_path: Path, overrides: list[str], test_file: Path, seeds: list[int], label: str
 ) -> dict:
+    started_on = machine()  # the commit and date when the run began, not when it ended
     runs = []
     for seed in seeds:
         config = apply_overrides(load_config(config_path), [*overrides, f"train.seed={seed}"])
@@ -143,7 +145,7 @@ def run_accuracy(
     f1s = sorted(r["test_f1"] for r in runs)
     return {
         "kind": label,
-        "machine": machine(),
+        "machine": started_on,
         "config": str(config_path.relative_to(ROOT)),
         "overrides": overrides,
         "test_file": str(test_file),
@@ -204,11 +206,12 @@ def render(results: dict) -> str:
         if not acc:
             continue
         m = acc["machine"]
+        note = f" Note: {m['note']}." if m.get("note") else ""
         lines += [
             f"## {title}",
             "",
             f"{m['date']}, commit {m['commit']}, {m['cores']} cores, torch {m['torch']}, "
-            f"{acc.get('threads', m.get('threads'))} threads; `{m['command']}`",
+            f"{acc.get('threads', m.get('threads'))} threads; `{m['command']}`.{note}",
             "",
             f"Test span F1: median {acc['test_f1_median']} (min {acc['test_f1_min']}, max "
             f"{acc['test_f1_max']}) over {len(acc['runs'])} seed(s).",
