@@ -131,42 +131,53 @@ class Lexicon:
         """One name per type: "NAME/TYPE", or "NAME" for entries without a type."""
         return [f"{self.name}/{t}" if t else self.name for t in self.types]
 
-    def find(self, tokens: Sequence[str]) -> list[Match]:
-        """Every occurrence of every entry in a sentence, overlapping ones included, in order."""
+    def _occurrences(self, tokens: Sequence[str]) -> dict[tuple[int, int], set[int]]:
+        """(start, end) -> type ids of every occurrence of an entry in the sentence."""
         found: dict[tuple[int, int], set[int]] = {}
         if self._exact is not None:
             self._exact.find(tokens, found)
         if self._folded is not None:
             self._folded.find([t.casefold() for t in tokens], found)
+        return found
+
+    def _chosen(self, tokens: Sequence[str]) -> list[tuple[int, int, set[int]]]:
+        """The occurrences kept, longest first (ties: leftmost), none overlapping; in any order."""
+        found = self._occurrences(tokens)
+        if len(found) < 2:
+            return [(start, end, ids) for (start, end), ids in found.items()]
+        chosen: list[tuple[int, int, set[int]]] = []
+        # Longest first, then leftmost; a sentence holds few matches, so the overlap test
+        # against those already chosen is cheaper than marking tokens.
+        for (start, end), ids in sorted(found.items(), key=lambda kv: (kv[0][0] - kv[0][1], kv[0])):
+            if all(end <= a or b <= start for a, b, _ in chosen):
+                chosen.append((start, end, ids))
+        return chosen
+
+    def find(self, tokens: Sequence[str]) -> list[Match]:
+        """Every occurrence of every entry in a sentence, overlapping ones included, in order."""
         types = self.types
         return [
             (start, end, tuple(types[i] for i in sorted(ids)))
-            for (start, end), ids in sorted(found.items())
+            for (start, end), ids in sorted(self._occurrences(tokens).items())
         ]
 
     def match(self, tokens: Sequence[str]) -> list[Match]:
         """The matches chosen longest first (ties: leftmost), none overlapping, in sentence order."""
-        occurrences = self.find(tokens)
-        occurrences.sort(key=lambda m: (m[0] - m[1], m[0]))  # longest first, then leftmost
-        taken = [False] * len(tokens)
-        chosen: list[Match] = []
-        for start, end, types in occurrences:
-            if any(taken[start:end]):
-                continue
-            taken[start:end] = [True] * (end - start)
-            chosen.append((start, end, types))
-        chosen.sort()
-        return chosen
+        types = self.types
+        return [
+            (start, end, tuple(types[i] for i in sorted(ids)))
+            for start, end, ids in sorted(self._chosen(tokens), key=lambda m: m[0])
+        ]
 
     def tags(self, tokens: Sequence[str]) -> list[list[int]]:
         """Per category (in `categories` order), one BIOES tag id per token."""
-        out = [[NO_MATCH] * len(tokens) for _ in self.types]
-        if not tokens:
+        n = len(tokens)
+        out = [[NO_MATCH] * n for _ in self.types]
+        if not n:
             return out
-        index = self._type_id
-        for start, end, types in self.match(tokens):
-            for type_ in types:
-                row = out[index[type_]]
+        for start, end, ids in self._chosen(tokens):
+            for i in ids:
+                row = out[i]
                 if end - start == 1:
                     row[start] = SINGLE
                 else:
