@@ -122,13 +122,24 @@ def run_speed(args: argparse.Namespace) -> dict:
 
 
 def run_accuracy(
-    config_path: Path, overrides: list[str], test_file: Path, seeds: list[int], label: str
+    config_path: Path,
+    overrides: list[str],
+    test_file: Path,
+    seeds: list[int],
+    label: str,
+    runs_dir: Path | None = None,
 ) -> dict:
+    """Train one model a seed and score it on `test_file`; runs go to `runs_dir/LABEL-seedN`
+    (by default runs/bench-LABEL-seedN)."""
     started_on = machine()  # the commit and date when the run began, not when it ended
     runs = []
     for seed in seeds:
         config = apply_overrides(load_config(config_path), [*overrides, f"train.seed={seed}"])
-        out = ROOT / "runs" / f"bench-{label}-seed{seed}"
+        out = (
+            runs_dir / f"{label}-seed{seed}"
+            if runs_dir is not None
+            else ROOT / "runs" / f"bench-{label}-seed{seed}"
+        )
         start = time.perf_counter()
         result = train(config, out, progress=_print_epoch)
         seconds = time.perf_counter() - start
@@ -145,6 +156,11 @@ def run_accuracy(
                 "best_epoch": result.best_epoch,
                 "stop": result.stop_reason,
                 "model_bytes": result.model_path.stat().st_size,
+                "train_tokens_per_second": round(
+                    median(row["train_tokens_per_second"] for row in result.history)
+                )
+                if result.history
+                else 0,
             }
         )
         print(json.dumps(runs[-1]), flush=True)
