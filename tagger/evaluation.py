@@ -76,7 +76,9 @@ def evaluate_files(
     predicted_sentences: list[Sentence] = []
     for path in paths:
         sentences = list(read_columns(path, fmt))
-        predicted = tagger.predict_labels([s.tokens for s in sentences])
+        predicted = tagger.predict_labels(
+            [s.tokens for s in sentences], rows=[s.rows for s in sentences]
+        )
         counts = count_tag_sequences([s.labels for s in sentences], predicted)
         total = total + counts
         per_file.append({"file": str(path), "sentences": len(sentences), **summarise(counts)})

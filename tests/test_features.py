@@ -17,7 +17,7 @@ from tagger.cli import app
 from tagger.config import Config, apply_overrides, config_from_dict
 from tagger.corpus import read_sentences
 from tagger.errors import ConfigError, DataError, ModelFileError
-from tagger.evaluation import score_files
+from tagger.evaluation import evaluate_files, score_files
 from tagger.features import (
     SHAPE_IDS,
     ColumnFeature,
@@ -234,6 +234,16 @@ def test_a_label_set_by_an_extra_column_is_learnt_only_with_it(
     assert [c["column"] for c in stored["columns"]] == [1]
     assert sorted(stored["columns"][0]["values"]["items"]) == ["x", "y"]
     assert "features" not in load_model_file(column_runs["without"])[1]
+
+
+def test_evaluate_reads_the_feature_column_and_agrees_with_score(
+    column_runs: dict[str, Path], tmp_path: Path
+) -> None:
+    tagger = load_trained(column_runs["with"])
+    predictions = tmp_path / "pred.txt"
+    report = evaluate_files(tagger, [column_runs["dev"]], predictions=predictions)
+    assert report["overall"]["micro"]["f1"] == 1.0
+    assert score_files(column_runs["dev"], predictions)["micro"] == report["overall"]["micro"]
 
 
 def test_tagging_a_column_file_reads_the_column_and_survives_unseen_values(
