@@ -18,7 +18,7 @@ from torch import nn
 
 from tagger.config import ModelConfig
 from tagger.crf import CRF
-from tagger.encoder import BiResidualEncoder
+from tagger.encoder import BiResidualEncoder, SharedDropout
 
 Transitions = tuple[list[bool], list[list[bool]], list[bool]]
 
@@ -95,7 +95,7 @@ class TaggerNet(nn.Module):
             )
         if self.chars is not None:
             char_size = self.chars.output_size
-        self.dropout = nn.Dropout(config.dropout)
+        self.dropout = SharedDropout(config.dropout)
         feature_size = sum(dim for _, dim in feature_slots)
         self.encoder = BiResidualEncoder(
             config.word_dim + char_size + feature_size,

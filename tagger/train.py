@@ -158,13 +158,19 @@ def _epoch_seed(seed: int, epoch: int) -> int:
 
 
 def _optimizer(config: Config, net: torch.nn.Module) -> torch.optim.Optimizer:
+    # foreach: one kernel per operation over all parameters, about half the time of the
+    # per-parameter loop torch takes on CPUs by default
     train = config.train
     if train.optimizer == "adam":
         return torch.optim.Adam(
-            net.parameters(), lr=train.learning_rate, weight_decay=train.weight_decay
+            net.parameters(), lr=train.learning_rate, weight_decay=train.weight_decay, foreach=True
         )
     return torch.optim.SGD(
-        net.parameters(), lr=train.learning_rate, momentum=0.9, weight_decay=train.weight_decay
+        net.parameters(),
+        lr=train.learning_rate,
+        momentum=0.9,
+        weight_decay=train.weight_decay,
+        foreach=True,
     )
 
 
