@@ -166,6 +166,11 @@ def score(
     _print_json(result) if as_json else print(format_report(result))
 
 
+def _duration(seconds: float) -> str:
+    minutes, seconds = divmod(round(seconds), 60)
+    return f"{minutes}m{seconds:02d}s" if minutes else f"{seconds}s"
+
+
 class _TrainingProgress:
     """A one-line progress bar on a terminal, plain lines per epoch otherwise."""
 
@@ -183,9 +188,12 @@ class _TrainingProgress:
             self.last_draw = time.monotonic()
             done = event["batch"] / event["batches"]
             bar = "#" * int(20 * done)
+            best = event["best_dev_f1"]
+            best_text = f"best dev F1 {100 * best:.2f}, " if best >= 0 else ""
             sys.stderr.write(
-                f"\repoch {event['epoch']}/{event['epochs']} [{bar:<20}] loss {event['loss']:.4f} "
-                f"{event['tokens_per_second']:,.0f} tok/s, epoch ends in {event['epoch_seconds_left']:.0f}s "
+                f"\r\033[Kepoch {event['epoch']}/{event['epochs']} [{bar:<20}] "
+                f"loss {event['loss']:.4f}, {event['tokens_per_second']:,.0f} tok/s, {best_text}"
+                f"about {_duration(event['run_seconds_left'])} left"
             )
             sys.stderr.flush()
         elif kind == "epoch":

@@ -396,6 +396,17 @@ def train(
             total_loss += loss.item()
             tokens_seen += batch.tokens
             elapsed = time.monotonic() - epoch_started
+            epoch_left = elapsed / number * (len(batches) - number)
+            # Later epochs are assumed to take as long as the finished ones did (dev scoring
+            # included), or as this one will; the budget, when set, caps the estimate.
+            per_epoch = (
+                sum(row["epoch_seconds"] for row in history) / len(history)
+                if history
+                else elapsed / number * len(batches)
+            )
+            run_left = epoch_left + (config.train.epochs - epoch) * per_epoch
+            if budget:
+                run_left = min(run_left, max(0.0, budget - (time.monotonic() - started)))
             report(
                 {
                     "event": "batch",
@@ -405,7 +416,9 @@ def train(
                     "batches": len(batches),
                     "loss": total_loss / max(tokens_seen, 1),
                     "tokens_per_second": tokens_seen / max(elapsed, 1e-9),
-                    "epoch_seconds_left": elapsed / number * (len(batches) - number),
+                    "epoch_seconds_left": epoch_left,
+                    "run_seconds_left": run_left,
+                    "best_dev_f1": best_f1,
                 }
             )
         if diverged:
