@@ -26,12 +26,8 @@ Writes benchmarks/features.json and benchmarks/features.md (date, machine, commi
 from __future__ import annotations
 
 import argparse
-import datetime as dt
 import json
-import os
-import platform
 import random
-import subprocess
 import sys
 import tempfile
 import time
@@ -43,6 +39,9 @@ import torch
 
 ROOT = Path(__file__).resolve().parents[1]
 sys.path.insert(0, str(ROOT))
+sys.path.insert(0, str(ROOT / "scripts"))
+
+from benchlib import machine  # noqa: E402
 
 from tagger.batching import bucketed_batches, collate, encode_sentence  # noqa: E402
 from tagger.config import Config, apply_overrides, load_config  # noqa: E402
@@ -64,30 +63,6 @@ VARIANTS: dict[str, list[str]] = {
     "shape": [f'model.lexicons=["{LEXICON}"]', "model.word_shape=true"],
 }
 LEXICON_TYPES = ("COMPONENT", "DEFECT")
-
-
-def machine(threads: int) -> dict[str, Any]:
-    cpu = "unknown"
-    try:
-        for line in Path("/proc/cpuinfo").read_text().splitlines():
-            if line.startswith("model name"):
-                cpu = line.split(":", 1)[1].strip()
-                break
-    except OSError:
-        pass
-    commit = subprocess.run(
-        ["git", "rev-parse", "--short", "HEAD"], capture_output=True, text=True, cwd=ROOT
-    ).stdout.strip()
-    return {
-        "date": dt.datetime.now(dt.UTC).strftime("%Y-%m-%d %H:%M UTC"),
-        "cores": os.cpu_count(),
-        "cpu": cpu,
-        "torch": torch.__version__,
-        "python": platform.python_version(),
-        "threads": threads,
-        "commit": commit,
-        "command": " ".join([Path(sys.argv[0]).name, *sys.argv[1:]]),
-    }
 
 
 def variant_config(name: str, threads: int, minutes: float) -> Config:
@@ -296,7 +271,7 @@ def main() -> int:
     args = parser.parse_args()
     torch.set_num_threads(args.threads)
     entry: dict[str, Any] = {
-        "machine": machine(args.threads),
+        "machine": {**machine(), "threads": args.threads},
         "minutes": args.minutes,
         "variants": {},
     }
