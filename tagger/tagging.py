@@ -52,6 +52,7 @@ from __future__ import annotations
 
 import json
 import multiprocessing
+import os
 import sys
 import time
 from collections import deque
@@ -62,6 +63,12 @@ from pathlib import Path
 from typing import IO, TYPE_CHECKING, Any
 
 from tagger.atomic import atomic_output
+
+# oneDNN keeps a compiled recurrent kernel for every (batch, length) shape it meets, up to 1,024 of
+# them by default; a long input with varied sentence lengths fills that cache and peak memory grows
+# with the input (measured: +100 MB from a 10 MB to a 100 MB input). 64 keeps memory flat at no
+# measurable cost in speed. It must be set before the first kernel is built, i.e. before tagging.
+os.environ.setdefault("ONEDNN_PRIMITIVE_CACHE_CAPACITY", "64")
 from tagger.corpus import ColumnFormat, ColumnReader, Sentence, format_sentence
 from tagger.errors import ConfigError, DataError, TaggerError
 from tagger.schemes import normalise_scheme_name, spans_to_tags
