@@ -43,15 +43,13 @@ sys.path.insert(0, str(ROOT / "scripts"))
 
 from benchlib import machine  # noqa: E402
 
-from tagger.batching import bucketed_batches, collate, encode_sentence  # noqa: E402
+from tagger.batching import bucketed_batches, collate  # noqa: E402
 from tagger.config import Config, apply_overrides, load_config  # noqa: E402
 from tagger.corpus import read_sentences  # noqa: E402
-from tagger.features import build_features  # noqa: E402
 from tagger.metrics import count_spans, summarise  # noqa: E402
 from tagger.predict import TrainedTagger, build_net, load_trained  # noqa: E402
-from tagger.schemes import Span, labels_for_types, spans_to_tags, tags_to_spans  # noqa: E402
-from tagger.train import prepare_data, train  # noqa: E402
-from tagger.vocab import build_vocabularies  # noqa: E402
+from tagger.schemes import Span, tags_to_spans  # noqa: E402
+from tagger.train import make_optimizer, prepare_training, train  # noqa: E402
 
 RESULTS = ROOT / "benchmarks" / "features.json"
 SUMMARY = ROOT / "benchmarks" / "features.md"
@@ -143,29 +141,12 @@ def accuracy(tagger: TrainedTagger) -> dict[str, Any]:
 
 def training_step(config: Config) -> Any:
     """A function running one training step on the next demo batch; returns its token count."""
-    data = prepare_data(config)
-    scheme = config.model.scheme
-    types = sorted({s[0] for spans in data.train_spans for s in spans})
-    vocabs, _ = build_vocabularies(
-        (s.tokens for s in data.train),
-        labels_for_types(types, scheme),
-        config.model.lowercase,
-        config.model.digits_to_zero,
-    )
-    features, _ = build_features(config.model, data.train, config.data.train)
-    encoded = [
-        encode_sentence(
-            s.tokens,
-            vocabs,
-            spans_to_tags(spans, len(s.tokens), scheme),
-            features.encode(s.tokens, s.rows) if features is not None else None,
-        )
-        for s, spans in zip(data.train, data.train_spans, strict=True)
-    ]
+    setup = prepare_training(config)
+    encoded = setup.encoded
     torch.manual_seed(1)
-    net = build_net(config, vocabs, features)
+    net = build_net(config, setup.vocabs, setup.features)
     net.train()
-    optimizer = torch.optim.Adam(net.parameters(), lr=config.train.learning_rate)
+    optimizer = make_optimizer(config, net)  # the trainer's own optimizer, as configured
     order = bucketed_batches(
         [len(e.words) for e in encoded], config.train.batch_size, random.Random(1)
     )

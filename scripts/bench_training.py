@@ -28,13 +28,11 @@ sys.path.insert(0, str(ROOT / "scripts"))
 
 from benchlib import machine, matmul_gflops  # noqa: E402
 
-from tagger.batching import bucketed_batches, collate, encode_sentence  # noqa: E402
+from tagger.batching import bucketed_batches, collate  # noqa: E402
 from tagger.config import apply_overrides, load_config  # noqa: E402
 from tagger.evaluation import evaluate_files  # noqa: E402
 from tagger.predict import build_net, load_trained  # noqa: E402
-from tagger.schemes import labels_for_types, spans_to_tags  # noqa: E402
-from tagger.train import prepare_data, train  # noqa: E402
-from tagger.vocab import build_vocabularies  # noqa: E402
+from tagger.train import make_optimizer, prepare_training, train  # noqa: E402
 
 RESULTS = ROOT / "benchmarks" / "training.json"
 SUMMARY = ROOT / "benchmarks" / "training.md"
@@ -49,18 +47,10 @@ ACCURACY_RUNS = {  # name: (config, test file)
 def training_speed(overrides: list[str], seconds: float = 20.0) -> dict:
     """Training tokens/s of full steps (forward, backward, clipping, Adam) on demo batches."""
     config = apply_overrides(load_config(ROOT / "configs" / "default.toml"), overrides)
-    data = prepare_data(config)
-    types = sorted({s[0] for spans in data.train_spans for s in spans})
-    labels = labels_for_types(types, config.model.scheme)
-    vocabs, _ = build_vocabularies(
-        (s.tokens for s in data.train), labels, config.model.lowercase, config.model.digits_to_zero
-    )
-    encoded = [
-        encode_sentence(s.tokens, vocabs, spans_to_tags(sp, len(s.tokens), config.model.scheme))
-        for s, sp in zip(data.train, data.train_spans, strict=True)
-    ]
-    net = build_net(config, vocabs)
-    optimizer = torch.optim.Adam(net.parameters(), lr=1e-3)
+    setup = prepare_training(config)
+    net = build_net(config, setup.vocabs, setup.features)
+    optimizer = make_optimizer(config, net)  # the trainer's own optimizer, as configured
+    encoded = setup.encoded
     batches = [
         collate(encoded, b)
         for b in bucketed_batches(
@@ -70,7 +60,7 @@ def training_speed(overrides: list[str], seconds: float = 20.0) -> dict:
     net.train()
 
     def step(batch) -> None:
-        emissions = net.emissions(batch.words, batch.chars, batch.lengths)
+        emissions = net.emissions(batch.words, batch.chars, batch.lengths, features=batch.features)
         loss = net.loss(emissions, batch.labels, batch.mask)
         optimizer.zero_grad()
         (loss / len(batch.indices)).backward()

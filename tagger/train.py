@@ -20,6 +20,7 @@ import json
 import math
 import random
 import time
+from collections import Counter
 from collections.abc import Callable, Sequence
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -28,11 +29,11 @@ from typing import Any
 import torch
 
 from tagger.atomic import atomic_output
-from tagger.batching import bucketed_batches, collate, encode_sentence
+from tagger.batching import EncodedSentence, bucketed_batches, collate, encode_sentence
 from tagger.config import Config
 from tagger.corpus import ColumnFormat, Sentence, read_sentences
 from tagger.errors import ConfigError, DataError, ModelFileError
-from tagger.features import build_features, check_columns
+from tagger.features import FeatureSpec, build_features, check_columns
 from tagger.metrics import count_spans, summarise
 from tagger.modelfile import load_model_file, save_model_file
 from tagger.predict import TrainedTagger, build_net
@@ -157,7 +158,7 @@ def _epoch_seed(seed: int, epoch: int) -> int:
     return seed * 1_000_003 + epoch
 
 
-def _optimizer(config: Config, net: torch.nn.Module) -> torch.optim.Optimizer:
+def make_optimizer(config: Config, net: torch.nn.Module) -> torch.optim.Optimizer:
     # foreach: one kernel per operation over all parameters, about half the time of the
     # per-parameter loop torch takes on CPUs by default
     train = config.train
@@ -227,24 +228,24 @@ def config_to_toml(config: Config) -> str:
     return "\n".join(lines)  # JSON scalars (numbers, true/false, escaped strings) are valid TOML
 
 
-def train(
-    config: Config,
-    run_dir: str | Path,
-    resume: bool = False,
-    progress: Progress | None = None,
-) -> TrainResult:
-    """Train a tagger; the best model is at ``run_dir/model.tagger``. Returns the per-epoch history."""
-    report = progress or (lambda event: None)
-    run_dir = Path(run_dir)
-    run_dir.mkdir(parents=True, exist_ok=True)
-    if config.train.threads:
-        torch.set_num_threads(config.train.threads)
-    torch.manual_seed(config.train.seed)
-    random.seed(config.train.seed)
+@dataclass
+class TrainingSetup:
+    """Everything a training run needs before the network exists; benchmarks build on it too."""
 
+    data: PreparedData
+    types: list[str]
+    vocabs: Vocabularies
+    features: FeatureSpec | None
+    encoded: list[EncodedSentence]  # the training sentences, labels in the model's scheme
+    word_counts: Counter[str]
+    value_counts: list[Counter[str]]
+    vectors: tuple[list[str], Any] | None
+    tokenizer: TokenizerSettings
+
+
+def prepare_training(config: Config) -> TrainingSetup:
+    """Read the data, build vocabularies and features, encode the training sentences."""
     data = prepare_data(config)
-    for note in data.notes:
-        report({"event": "note", "message": note})
     internal = config.model.scheme
     types = sorted({span[0] for spans in data.train_spans for span in spans})
     labels = labels_for_types(types, internal)
@@ -274,9 +275,33 @@ def train(
         )
         for s, spans in zip(data.train, data.train_spans, strict=True)
     ]
+    return TrainingSetup(
+        data, types, vocabs, features, encoded, word_counts, value_counts, vectors, settings
+    )
+
+
+def train(
+    config: Config,
+    run_dir: str | Path,
+    resume: bool = False,
+    progress: Progress | None = None,
+) -> TrainResult:
+    """Train a tagger; the best model is at ``run_dir/model.tagger``. Returns the per-epoch history."""
+    report = progress or (lambda event: None)
+    run_dir = Path(run_dir)
+    run_dir.mkdir(parents=True, exist_ok=True)
+    if config.train.threads:
+        torch.set_num_threads(config.train.threads)
+    torch.manual_seed(config.train.seed)
+    random.seed(config.train.seed)
+
+    setup = prepare_training(config)
+    data, vocabs, features, encoded = setup.data, setup.vocabs, setup.features, setup.encoded
+    for note in data.notes:
+        report({"event": "note", "message": note})
     lengths = [len(e.words) for e in encoded]
     singletons = torch.zeros(len(vocabs.words), dtype=torch.bool)
-    for word, count in word_counts.items():
+    for word, count in setup.word_counts.items():
         if count == 1 and word in vocabs.words:
             singletons[vocabs.words.index(word)] = True
     # Feature-column values seen once are read as unknown now and then too, so that the unknown
@@ -284,20 +309,20 @@ def train(
     value_singletons = [
         (slot, torch.tensor([counts.get(v, 0) == 1 for v in column.values.itos]))
         for slot, (column, counts) in enumerate(
-            zip(features.columns if features else [], value_counts, strict=True)
+            zip(features.columns if features else [], setup.value_counts, strict=True)
         )
     ]
 
     net = build_net(config, vocabs, features)
-    if vectors:
-        found = _initialise_embeddings(net, vocabs, *vectors)
+    if setup.vectors:
+        found = _initialise_embeddings(net, vocabs, *setup.vectors)
         report(
             {
                 "event": "note",
                 "message": f"pretrained vectors for {found} of {len(vocabs.words) - 2} words",
             }
         )
-    optimizer = _optimizer(config, net)
+    optimizer = make_optimizer(config, net)
     tagger = TrainedTagger(net, vocabs, config, data.input_scheme, features=features)
     meta_common = {
         "training_data": {
@@ -306,9 +331,9 @@ def train(
             "dev": config.data.dev,
             "sentences": len(data.train),
         },
-        "types": types,
+        "types": setup.types,
         # How tagging will cut raw text into tokens; stored so that tagging matches training.
-        "tokenizer": settings.to_dict(),
+        "tokenizer": setup.tokenizer.to_dict(),
     }
 
     history: list[dict[str, Any]] = []
