@@ -28,6 +28,13 @@ CELL_KINDS = ("rnn", "minimal", "gru", "lstm")
 State = tuple[Tensor, ...]  # (h,) or, for the LSTM, (h, c); each (batch, hidden)
 
 
+def require_positive(**sizes: int) -> None:
+    """Raise ValueError naming the first size that is not a positive integer."""
+    for name, value in sizes.items():
+        if value < 1:
+            raise ValueError(f"{name} must be a positive integer, got {value}")
+
+
 class Cell(nn.Module):
     """A recurrent cell with G gate blocks: an input projection for all steps, and a step.
 
@@ -41,10 +48,7 @@ class Cell(nn.Module):
 
     def __init__(self, input_size: int, hidden_size: int) -> None:
         super().__init__()
-        if input_size < 1:
-            raise ValueError(f"input_size must be a positive integer, got {input_size}")
-        if hidden_size < 1:
-            raise ValueError(f"hidden_size must be a positive integer, got {hidden_size}")
+        require_positive(input_size=input_size, hidden_size=hidden_size)
         self.input_size = input_size
         self.hidden_size = hidden_size
         width = self.gates * hidden_size

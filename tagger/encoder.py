@@ -19,6 +19,7 @@ from tagger.cells import (
     CELL_KINDS,
     make_cell,
     padding_mask,
+    require_positive,
     reverse_within_lengths,
     run_cell,
     run_cell_fused,
@@ -60,8 +61,7 @@ class ResidualStack(nn.Module):
         self, hidden_size: int, layers: int, cell: str, dropout: float = 0.0, fast: bool = True
     ) -> None:
         super().__init__()
-        if layers < 1:
-            raise ValueError(f"layers must be a positive integer, got {layers}")
+        require_positive(layers=layers)
         self.hidden_size = hidden_size
         self.cells = nn.ModuleList(make_cell(cell, hidden_size, hidden_size) for _ in range(layers))
         self.dropout = SharedDropout(dropout)
@@ -100,10 +100,7 @@ class BiResidualEncoder(nn.Module):
         super().__init__()
         if cell not in CELL_KINDS:
             raise ValueError(f"cell must be one of {', '.join(CELL_KINDS)}; got {cell!r}")
-        if input_size < 1:
-            raise ValueError(f"input_size must be a positive integer, got {input_size}")
-        if hidden_size < 1:
-            raise ValueError(f"hidden_size must be a positive integer, got {hidden_size}")
+        require_positive(input_size=input_size, hidden_size=hidden_size)
         self.input_size = input_size
         self.hidden_size = hidden_size
         self.layers = layers
