@@ -180,6 +180,22 @@ def _print_epoch(event: dict) -> None:
         print(f"  note: {event['message']}", flush=True)
 
 
+def speed_table(rows: list[dict]) -> list[str]:
+    """Markdown rows of training speed beside the ceiling, one per (threads, variant)."""
+    lines = [
+        "| threads | variant | tokens/s | ceiling tokens/s | share of ceiling | matmul GFLOP/s |",
+        "|---|---|---|---|---|---|",
+    ]
+    for row in rows:
+        variant = ", ".join(row["overrides"]) or "default (lstm, fused kernel)"
+        lines.append(
+            f"| {row['threads']} | {variant} | {row['tokens_per_second']:,} | "
+            f"{row['ceiling_tokens_per_second']:,} | {100 * row['efficiency']:.0f}% | "
+            f"{row['ceiling_gflops']} |"
+        )
+    return lines
+
+
 def render(results: dict) -> str:
     lines = [
         "# Training benchmarks",
@@ -199,16 +215,8 @@ def render(results: dict) -> str:
             "Ceiling = measured 1024^3 float32 matrix-product rate / (3 x forward FLOPs per token of "
             "the word-level encoder and output layer). Full steps: forward, backward, clipping, Adam.",
             "",
-            "| threads | variant | tokens/s | ceiling tokens/s | efficiency | matmul GFLOP/s |",
-            "|---|---|---|---|---|---|",
         ]
-        for row in speed["rows"]:
-            variant = ", ".join(row["overrides"]) or "default (lstm, fused kernel)"
-            lines.append(
-                f"| {row['threads']} | {variant} | {row['tokens_per_second']:,} | "
-                f"{row['ceiling_tokens_per_second']:,} | {100 * row['efficiency']:.0f}% | "
-                f"{row['ceiling_gflops']} |"
-            )
+        lines += speed_table(speed["rows"])
         lines.append("")
     for key, title in (
         ("demo", "Demo corpus (configs/default.toml)"),

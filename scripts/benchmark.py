@@ -56,7 +56,7 @@ sys.path.insert(0, str(ROOT))
 sys.path.insert(0, str(ROOT / "scripts"))
 
 import bench_tagging  # noqa: E402
-from bench_training import run_accuracy, run_speed  # noqa: E402
+from bench_training import run_accuracy, run_speed, speed_table  # noqa: E402
 from benchlib import machine, matmul_gflops  # noqa: E402
 
 from tagger.atomic import atomic_output  # noqa: E402
@@ -748,16 +748,8 @@ def render_speed(entries: dict) -> list[str]:
             "rate measured in the same run, over 3x the forward FLOPs per token of the encoder and "
             "output layer.",
             "",
-            "| threads | variant | tokens/s | ceiling tokens/s | share of ceiling | GFLOP/s |",
-            "|---|---|---|---|---|---|",
         ]
-        for r in t["rows"]:
-            variant = ", ".join(r["overrides"]) or "default (lstm, fused kernel)"
-            lines.append(
-                f"| {r['threads']} | {variant} | {r['tokens_per_second']:,} | "
-                f"{r['ceiling_tokens_per_second']:,} | {100 * r['efficiency']:.0f}% | "
-                f"{r['ceiling_gflops']} |"
-            )
+        lines += speed_table(t["rows"])
         lines += ["", _stamp(t), ""]
     g = entries.get("tagging_speed")
     if g:
