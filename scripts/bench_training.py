@@ -15,6 +15,7 @@ from __future__ import annotations
 import argparse
 import json
 import random
+import shutil
 import sys
 import time
 from pathlib import Path
@@ -28,8 +29,10 @@ sys.path.insert(0, str(ROOT / "scripts"))
 
 from benchlib import machine, matmul_gflops  # noqa: E402
 
+from tagger.atomic import atomic_output  # noqa: E402
 from tagger.batching import bucketed_batches, collate  # noqa: E402
 from tagger.config import apply_overrides, load_config  # noqa: E402
+from tagger.errors import ModelFileError  # noqa: E402
 from tagger.evaluation import evaluate_files  # noqa: E402
 from tagger.predict import build_net, load_trained  # noqa: E402
 from tagger.train import make_optimizer, prepare_training, train  # noqa: E402
@@ -111,6 +114,92 @@ def run_speed(args: argparse.Namespace) -> dict:
     return {"kind": "speed", "machine": started_on, "rows": rows}
 
 
+RUN_RECORD = "benchmark-run.json"  # in a run folder: the config trained and what it scored
+
+
+def train_seed(
+    config_path: Path, overrides: list[str], seed: int, test_file: Path, out: Path
+) -> dict:
+    """Train one seed into `out` and score it on `test_file`; return the run's figures.
+
+    A finished run whose record names the same config and test file is reused, not retrained; an
+    interrupted one goes on from its last checkpoint. So a benchmark stopped half way (a session
+    ends, a machine restarts) picks up where it was. Delete the run folder to retrain.
+    """
+    config = apply_overrides(load_config(config_path), [*overrides, f"train.seed={seed}"])
+    record = out / RUN_RECORD
+    if record.exists():
+        saved = json.loads(record.read_text())
+        if saved["config"] == config.to_dict() and saved["test_file"] == str(test_file):
+            print(
+                f"[{out.name}] reused (trained at commit {saved['machine']['commit']})", flush=True
+            )
+            return {**saved["result"], "machine": saved["machine"], "reused": True}
+    label = f"[{out.name}]"
+    try:
+        result = train(config, out, resume=True, progress=lambda e: _print_epoch(e, label))
+    except ModelFileError:  # a checkpoint of another config or other data: start again
+        shutil.rmtree(out)
+        result = train(config, out, progress=lambda e: _print_epoch(e, label))
+    tagger = load_trained(result.model_path)
+    test = evaluate_files(tagger, [test_file])["overall"]
+    figures = {
+        "seed": seed,
+        "test_f1": round(100 * test["micro"]["f1"], 2),
+        "dev_f1": round(100 * result.best_dev["micro"]["f1"], 2),
+        "per_type_f1": {t: round(100 * v["f1"], 2) for t, v in test["per_type"].items()},
+        # Summed over epochs, so a run resumed after an interruption counts its training only.
+        "train_seconds": round(sum(row["epoch_seconds"] for row in result.history), 1),
+        "epochs": len(result.history),
+        "best_epoch": result.best_epoch,
+        "stop": result.stop_reason,
+        "model_bytes": result.model_path.stat().st_size,
+        "train_tokens_per_second": round(
+            median(row["train_tokens_per_second"] for row in result.history)
+        )
+        if result.history
+        else 0,
+        "threads": torch.get_num_threads(),
+    }
+    finished = machine()
+    with atomic_output(record) as handle:
+        json.dump(
+            {
+                "config": config.to_dict(),
+                "test_file": str(test_file),
+                "machine": finished,
+                "result": figures,
+            },
+            handle,
+            indent=2,
+        )
+    print(f"{label} {json.dumps(figures)}", flush=True)
+    return {**figures, "machine": finished, "reused": False}
+
+
+def accuracy_entry(
+    label: str,
+    config_path: Path,
+    overrides: list[str],
+    test_file: Path,
+    runs: list[dict],
+    started_on: dict,
+) -> dict:
+    f1s = sorted(r["test_f1"] for r in runs)
+    return {
+        "kind": label,
+        "machine": started_on,
+        "config": str(config_path.relative_to(ROOT)),
+        "overrides": overrides,
+        "test_file": str(test_file),
+        "runs": runs,
+        "threads": runs[0]["threads"],
+        "test_f1_median": median(f1s),
+        "test_f1_min": f1s[0],
+        "test_f1_max": f1s[-1],
+    }
+
+
 def run_accuracy(
     config_path: Path,
     overrides: list[str],
@@ -122,62 +211,30 @@ def run_accuracy(
     """Train one model a seed and score it on `test_file`; runs go to `runs_dir/LABEL-seedN`
     (by default runs/bench-LABEL-seedN)."""
     started_on = machine()  # the commit and date when the run began, not when it ended
-    runs = []
-    for seed in seeds:
-        config = apply_overrides(load_config(config_path), [*overrides, f"train.seed={seed}"])
-        out = (
+    runs = [
+        train_seed(
+            config_path,
+            overrides,
+            seed,
+            test_file,
             runs_dir / f"{label}-seed{seed}"
             if runs_dir is not None
-            else ROOT / "runs" / f"bench-{label}-seed{seed}"
+            else ROOT / "runs" / f"bench-{label}-seed{seed}",
         )
-        start = time.perf_counter()
-        result = train(config, out, progress=_print_epoch)
-        seconds = time.perf_counter() - start
-        tagger = load_trained(result.model_path)
-        test = evaluate_files(tagger, [test_file])["overall"]
-        runs.append(
-            {
-                "seed": seed,
-                "test_f1": round(100 * test["micro"]["f1"], 2),
-                "dev_f1": round(100 * result.best_dev["micro"]["f1"], 2),
-                "per_type_f1": {t: round(100 * v["f1"], 2) for t, v in test["per_type"].items()},
-                "train_seconds": round(seconds, 1),
-                "epochs": len(result.history),
-                "best_epoch": result.best_epoch,
-                "stop": result.stop_reason,
-                "model_bytes": result.model_path.stat().st_size,
-                "train_tokens_per_second": round(
-                    median(row["train_tokens_per_second"] for row in result.history)
-                )
-                if result.history
-                else 0,
-            }
-        )
-        print(json.dumps(runs[-1]), flush=True)
-    f1s = sorted(r["test_f1"] for r in runs)
-    return {
-        "kind": label,
-        "machine": started_on,
-        "config": str(config_path.relative_to(ROOT)),
-        "overrides": overrides,
-        "test_file": str(test_file),
-        "runs": runs,
-        "threads": torch.get_num_threads(),
-        "test_f1_median": median(f1s),
-        "test_f1_min": f1s[0],
-        "test_f1_max": f1s[-1],
-    }
+        for seed in seeds
+    ]
+    return accuracy_entry(label, config_path, overrides, test_file, runs, started_on)
 
 
-def _print_epoch(event: dict) -> None:
+def _print_epoch(event: dict, label: str = "") -> None:
     if event["event"] == "epoch":
         print(
-            f"  epoch {event['epoch']} dev F1 {100 * event['dev_f1']:.2f} "
+            f"{label}  epoch {event['epoch']} dev F1 {100 * event['dev_f1']:.2f} "
             f"{event['train_tokens_per_second']:.0f} tok/s {event['epoch_seconds']:.0f}s",
             flush=True,
         )
     elif event["event"] == "note":
-        print(f"  note: {event['message']}", flush=True)
+        print(f"{label}  note: {event['message']}", flush=True)
 
 
 def speed_table(rows: list[dict]) -> list[str]:

@@ -88,6 +88,7 @@ class TrainConfig:
     clip_norm: float = 5.0
     patience: int = 6  # epochs without a better dev F1 before stopping
     unknown_replace: float = 0.3  # chance a word seen once in train is read as unknown
+    weight_average: float = 0.0  # decay of a moving average of the weights, e.g. 0.999; 0: off
     seed: int = 1
     threads: int = 0  # 0: torch's default
     max_minutes: float = 0.0  # wall-clock budget; 0: none
@@ -131,7 +132,12 @@ _POSITIVE = {
     ("model", "lexicon_dim"),
     ("model", "shape_dim"),
 }
-_FRACTIONS = {("model", "dropout"), ("train", "unknown_replace"), ("data", "dev_fraction")}
+_FRACTIONS = {
+    ("model", "dropout"),
+    ("train", "unknown_replace"),
+    ("train", "weight_average"),
+    ("data", "dev_fraction"),
+}
 
 
 def _is_int(value: Any) -> bool:

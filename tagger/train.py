@@ -22,6 +22,7 @@ import random
 import time
 from collections import Counter
 from collections.abc import Callable, Sequence
+from contextlib import nullcontext
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
@@ -29,6 +30,7 @@ from typing import Any
 import torch
 
 from tagger.atomic import atomic_output
+from tagger.averaging import WeightAverage
 from tagger.batching import EncodedSentence, bucketed_batches, collate, encode_sentence
 from tagger.config import Config
 from tagger.corpus import ColumnFormat, Sentence, read_sentences
@@ -323,6 +325,9 @@ def train(
             }
         )
     optimizer = make_optimizer(config, net)
+    average = (
+        WeightAverage(net, config.train.weight_average) if config.train.weight_average else None
+    )
     tagger = TrainedTagger(net, vocabs, config, data.input_scheme, features=features)
     meta_common = {
         "training_data": {
@@ -355,6 +360,11 @@ def train(
             )
         )
         state = meta["state"]
+        if average is not None:
+            average.load_state(
+                {k: v for k, v in tensors.items() if k.startswith("average.")},
+                state["average_steps"],
+            )
         history, best_f1, best_epoch = state["history"], state["best_f1"], state["best_epoch"]
         best_dev, bad_epochs, learning_rate = (
             state["best_dev"],
@@ -418,6 +428,8 @@ def train(
             if config.train.clip_norm > 0:
                 torch.nn.utils.clip_grad_norm_(net.parameters(), config.train.clip_norm)
             optimizer.step()
+            if average is not None:
+                average.update()
             total_loss += loss.item()
             tokens_seen += batch.tokens
             elapsed = time.monotonic() - epoch_started
@@ -449,13 +461,17 @@ def train(
         if diverged:
             break
         train_seconds = time.monotonic() - epoch_started
-        dev = evaluate_spans(tagger, data.dev, data.dev_spans)
-        dev_f1 = dev["micro"]["f1"]
-        improved = dev_f1 > best_f1
-        if improved:
-            best_f1, best_epoch, best_dev, bad_epochs = dev_f1, epoch, dev, 0
-            tagger.save(run_dir / MODEL_NAME, {**meta_common, "epoch": epoch, "dev_metrics": dev})
-        else:
+        # With weight averaging on, the averaged weights are the model: scored and saved.
+        with average.swapped_in() if average is not None else nullcontext():
+            dev = evaluate_spans(tagger, data.dev, data.dev_spans)
+            dev_f1 = dev["micro"]["f1"]
+            improved = dev_f1 > best_f1
+            if improved:
+                best_f1, best_epoch, best_dev, bad_epochs = dev_f1, epoch, dev, 0
+                tagger.save(
+                    run_dir / MODEL_NAME, {**meta_common, "epoch": epoch, "dev_metrics": dev}
+                )
+        if not improved:
             bad_epochs += 1
         row = {
             "epoch": epoch,
@@ -485,9 +501,10 @@ def train(
         _write_history(run_dir, history)
         net_tensors = {f"net.{k}": v for k, v in net.state_dict().items()}
         optimizer_tensors, optimizer_meta = _optimizer_to_file(optimizer)
+        average_tensors, average_steps = average.state() if average is not None else ({}, 0)
         save_model_file(
             checkpoint,
-            {**net_tensors, **optimizer_tensors},
+            {**net_tensors, **optimizer_tensors, **average_tensors},
             {
                 "kind": "checkpoint",
                 "config": config.to_dict(),
@@ -501,6 +518,7 @@ def train(
                     "best_dev": best_dev,
                     "bad_epochs": bad_epochs,
                     "learning_rate": learning_rate,
+                    "average_steps": average_steps,
                 },
             },
         )

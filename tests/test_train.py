@@ -264,3 +264,46 @@ def test_pretrained_vectors_initialise_the_embedding(
     weight = tagger.net.words.weight
     assert torch.allclose(weight[tagger.vocabs.words.index("bearing")], torch.full((16,), 0.5))
     assert torch.allclose(weight[tagger.vocabs.words.index("leak")], torch.full((16,), -0.25))
+
+
+def test_with_weight_averaging_the_model_file_holds_the_average(
+    tiny_files: Path, tmp_path: Path
+) -> None:
+    data = tiny_files / "train.txt"
+    # One epoch: its dev score is the first, so the model saved is that epoch's average.
+    train(small_config(data, data, train={"epochs": 1, "weight_average": 0.9}), tmp_path / "run")
+    tensors, meta = load_model_file(tmp_path / "run" / "checkpoint.tagger")
+    assert meta["state"]["average_steps"] == 2  # 6 sentences in batches of 4
+    averaged = [
+        tensors[f"average.{i}"] for i in range(sum(k.startswith("average.") for k in tensors))
+    ]
+    live = [v for k, v in tensors.items() if k.startswith("net.")]
+    saved = [p.detach() for p in load_trained(tmp_path / "run" / "model.tagger").net.parameters()]
+    assert len(saved) == len(averaged)
+    for kept, average in zip(saved, averaged, strict=True):
+        assert torch.equal(kept, average)
+    assert not all(torch.equal(a, b) for a, b in zip(averaged, live, strict=True))
+
+
+def test_resume_with_weight_averaging_equals_an_uninterrupted_run(
+    tiny_files: Path, tmp_path: Path
+) -> None:
+    data = tiny_files / "train.txt"
+    config = small_config(
+        data, data, model={"dropout": 0.3}, train={"epochs": 4, "weight_average": 0.95}
+    )
+    train(config, tmp_path / "whole")
+    with pytest.raises(KeyboardInterrupt):
+        train(config, tmp_path / "cut", progress=_KillAt(epoch=3, batch=1))
+    train(config, tmp_path / "cut", resume=True)
+    whole, _ = load_model_file(tmp_path / "whole" / "checkpoint.tagger")
+    resumed, _ = load_model_file(tmp_path / "cut" / "checkpoint.tagger")
+    assert any(name.startswith("average.") for name in whole)
+    for name, tensor in whole.items():
+        assert torch.equal(tensor, resumed[name]), name
+    for name in ("whole", "cut"):
+        model = load_model_file(tmp_path / name / "model.tagger")[0]
+        assert all(
+            torch.equal(t, model[k])
+            for k, t in load_model_file(tmp_path / "whole" / "model.tagger")[0].items()
+        )
