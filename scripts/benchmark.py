@@ -477,6 +477,10 @@ class Benchmark:
             "epochs": spread([r["epochs"] for r in runs]),
             "train_tokens_per_second": round(median(r["train_tokens_per_second"] for r in runs)),
             "model_megabytes": round(median(r["model_bytes"] for r in runs) / 1e6, 2),
+            # A resumed benchmark reuses runs an earlier command finished: say where each came from.
+            "trained_at": sorted(
+                {f"{r['machine']['commit']} ({r['machine']['date'][:10]})" for r in runs}
+            ),
         }
 
     # runs ----------------------------------------------------------------------------------------
@@ -567,6 +571,7 @@ class Benchmark:
                 "megabytes": round(documents.stat().st_size / 1e6, 2),
             },
             "rows": rows,
+            "trained_at": sorted({c for row in rows for c in row["trained_at"]}),
         }
 
     def training_speed(self) -> dict:
@@ -676,9 +681,15 @@ def _stamp(entry: dict) -> str:
         if m.get("changed_files")
         else ""
     )
+    trained = (
+        f"; its training runs finished at commit(s) {', '.join(entry['trained_at'])}"
+        if entry.get("trained_at")
+        else ""
+    )
+    jobs = f" in {m['jobs']} parallel runs" if m.get("jobs", 1) > 1 else ""
     return (
-        f"_{m['date']}, commit {m['commit']}{changed}; {m['cores']} cores ({m['cpu']}), torch "
-        f"{m['torch']}, {m['threads']} training thread(s); load average "
+        f"_{m['date']}, commit {m['commit']}{changed}{trained}; {m['cores']} cores ({m['cpu']}), "
+        f"torch {m['torch']}, {m['threads']} training thread(s){jobs}; load average "
         f"{entry.get('load_before_run', m['load_before'])} when this run began; "
         f"`{m['command']}`; {entry['run_minutes']} min._"
     )
