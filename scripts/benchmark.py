@@ -46,10 +46,13 @@ holds the date, the machine, the commit when the command started, and the comman
 from __future__ import annotations
 
 import argparse
+import contextlib
+import ctypes
 import json
 import multiprocessing
 import os
 import shutil
+import signal
 import subprocess
 import sys
 import tempfile
@@ -342,6 +345,16 @@ def changed_files() -> list[str]:
     return out.split()
 
 
+def end_with_parent() -> None:
+    """Make a worker process end when the benchmark command does, even if that is killed.
+
+    Otherwise a killed command leaves its training runs going, and the next command would train
+    the same folders beside them. Linux only (prctl PR_SET_PDEATHSIG); elsewhere a no-op.
+    """
+    with contextlib.suppress(OSError, AttributeError):
+        ctypes.CDLL("libc.so.6", use_errno=True).prctl(1, signal.SIGTERM)
+
+
 def variant_label(extra: list[str]) -> str:
     """The run-folder name of a CoNLL-2000 variant, e.g. variant-cell-gru."""
     return "variant" + (
@@ -376,7 +389,9 @@ class Benchmark:
         self.runs_dir = ROOT / "runs" / "benchmark" / mode.name
         # Spawned, not forked: each training process starts clean with its own torch threads.
         self.pool = ProcessPoolExecutor(
-            max_workers=jobs, mp_context=multiprocessing.get_context("spawn")
+            max_workers=jobs,
+            mp_context=multiprocessing.get_context("spawn"),
+            initializer=end_with_parent,
         )
         self.queued: dict[str, tuple[Corpus, list[str], list[Future]]] = {}
 

@@ -1,4 +1,5 @@
-"""All-or-nothing file output: a target file is replaced only by a complete new version."""
+"""All-or-nothing file output: a target file is replaced only by a complete new version; one
+writer at a time in a run folder."""
 
 from __future__ import annotations
 
@@ -9,6 +10,8 @@ import tempfile
 from collections.abc import Iterator
 from pathlib import Path
 from typing import IO, Any
+
+from tagger.errors import FolderBusyError
 
 
 @contextlib.contextmanager
@@ -71,3 +74,38 @@ def _permissions_for(target: Path) -> int:
         umask = os.umask(0)
         os.umask(umask)
         return 0o666 & ~umask
+
+
+@contextlib.contextmanager
+def exclusive_folder(folder: str | Path) -> Iterator[None]:
+    """Hold `folder` for this process alone while the block runs.
+
+    Two runs writing one folder would overwrite each other's model and checkpoint, so a second
+    one is refused with the first one's process id. The lock is the operating system's
+    (`flock` on FOLDER/.lock): it ends with the process, however the process ends. Where there is
+    no `flock` (not POSIX) the folder is not locked.
+    """
+    try:
+        import fcntl
+    except ImportError:
+        yield
+        return
+    lock = Path(folder) / ".lock"
+    with open(lock, "a+", encoding="utf-8") as handle:
+        try:
+            fcntl.flock(handle, fcntl.LOCK_EX | fcntl.LOCK_NB)
+        except BlockingIOError:
+            handle.seek(0)
+            holder = handle.read().strip() or "unknown"
+            raise FolderBusyError(
+                f"{folder}: another process (id {holder}) is training in this folder; wait for "
+                "it to finish or choose another folder"
+            ) from None
+        handle.seek(0)
+        handle.truncate()
+        handle.write(str(os.getpid()))
+        handle.flush()
+        try:
+            yield
+        finally:
+            fcntl.flock(handle, fcntl.LOCK_UN)

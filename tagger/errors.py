@@ -26,3 +26,7 @@ class ConfigError(TaggerError):
 
 class ModelFileError(TaggerError):
     """A model file that is missing, truncated, corrupted or from an incompatible version."""
+
+
+class FolderBusyError(TaggerError):
+    """A run folder that another process is writing to."""

@@ -29,7 +29,7 @@ from typing import Any
 
 import torch
 
-from tagger.atomic import atomic_output
+from tagger.atomic import atomic_output, exclusive_folder
 from tagger.averaging import WeightAverage
 from tagger.batching import EncodedSentence, bucketed_batches, collate, encode_sentence
 from tagger.config import Config
@@ -288,10 +288,16 @@ def train(
     resume: bool = False,
     progress: Progress | None = None,
 ) -> TrainResult:
-    """Train a tagger; the best model is at ``run_dir/model.tagger``. Returns the per-epoch history."""
-    report = progress or (lambda event: None)
+    """Train a tagger; the best model is at ``run_dir/model.tagger``. Returns the per-epoch history.
+
+    One run at a time in a folder: a second one is refused (FolderBusyError)."""
     run_dir = Path(run_dir)
     run_dir.mkdir(parents=True, exist_ok=True)
+    with exclusive_folder(run_dir):
+        return _train(config, run_dir, resume, progress or (lambda event: None))
+
+
+def _train(config: Config, run_dir: Path, resume: bool, report: Progress) -> TrainResult:
     if config.train.threads:
         torch.set_num_threads(config.train.threads)
     torch.manual_seed(config.train.seed)

@@ -307,3 +307,17 @@ def test_resume_with_weight_averaging_equals_an_uninterrupted_run(
             torch.equal(t, model[k])
             for k, t in load_model_file(tmp_path / "whole" / "model.tagger")[0].items()
         )
+
+
+def test_a_second_run_in_a_busy_folder_is_refused(tiny_files: Path, tmp_path: Path) -> None:
+    from tagger.atomic import exclusive_folder
+    from tagger.errors import FolderBusyError
+
+    data = tiny_files / "train.txt"
+    run = tmp_path / "run"
+    run.mkdir()
+    with exclusive_folder(run), pytest.raises(FolderBusyError, match="another process"):
+        train(small_config(data, data, train={"epochs": 1}), run)
+    assert not (run / "model.tagger").exists()
+    train(small_config(data, data, train={"epochs": 1}), run)  # free again afterwards
+    assert (run / "model.tagger").exists()
