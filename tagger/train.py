@@ -3,7 +3,8 @@
 A run folder holds everything a run leaves behind:
 
     config.toml          the resolved config
-    model.tagger         the best model so far (by dev span F1), rewritten when dev F1 improves
+    model.tagger         the best model so far (by dev span F1), rewritten when dev F1 improves;
+                         with train.weight_average, the averaged weights
     checkpoint.tagger    the state after the last finished epoch, for --resume
     history.json / .csv  one row per epoch
     metrics.json         the best epoch's dev scores and how the run ended
@@ -32,7 +33,7 @@ import torch
 from tagger.atomic import atomic_output, exclusive_folder
 from tagger.averaging import WeightAverage
 from tagger.batching import EncodedSentence, bucketed_batches, collate, encode_sentence
-from tagger.config import Config
+from tagger.config import Config, config_from_dict
 from tagger.corpus import ColumnFormat, Sentence, read_sentences
 from tagger.errors import ConfigError, DataError, ModelFileError
 from tagger.features import FeatureSpec, build_features, check_columns
@@ -154,6 +155,15 @@ def _initialise_embeddings(
                 weight[index] = torch.from_numpy(matrix[rows[word]])
                 found += 1
     return found
+
+
+def _same_config(saved: dict | None, config: Config) -> bool:
+    """Whether a checkpoint's config is `config`; keys added to the config since the checkpoint
+    was written count as their defaults, so an upgrade does not strand a half-finished run."""
+    try:
+        return saved is not None and config_from_dict(saved).to_dict() == config.to_dict()
+    except ConfigError:
+        return False
 
 
 def _epoch_seed(seed: int, epoch: int) -> int:
@@ -354,7 +364,10 @@ def _train(config: Config, run_dir: Path, resume: bool, report: Progress) -> Tra
     checkpoint = run_dir / CHECKPOINT_NAME
     if resume and checkpoint.exists():
         tensors, meta = load_model_file(checkpoint)
-        if meta.get("config") != config.to_dict() or meta.get("fingerprint") != data.fingerprint:
+        if (
+            not _same_config(meta.get("config"), config)
+            or meta.get("fingerprint") != data.fingerprint
+        ):
             raise ModelFileError(
                 f"{checkpoint}: the checkpoint was made with another config or other data; "
                 "resume with the same config and files, or choose a new run folder"

@@ -321,3 +321,25 @@ def test_a_second_run_in_a_busy_folder_is_refused(tiny_files: Path, tmp_path: Pa
     assert not (run / "model.tagger").exists()
     train(small_config(data, data, train={"epochs": 1}), run)  # free again afterwards
     assert (run / "model.tagger").exists()
+
+
+def test_a_checkpoint_from_before_a_new_config_key_still_resumes(
+    tiny_files: Path, tmp_path: Path
+) -> None:
+    from tagger.modelfile import save_model_file
+
+    data = tiny_files / "train.txt"
+    config = small_config(data, data, train={"epochs": 2})
+    train(config, tmp_path / "run")
+    checkpoint = tmp_path / "run" / "checkpoint.tagger"
+    tensors, meta = load_model_file(checkpoint)
+    del meta["config"]["train"]["weight_average"]  # as written before the key existed
+    save_model_file(checkpoint, tensors, meta)
+    resumed = train(config, tmp_path / "run", resume=True)
+    assert [row["epoch"] for row in resumed.history] == [1, 2]  # taken over, nothing retrained
+    meta["config"]["train"]["learning_rate"] = 0.5  # a real difference is still refused
+    save_model_file(checkpoint, tensors, meta)
+    from tagger.errors import ModelFileError
+
+    with pytest.raises(ModelFileError, match="another config"):
+        train(config, tmp_path / "run", resume=True)
