@@ -196,11 +196,10 @@ DEMO = Corpus(
 )
 
 # CoNLL-2000 variants: (label, what changes, overrides on top of configs/conll2000.toml).
-BASE = (
+BASE = (  # what every variant starts from
     "configs/conll2000.toml at the default model's width: lstm, 128 units per direction, 2 residual "
     "layers, character CNN, CRF, weight averaging; 15 epochs (full mode); "
-    "rnn, gru and lstm run torch's fused kernels, the minimal cell its own time loop",
-    [],
+    "rnn, gru and lstm run torch's fused kernels, the minimal cell its own time loop"
 )
 VARIANTS: dict[str, list[tuple[str, str, list[str]]]] = {
     "cells": [
@@ -397,7 +396,7 @@ class Benchmark:
             mp_context=multiprocessing.get_context("spawn"),
             initializer=end_with_parent,
         )
-        self.queued: dict[str, tuple[Corpus, list[str], list[Future]]] = {}
+        self.queued: dict[str, tuple[list[str], list[Future]]] = {}
 
     def close(self) -> None:
         self.pool.shutdown(wait=False, cancel_futures=True)
@@ -454,12 +453,12 @@ class Benchmark:
             )
             for seed in self.seeds
         ]
-        self.queued[label] = (corpus, overrides, futures)
+        self.queued[label] = (overrides, futures)
 
     def train_and_score(self, corpus: Corpus, extra: list[str], label: str) -> dict:
         """The seeds' runs of one corpus and variant (queued now if not yet), once all are done."""
         self.queue(corpus, extra, label)
-        _, overrides, futures = self.queued[label]
+        overrides, futures = self.queued[label]
         _, test = self.files(corpus)
         runs = [future.result() for future in futures]
         entry = accuracy_entry(label, corpus.config, overrides, test, runs, self.started)
@@ -578,7 +577,7 @@ class Benchmark:
             row["tag_ceiling_share"] = round(row["tag_tokens_per_second"] / tag_ceiling, 3)
         return {
             "config": str(CONLL2000.config.relative_to(ROOT)),
-            "base": BASE[0],
+            "base": BASE,
             "overrides": self.overrides(CONLL2000, self.variant_overrides([])),
             "test_file": str(CONLL2000.test)
             + (
@@ -982,7 +981,7 @@ def main() -> int:
             n for n in trained if n in VARIANTS
         ]:
             if name in VARIANTS:
-                for _, _, futures in bench.queued.values():
+                for _, futures in bench.queued.values():
                     wait(futures)
             run_and_record(name)
     finally:

@@ -22,12 +22,13 @@ class WeightAverage:
         self.steps = 0
         self.params = [p for p in net.parameters() if p.requires_grad]
         self.averaged = [p.detach().clone() for p in self.params]
+        self._live = [p.detach() for p in self.params]  # views: they follow every update
 
     def update(self) -> None:
         self.steps += 1
         decay = min(self.decay, (1 + self.steps) / (10 + self.steps))
         with torch.no_grad():
-            torch._foreach_lerp_(self.averaged, [p.detach() for p in self.params], 1.0 - decay)
+            torch._foreach_lerp_(self.averaged, self._live, 1.0 - decay)
 
     @contextmanager
     def swapped_in(self) -> Iterator[None]:
