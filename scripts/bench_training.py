@@ -47,12 +47,12 @@ ACCURACY_RUNS = {  # name: (config, test file)
 }
 
 
-def training_speed(overrides: list[str], seconds: float = 20.0) -> dict:
-    """Training tokens/s of full steps (forward, backward, clipping, Adam) on demo batches."""
+def demo_training(overrides: list[str]) -> tuple[torch.nn.Module, torch.optim.Optimizer, list]:
+    """The default config's network, the trainer's own optimizer and the demo batches."""
     config = apply_overrides(load_config(ROOT / "configs" / "default.toml"), overrides)
     setup = prepare_training(config)
     net = build_net(config, setup.vocabs, setup.features)
-    optimizer = make_optimizer(config, net)  # the trainer's own optimizer, as configured
+    optimizer = make_optimizer(config, net)
     encoded = setup.encoded
     batches = [
         collate(encoded, b)
@@ -61,6 +61,12 @@ def training_speed(overrides: list[str], seconds: float = 20.0) -> dict:
         )
     ]
     net.train()
+    return net, optimizer, batches
+
+
+def training_speed(overrides: list[str], seconds: float = 20.0) -> dict:
+    """Training tokens/s of full steps (forward, backward, clipping, Adam) on demo batches."""
+    net, optimizer, batches = demo_training(overrides)
 
     def step(batch) -> None:
         emissions = net.emissions(batch.words, batch.chars, batch.lengths, features=batch.features)
