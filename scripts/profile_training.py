@@ -14,6 +14,7 @@ import json
 import sys
 import time
 from pathlib import Path
+from statistics import median
 
 import torch
 
@@ -65,16 +66,18 @@ def top_operators(net, optimizer, batches: list, steps: int, count: int = 12) ->
     ]
 
 
-def lstm_layer_rate(hidden: int, batch: int, length: int, repeats: int = 30) -> float:
-    """GFLOP/s of one fused LSTM layer's forward and backward at the model's size."""
+def lstm_layer_rate(hidden: int, batch: int, length: int, repeats: int = 200) -> float:
+    """GFLOP/s of one fused LSTM layer's forward and backward at the model's size (median pass)."""
     layer = torch.nn.LSTM(hidden, hidden, batch_first=True)
     x = torch.randn(batch, length, hidden, requires_grad=True)
-    for _ in range(3):
+    for _ in range(10):
         layer(x)[0].sum().backward()
-    started = time.perf_counter()
+    times = []
     for _ in range(repeats):
+        started = time.perf_counter()
         layer(x)[0].sum().backward()
-    seconds = (time.perf_counter() - started) / repeats
+        times.append(time.perf_counter() - started)
+    seconds = median(times)
     # 4 gate blocks, input and recurrent products, 2 FLOPs a multiply-add; backward about 2x forward.
     flops = 3 * 2 * 4 * hidden * (hidden + hidden) * batch * length
     return flops / seconds / 1e9
