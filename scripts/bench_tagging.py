@@ -13,7 +13,9 @@ absolute figures):
   * a straightforward reference: the same model called one sentence at a time, in this process;
   * the encoder's ceiling: FLOPs per token (net.flops_per_token) over the rate of a 1024^3
     float32 matrix product timed now, at 1 and 2 threads;
-  * peak resident memory (ru_maxrss from wait4) of the command on two input sizes.
+  * peak resident memory of the command on two input sizes (VmHWM of the command and its worker
+    processes, sampled while it runs; wait4's ru_maxrss would count this process's own size,
+    which Linux carries into a child across exec).
 The input is the demo test sentences, detokenised and shuffled into documents of 2 to 8 sentences.
 Results go to benchmarks/tagging.json and benchmarks/tagging.md.
 """
@@ -28,6 +30,7 @@ import re
 import subprocess
 import sys
 import tempfile
+import threading
 import time
 from pathlib import Path
 
@@ -108,16 +111,34 @@ def write_documents(sentences: list[str], path: Path, target_bytes: int, seed: i
     return number
 
 
+def high_water_kib(pid: int) -> int:
+    """Peak resident KiB (VmHWM) of a process and its children, 0 for one that has ended."""
+    try:
+        status = Path(f"/proc/{pid}/status").read_text()
+        children = Path(f"/proc/{pid}/task/{pid}/children").read_text().split()
+    except OSError:
+        return 0
+    found = re.search(r"^VmHWM:\s+(\d+) kB", status, re.MULTILINE)
+    own = int(found.group(1)) if found else 0
+    return own + sum(high_water_kib(int(child)) for child in children)
+
+
 def run_command(model: Path, source: Path, *options: str) -> dict:
     """Run `tagger tag` in a child process; wall time, the summary's counts and peak memory."""
     out = source.with_suffix(".tagged.jsonl")
     command = [sys.executable, "-m", "tagger", "tag", str(model), str(source), "--out", str(out)]
     started = time.perf_counter()
     child = subprocess.Popen([*command, *options], stderr=subprocess.PIPE, cwd=ROOT)
-    stderr = child.stderr.read().decode() if child.stderr else ""
-    _, status, usage = os.wait4(child.pid, 0)
-    child.returncode = os.waitstatus_to_exitcode(status)
+    stderr_parts: list[bytes] = []
+    reader = threading.Thread(target=lambda: stderr_parts.append(child.stderr.read()))
+    reader.start()
+    peak_kib = 0
+    while child.poll() is None:
+        peak_kib = max(peak_kib, high_water_kib(child.pid))
+        time.sleep(0.02)
     seconds = time.perf_counter() - started
+    reader.join()
+    stderr = b"".join(stderr_parts).decode()
     if child.returncode != 0:
         raise RuntimeError(f"tagger tag failed ({child.returncode}): {stderr}")
     found = _SUMMARY.search(stderr)
@@ -133,7 +154,7 @@ def run_command(model: Path, source: Path, *options: str) -> dict:
         "seconds": round(seconds, 2),
         "tokens_per_second": round(tokens / seconds),
         "after_start_up": inside,  # the command's own figure: from model loading to the end
-        "peak_rss_mb": round(usage.ru_maxrss / 1024, 1),  # Linux reports KiB
+        "peak_rss_mb": round(peak_kib / 1024, 1),
     }
 
 
