@@ -31,7 +31,7 @@ from benchlib import machine, matmul_gflops  # noqa: E402
 
 from tagger.atomic import atomic_output  # noqa: E402
 from tagger.batching import bucketed_batches, collate  # noqa: E402
-from tagger.config import apply_overrides, config_from_dict, load_config  # noqa: E402
+from tagger.config import apply_overrides, load_config, same_config  # noqa: E402
 from tagger.errors import ModelFileError  # noqa: E402
 from tagger.evaluation import evaluate_files  # noqa: E402
 from tagger.predict import build_net, load_trained  # noqa: E402
@@ -136,9 +136,7 @@ def train_seed(
     record = out / RUN_RECORD
     if record.exists():
         saved = json.loads(record.read_text())
-        # Keys added to the config since count as their defaults, as when resuming training.
-        same = config_from_dict(saved["config"]).to_dict() == config.to_dict()
-        if same and saved["test_file"] == str(test_file):
+        if same_config(saved["config"], config) and saved["test_file"] == str(test_file):
             print(
                 f"[{out.name}] reused (trained at commit {saved['machine']['commit']})", flush=True
             )

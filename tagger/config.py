@@ -224,6 +224,15 @@ def config_from_dict(raw: dict[str, Any], base: Config | None = None) -> Config:
     return config
 
 
+def same_config(saved: dict[str, Any] | None, config: Config) -> bool:
+    """Whether a config saved as a dict (in a checkpoint or run record) is `config`; keys added to
+    the config since it was saved count as their defaults, so an upgrade does not strand a run."""
+    try:
+        return saved is not None and config_from_dict(saved).to_dict() == config.to_dict()
+    except ConfigError:
+        return False
+
+
 def load_config(path: str | Path | None) -> Config:
     """Read a TOML config file; None gives the defaults."""
     if path is None:

@@ -33,7 +33,7 @@ import torch
 from tagger.atomic import atomic_output, exclusive_folder
 from tagger.averaging import WeightAverage
 from tagger.batching import EncodedSentence, bucketed_batches, collate, encode_sentence
-from tagger.config import Config, config_from_dict
+from tagger.config import Config, same_config
 from tagger.corpus import ColumnFormat, Sentence, read_sentences
 from tagger.errors import ConfigError, DataError, ModelFileError
 from tagger.features import FeatureSpec, build_features, check_columns
@@ -155,15 +155,6 @@ def _initialise_embeddings(
                 weight[index] = torch.from_numpy(matrix[rows[word]])
                 found += 1
     return found
-
-
-def _same_config(saved: dict | None, config: Config) -> bool:
-    """Whether a checkpoint's config is `config`; keys added to the config since the checkpoint
-    was written count as their defaults, so an upgrade does not strand a half-finished run."""
-    try:
-        return saved is not None and config_from_dict(saved).to_dict() == config.to_dict()
-    except ConfigError:
-        return False
 
 
 def _epoch_seed(seed: int, epoch: int) -> int:
@@ -365,7 +356,7 @@ def _train(config: Config, run_dir: Path, resume: bool, report: Progress) -> Tra
     if resume and checkpoint.exists():
         tensors, meta = load_model_file(checkpoint)
         if (
-            not _same_config(meta.get("config"), config)
+            not same_config(meta.get("config"), config)
             or meta.get("fingerprint") != data.fingerprint
         ):
             raise ModelFileError(

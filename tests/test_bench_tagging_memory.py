@@ -2,7 +2,6 @@
 
 from __future__ import annotations
 
-import importlib.util
 import subprocess
 import sys
 import time
@@ -10,18 +9,12 @@ from pathlib import Path
 
 import pytest
 
-ROOT = Path(__file__).resolve().parents[1]
 MIB = 1024 * 1024
 
 
 @pytest.fixture(scope="module")
-def bench_tagging():
-    spec = importlib.util.spec_from_file_location(
-        "bench_tagging", ROOT / "scripts" / "bench_tagging.py"
-    )
-    module = importlib.util.module_from_spec(spec)
-    spec.loader.exec_module(module)
-    return module
+def bench_tagging(load_script):
+    return load_script("bench_tagging")
 
 
 @pytest.mark.skipif(not Path("/proc/self/status").exists(), reason="needs Linux /proc")

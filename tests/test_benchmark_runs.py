@@ -2,13 +2,11 @@
 
 from __future__ import annotations
 
-import importlib.util
 import json
 from pathlib import Path
 
 import pytest
 
-ROOT = Path(__file__).resolve().parents[1]
 SENTENCES = [
     [("Crew", "O"), ("replaced", "O"), ("the", "O"), ("yaw", "B-COMP"), ("motor", "I-COMP")],
     [("Oil", "B-DEF"), ("leak", "I-DEF"), ("at", "O"), ("T-3", "B-ASSET")],
@@ -17,13 +15,8 @@ SENTENCES = [
 
 
 @pytest.fixture(scope="module")
-def bench_training():
-    spec = importlib.util.spec_from_file_location(
-        "bench_training", ROOT / "scripts" / "bench_training.py"
-    )
-    module = importlib.util.module_from_spec(spec)
-    spec.loader.exec_module(module)
-    return module
+def bench_training(load_script):
+    return load_script("bench_training")
 
 
 @pytest.fixture

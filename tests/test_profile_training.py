@@ -2,25 +2,13 @@
 
 from __future__ import annotations
 
-import importlib.util
-import sys
-from pathlib import Path
-
 import pytest
 import torch
 
-ROOT = Path(__file__).resolve().parents[1]
-
 
 @pytest.fixture(scope="module")
-def profile_training():
-    sys.path.insert(0, str(ROOT / "scripts"))
-    spec = importlib.util.spec_from_file_location(
-        "profile_training", ROOT / "scripts" / "profile_training.py"
-    )
-    module = importlib.util.module_from_spec(spec)
-    spec.loader.exec_module(module)
-    return module
+def profile_training(load_script):
+    return load_script("profile_training")
 
 
 def test_phases_train_the_network_and_count_its_tokens(profile_training) -> None:
