@@ -43,13 +43,13 @@ sys.path.insert(0, str(ROOT / "scripts"))
 
 from benchlib import machine  # noqa: E402
 
-from tagger.batching import bucketed_batches, collate  # noqa: E402
+from tagger.apply.tagger import TrainedTagger, build_net, load_trained  # noqa: E402
 from tagger.config import Config, apply_overrides, load_config  # noqa: E402
-from tagger.corpus import read_sentences  # noqa: E402
-from tagger.metrics import count_spans, summarise  # noqa: E402
-from tagger.predict import TrainedTagger, build_net, load_trained  # noqa: E402
-from tagger.schemes import Span, tags_to_spans  # noqa: E402
-from tagger.train import make_optimizer, prepare_training, train  # noqa: E402
+from tagger.data.corpus import read_sentences  # noqa: E402
+from tagger.data.schemes import Span, tags_to_spans  # noqa: E402
+from tagger.network.batching import bucketed_batches, collate  # noqa: E402
+from tagger.scoring.metrics import count_spans, summarise  # noqa: E402
+from tagger.training.loop import make_optimizer, prepare_training, train  # noqa: E402
 
 RESULTS = ROOT / "benchmarks" / "features.json"
 SUMMARY = ROOT / "benchmarks" / "features.md"

@@ -42,10 +42,10 @@ sys.path.insert(0, str(ROOT / "scripts"))
 
 from benchlib import machine, matmul_gflops  # noqa: E402
 
-from tagger.corpus import read_sentences  # noqa: E402
-from tagger.predict import load_trained  # noqa: E402
-from tagger.tagging import tokenizer_settings  # noqa: E402
-from tagger.text import split_sentences  # noqa: E402
+from tagger.apply.tagger import load_trained  # noqa: E402
+from tagger.apply.tagging import tokenizer_settings  # noqa: E402
+from tagger.data.corpus import read_sentences  # noqa: E402
+from tagger.text.tokenizer import split_sentences  # noqa: E402
 
 RESULTS_DIR = ROOT / "benchmarks"
 DEFAULT_MODEL = ROOT / "runs" / "demo" / "model.tagger"
@@ -77,7 +77,7 @@ def ensure_model(path: Path, data: Path, epochs: int) -> Path:
     if path.exists():
         return path
     from tagger.config import apply_overrides, load_config
-    from tagger.train import train
+    from tagger.training.loop import train
 
     print(f"no model at {path}: training configs/default.toml for {epochs} epochs", flush=True)
     config = apply_overrides(

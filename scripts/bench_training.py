@@ -29,13 +29,13 @@ sys.path.insert(0, str(ROOT / "scripts"))
 
 from benchlib import machine, matmul_gflops  # noqa: E402
 
-from tagger.atomic import atomic_output  # noqa: E402
-from tagger.batching import bucketed_batches, collate  # noqa: E402
+from tagger.apply.evaluate import evaluate_files  # noqa: E402
+from tagger.apply.tagger import build_net, load_trained  # noqa: E402
 from tagger.config import apply_overrides, load_config, same_config  # noqa: E402
+from tagger.data.atomic import atomic_output  # noqa: E402
 from tagger.errors import ModelFileError  # noqa: E402
-from tagger.evaluation import evaluate_files  # noqa: E402
-from tagger.predict import build_net, load_trained  # noqa: E402
-from tagger.train import make_optimizer, prepare_training, train  # noqa: E402
+from tagger.network.batching import bucketed_batches, collate  # noqa: E402
+from tagger.training.loop import make_optimizer, prepare_training, train  # noqa: E402
 
 RESULTS = ROOT / "benchmarks" / "training.json"
 SUMMARY = ROOT / "benchmarks" / "training.md"

@@ -76,10 +76,10 @@ import bench_tagging  # noqa: E402
 from bench_training import accuracy_entry, run_speed, speed_table, train_seed  # noqa: E402
 from benchlib import machine, matmul_gflops  # noqa: E402
 
-from tagger.atomic import atomic_output  # noqa: E402
+from tagger.apply.tagger import load_trained  # noqa: E402
 from tagger.config import apply_overrides, load_config  # noqa: E402
-from tagger.corpus import read_sentences  # noqa: E402
-from tagger.predict import load_trained  # noqa: E402
+from tagger.data.atomic import atomic_output  # noqa: E402
+from tagger.data.corpus import read_sentences  # noqa: E402
 
 RESULTS_DIR = ROOT / "benchmarks"  # results.json and RESULTS.md
 CORPORA = ROOT.parent / "shared" / "corpora"

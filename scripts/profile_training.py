@@ -24,7 +24,7 @@ sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
 from bench_training import demo_training  # noqa: E402
 from benchlib import machine, matmul_gflops  # noqa: E402
 
-from tagger.atomic import atomic_output  # noqa: E402
+from tagger.data.atomic import atomic_output  # noqa: E402
 
 ROOT = Path(__file__).resolve().parents[1]
 PHASES = ("forward", "backward", "clipping", "optimizer")

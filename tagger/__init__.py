@@ -7,9 +7,11 @@ from typing import TYPE_CHECKING
 if TYPE_CHECKING:
     from pathlib import Path
 
-    from tagger.tagging import DocumentTagger
+    from tagger.apply.tagging import DocumentTagger
 
-__version__ = "0.1.0"
+from tagger.version import __version__
+
+__all__ = ["__version__", "load_tagger"]
 
 
 def load_tagger(path: str | Path, threads: int | None = None) -> DocumentTagger:
@@ -17,6 +19,6 @@ def load_tagger(path: str | Path, threads: int | None = None) -> DocumentTagger:
 
     torch is imported here, not when the package is, so ``import tagger`` stays light.
     """
-    from tagger.tagging import DocumentTagger
+    from tagger.apply.tagging import DocumentTagger
 
     return DocumentTagger.load(path, threads=threads)

@@ -16,7 +16,7 @@ from typing import Annotated, Any
 
 import typer
 
-from tagger.corpus import ColumnFormat
+from tagger.data.corpus import ColumnFormat
 from tagger.errors import TaggerError
 
 app = typer.Typer(
@@ -99,8 +99,8 @@ def check(
 ) -> None:
     """Inspect annotated column files: counts, scheme, ill-formed tags, leakage, inconsistencies,
     values of extra columns and lexicon coverage."""
-    from tagger.lexicon import CASE_MODES, read_lexicon
-    from tagger.reports import check_files, format_check
+    from tagger.data.check import check_files, format_check
+    from tagger.text.lexicon import CASE_MODES, read_lexicon
 
     if lexicon_case not in CASE_MODES:
         raise typer.BadParameter(
@@ -128,7 +128,7 @@ def convert(
     delimiter: Delimiter = "auto",
 ) -> None:
     """Rewrite a column file's labels in another tagging scheme, keeping every other column."""
-    from tagger.reports import convert_file
+    from tagger.data.check import convert_file
 
     with _domain_errors():
         summary = convert_file(
@@ -152,8 +152,8 @@ def score(
     as_json: AsJson = False,
 ) -> None:
     """Score a predicted column file against a gold one: strict span precision, recall and F1."""
-    from tagger.evaluation import score_files
-    from tagger.metrics import format_report
+    from tagger.scoring.files import score_files
+    from tagger.scoring.metrics import format_report
 
     gold_fmt = _format(delimiter, token_column, label_column)
     pred_fmt = _format(
@@ -248,7 +248,7 @@ def train(
 ) -> None:
     """Train a tagger; the best model by dev span F1 is written to OUT/model.tagger."""
     from tagger.config import apply_overrides, load_config
-    from tagger.train import train as run_training
+    from tagger.training.loop import train as run_training
 
     with _domain_errors():
         config = load_config(config_path)
@@ -288,9 +288,9 @@ def evaluate(
     as_json: AsJson = False,
 ) -> None:
     """Tag gold files with a model and report span scores per type, with the error breakdown."""
-    from tagger.evaluation import evaluate_files
-    from tagger.metrics import format_report
-    from tagger.predict import load_trained
+    from tagger.apply.evaluate import evaluate_files
+    from tagger.apply.tagger import load_trained
+    from tagger.scoring.metrics import format_report
 
     with _domain_errors():
         tagger = load_trained(model)
@@ -399,7 +399,7 @@ def tag(
     ] = 200_000,
 ) -> None:
     """Tag new documents with a model; spans point into the original text by character offsets."""
-    from tagger.tagging import TagOptions, tag_files
+    from tagger.apply.tagging import TagOptions, tag_files
 
     names = _inputs(inputs)
     try:
@@ -457,8 +457,8 @@ def tokenize(
     ] = Path("-"),
 ) -> None:
     """Show the sentences and tokens the tagger sees: token, start and end offsets per line."""
-    from tagger.tagging import tokenize_files
-    from tagger.text import TokenizerSettings
+    from tagger.apply.tagging import tokenize_files
+    from tagger.text.tokenizer import TokenizerSettings
 
     names = _inputs(inputs)
     if input_format not in ("auto", "text", "jsonl"):
@@ -468,8 +468,8 @@ def tokenize(
     with _domain_errors():
         settings = TokenizerSettings()
         if model is not None:
-            from tagger.modelfile import load_model_file
-            from tagger.tagging import tokenizer_settings
+            from tagger.apply.tagging import tokenizer_settings
+            from tagger.network.modelfile import load_model_file
 
             settings = tokenizer_settings(load_model_file(model)[1])
         notes = tokenize_files(names, out, settings, input_format)

@@ -29,7 +29,7 @@ OPTIMIZERS = ("adam", "sgd")
 SCHEDULES = ("constant", "exponential", "plateau")
 DELIMITERS = ("auto", "tab", "space")
 HOLDOUTS = ("random", "last")
-LEXICON_CASES = ("ignore", "exact", "smart")  # see tagger.lexicon
+LEXICON_CASES = ("ignore", "exact", "smart")  # see tagger.text.lexicon
 
 
 @dataclass(frozen=True)
@@ -66,7 +66,7 @@ class ModelConfig:
     min_word_count: int = 1
     pretrained_vectors: str = ""  # word2vec/GloVe text file; empty for none
     fast_kernels: bool = True  # use torch's fused kernels where a cell has one
-    # Extra input features (tagger.features); none by default.
+    # Extra input features (tagger.text.features); none by default.
     feature_columns: tuple[int, ...] = ()  # 0-based columns of the input files read as features
     feature_dim: int = 16  # embedding size of each feature column's values
     lexicons: tuple[str, ...] = ()  # lexicon files: "entry" or "entry<TAB>type" per line
@@ -191,7 +191,7 @@ def _validate(section: str, name: str, value: Any) -> None:
     if (section, name) == ("model", "lexicons") and not all(v.strip() for v in value):
         raise ConfigError(f"{key} must hold file paths, not empty strings; got {list(value)}")
     if (section, name) == ("model", "scheme"):
-        from tagger.schemes import normalise_scheme_name
+        from tagger.data.schemes import normalise_scheme_name
 
         normalise_scheme_name(value)
 

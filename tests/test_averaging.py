@@ -3,7 +3,7 @@ from __future__ import annotations
 import pytest
 import torch
 
-from tagger.averaging import WeightAverage
+from tagger.training.averaging import WeightAverage
 
 
 def test_the_average_follows_the_ramped_exponential_formula() -> None:

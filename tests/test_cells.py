@@ -1,4 +1,4 @@
-"""Tests for tagger.cells: the generic loop against torch's modules and fused kernels."""
+"""Tests for tagger.network.cells: the generic loop against torch's modules and fused kernels."""
 
 from __future__ import annotations
 
@@ -8,7 +8,7 @@ import pytest
 import torch
 from torch import nn
 
-from tagger.cells import (
+from tagger.network.cells import (
     CELL_KINDS,
     make_cell,
     padding_mask,

@@ -1,4 +1,4 @@
-"""Tests for tagger.corpus (column files) and tagger.atomic (all-or-nothing output)."""
+"""Tests for tagger.data.corpus (column files) and tagger.data.atomic (all-or-nothing output)."""
 
 from __future__ import annotations
 
@@ -11,8 +11,8 @@ import pytest
 from hypothesis import HealthCheck, assume, given, settings
 from hypothesis import strategies as st
 
-from tagger.atomic import atomic_output
-from tagger.corpus import (
+from tagger.data.atomic import atomic_output
+from tagger.data.corpus import (
     ColumnFormat,
     ColumnReader,
     Sentence,

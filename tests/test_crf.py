@@ -1,4 +1,4 @@
-"""Tests for tagger.crf against brute-force enumeration of every label path."""
+"""Tests for tagger.network.crf against brute-force enumeration of every label path."""
 
 from __future__ import annotations
 
@@ -8,7 +8,7 @@ import math
 import pytest
 import torch
 
-from tagger.crf import CRF, NEG
+from tagger.network.crf import CRF, NEG
 
 
 def _random_crf(n: int, seed: int, constrained: bool) -> CRF:

@@ -1,4 +1,4 @@
-"""Tests for tagger.encoder: padding isolation, direction starts, residual sums, gradients."""
+"""Tests for tagger.network.encoder: padding isolation, direction starts, residual sums, gradients."""
 
 from __future__ import annotations
 
@@ -6,8 +6,8 @@ import pytest
 import torch
 from torch import nn
 
-from tagger.cells import CELL_KINDS, padding_mask, run_cell
-from tagger.encoder import BiResidualEncoder
+from tagger.network.cells import CELL_KINDS, padding_mask, run_cell
+from tagger.network.encoder import BiResidualEncoder
 
 PATHS = [(kind, fast) for kind in CELL_KINDS for fast in (False, True) if kind != "minimal" or fast]
 TORCH_CELLS = {"rnn": nn.RNNCell, "gru": nn.GRUCell, "lstm": nn.LSTMCell}

@@ -1,4 +1,4 @@
-"""Tests for tagger.features and its path through config, batching, model, training, prediction,
+"""Tests for tagger.text.features and its path through config, batching, model, training, prediction,
 tagging and check: extra input columns, lexicon matches and word shapes as features."""
 
 from __future__ import annotations
@@ -12,13 +12,20 @@ import torch
 from typer.testing import CliRunner
 
 from tagger import load_tagger
-from tagger.batching import EncodedSentence, collate
+from tagger.apply.evaluate import evaluate_files
+from tagger.apply.tagger import build_net, load_trained
 from tagger.cli import app
 from tagger.config import Config, apply_overrides, config_from_dict
-from tagger.corpus import read_sentences
+from tagger.data.check import check_files, format_check
+from tagger.data.corpus import read_sentences
+from tagger.data.schemes import tags_to_spans
 from tagger.errors import ConfigError, DataError, ModelFileError
-from tagger.evaluation import evaluate_files, score_files
-from tagger.features import (
+from tagger.network.batching import EncodedSentence, collate
+from tagger.network.modelfile import load_model_file
+from tagger.network.net import TaggerNet
+from tagger.scoring.files import score_files
+from tagger.scoring.metrics import count_spans, summarise
+from tagger.text.features import (
     SHAPE_IDS,
     ColumnFeature,
     FeatureInputError,
@@ -27,15 +34,9 @@ from tagger.features import (
     shape_id,
     word_shape,
 )
-from tagger.lexicon import BEGIN, END, NO_MATCH, SINGLE, Lexicon
-from tagger.metrics import count_spans, summarise
-from tagger.model import TaggerNet
-from tagger.modelfile import load_model_file
-from tagger.predict import build_net, load_trained
-from tagger.reports import check_files, format_check
-from tagger.schemes import tags_to_spans
-from tagger.train import train
-from tagger.vocab import Vocab
+from tagger.text.lexicon import BEGIN, END, NO_MATCH, SINGLE, Lexicon
+from tagger.text.vocab import Vocab
+from tagger.training.loop import train
 
 runner = CliRunner()
 
@@ -123,7 +124,7 @@ def test_word_shapes_of_hand_examples(token: str, shape: tuple[str, str, str, st
 def test_shape_ids_are_distinct_and_leave_padding_and_unknown_free() -> None:
     from itertools import product
 
-    from tagger.features import SHAPE_AMOUNTS, SHAPE_CASES, SHAPE_LENGTHS
+    from tagger.text.features import SHAPE_AMOUNTS, SHAPE_CASES, SHAPE_LENGTHS
 
     ids = [
         WordShape(*s).id for s in product(SHAPE_CASES, SHAPE_AMOUNTS, SHAPE_AMOUNTS, SHAPE_LENGTHS)
@@ -278,7 +279,7 @@ def test_tagging_a_column_file_reads_the_column_and_survives_unseen_values(
 
 
 def read_format_with_label(column: int):  # the predicted label is appended as the last column
-    from tagger.corpus import ColumnFormat
+    from tagger.data.corpus import ColumnFormat
 
     return ColumnFormat(label_column=column)
 

@@ -1,4 +1,4 @@
-"""Tests for tagger.lexicon: reading lexicon files, matching, match tags; lexicon coverage in check."""
+"""Tests for tagger.text.lexicon: reading lexicon files, matching, match tags; lexicon coverage in check."""
 
 from __future__ import annotations
 
@@ -14,8 +14,10 @@ from typer.testing import CliRunner
 
 from tagger.cli import app
 from tagger.config import LEXICON_CASES
+from tagger.data.check import check_files, format_check
+from tagger.data.schemes import spans_to_tags
 from tagger.errors import DataError
-from tagger.lexicon import (
+from tagger.text.lexicon import (
     BEGIN,
     CASE_MODES,
     END,
@@ -25,8 +27,6 @@ from tagger.lexicon import (
     Lexicon,
     read_lexicon,
 )
-from tagger.reports import check_files, format_check
-from tagger.schemes import spans_to_tags
 
 ROOT = Path(__file__).resolve().parents[1]
 
@@ -61,7 +61,7 @@ def test_a_file_is_read_with_types_comments_and_tokenised_entries(tmp_path: Path
     lex = read_lexicon(path)
     assert lex.name == "parts" and lex.types == ("", "COMPONENT", "DEFECT")
     assert lex.categories == ["parts", "parts/COMPONENT", "parts/DEFECT"]
-    # Entries are cut by tagger.text.tokenize, as tagging cuts text: the comma stands alone,
+    # Entries are cut by tagger.text.tokenizer.tokenize, as tagging cuts text: the comma stands alone,
     # "T-14" stays whole (hand-worked from the tokeniser's rules).
     assert lex.entries == [
         (("pitch", "bearing"), "COMPONENT"),

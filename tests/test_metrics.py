@@ -1,4 +1,4 @@
-"""Tests for tagger.metrics: scores against seqeval, hand-worked counts and the error breakdown."""
+"""Tests for tagger.scoring.metrics: scores against seqeval, hand-worked counts and the error breakdown."""
 
 from __future__ import annotations
 
@@ -9,8 +9,9 @@ import warnings
 import pytest
 from seqeval.metrics import classification_report, f1_score, precision_score, recall_score
 
+from tagger.data.schemes import Span, spans_lenient, spans_to_tags
 from tagger.errors import DataError
-from tagger.metrics import (
+from tagger.scoring.metrics import (
     SpanCounts,
     count_sentence,
     count_spans,
@@ -18,7 +19,6 @@ from tagger.metrics import (
     format_report,
     summarise,
 )
-from tagger.schemes import Span, spans_lenient, spans_to_tags
 
 TYPES = ("PER", "LOC", "creative-work")  # one type holds a hyphen
 

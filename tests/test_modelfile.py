@@ -7,7 +7,7 @@ import pytest
 import torch
 
 from tagger.errors import ModelFileError
-from tagger.modelfile import FORMAT_VERSION, load_model_file, save_model_file
+from tagger.network.modelfile import FORMAT_VERSION, load_model_file, save_model_file
 
 
 def _save(path: Path) -> dict[str, torch.Tensor]:

@@ -29,7 +29,7 @@ def test_phases_train_the_network_and_count_its_tokens(profile_training) -> None
 
 
 def test_lstm_rate_counts_the_flops_the_model_counts(profile_training, monkeypatch) -> None:
-    from tagger.encoder import BiResidualEncoder
+    from tagger.network.encoder import BiResidualEncoder
 
     hidden, batch, length = 8, 2, 3
     one_layer = BiResidualEncoder(hidden, hidden, 1, "lstm", bidirectional=False)

@@ -1,4 +1,4 @@
-"""Tests for tagger.reports: the `check` report and file conversion between schemes."""
+"""Tests for tagger.data.check: the `check` report and file conversion between schemes."""
 
 from __future__ import annotations
 
@@ -10,9 +10,9 @@ from pathlib import Path
 import pytest
 from seqeval.metrics.sequence_labeling import get_entities
 
-from tagger.corpus import ColumnFormat, read_sentences
+from tagger.data.check import check_files, convert_file, format_check
+from tagger.data.corpus import ColumnFormat, read_sentences
 from tagger.errors import ConfigError, DataError
-from tagger.reports import check_files, convert_file, format_check
 
 CORPORA = Path(__file__).resolve().parents[2] / "shared" / "corpora"
 

@@ -1,4 +1,4 @@
-"""Tests for tagger.schemes: readings checked against seqeval, hand examples and brute force."""
+"""Tests for tagger.data.schemes: readings checked against seqeval, hand examples and brute force."""
 
 from __future__ import annotations
 
@@ -10,8 +10,7 @@ import pytest
 from seqeval.metrics.sequence_labeling import get_entities
 from seqeval.scheme import BILOU, IOB1, IOB2, IOBES, IOE2, Entities
 
-from tagger.errors import ConfigError, DataError
-from tagger.schemes import (
+from tagger.data.schemes import (
     SCHEME_NAMES,
     Span,
     allowed_transitions,
@@ -25,6 +24,7 @@ from tagger.schemes import (
     split_tag,
     tags_to_spans,
 )
+from tagger.errors import ConfigError, DataError
 
 TYPES = ("PER", "LOC", "creative-work")  # one type holds a hyphen: split on the first one only
 

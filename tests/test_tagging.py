@@ -14,24 +14,25 @@ from hypothesis import strategies as st
 from typer.testing import CliRunner
 
 from tagger import load_tagger
-from tagger.batching import collate
+from tagger.apply.evaluate import evaluate_files
+from tagger.apply.tagger import TrainedTagger, load_trained
+from tagger.apply.tagging import TagOptions, detect_input_format, tag_files
 from tagger.cli import app
 from tagger.config import Config, config_from_dict
-from tagger.corpus import read_sentences
-from tagger.evaluation import evaluate_files, score_files
-from tagger.modelfile import load_model_file
-from tagger.predict import TrainedTagger, load_trained
-from tagger.schemes import (
+from tagger.data.corpus import read_sentences
+from tagger.data.schemes import (
     SCHEME_NAMES,
     convert_tags,
     labels_for_types,
     spans_to_tags,
     tags_to_spans,
 )
-from tagger.tagging import TagOptions, detect_input_format, tag_files
-from tagger.text import TokenizerSettings, split_sentences
-from tagger.train import train
-from tagger.vocab import Vocab, Vocabularies
+from tagger.network.batching import collate
+from tagger.network.modelfile import load_model_file
+from tagger.scoring.files import score_files
+from tagger.text.tokenizer import TokenizerSettings, split_sentences
+from tagger.text.vocab import Vocab, Vocabularies
+from tagger.training.loop import train
 
 runner = CliRunner()
 

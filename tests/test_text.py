@@ -1,4 +1,4 @@
-"""Tests for tagger.text: the raw-text tokeniser and sentence splitter."""
+"""Tests for tagger.text.tokenizer: the raw-text tokeniser and sentence splitter."""
 
 from __future__ import annotations
 
@@ -15,7 +15,7 @@ from hypothesis import settings as hsettings
 from hypothesis import strategies as st
 
 from tagger.errors import ConfigError
-from tagger.text import TextSentence, Token, TokenizerSettings, split_sentences, tokenize
+from tagger.text.tokenizer import TextSentence, Token, TokenizerSettings, split_sentences, tokenize
 
 CORPORA = Path(__file__).resolve().parents[2] / "shared" / "corpora"
 

@@ -7,12 +7,12 @@ from pathlib import Path
 import pytest
 import torch
 
+from tagger.apply.evaluate import evaluate_files
+from tagger.apply.tagger import load_trained
 from tagger.config import Config, config_from_dict
-from tagger.evaluation import evaluate_files
-from tagger.model import TaggerNet
-from tagger.modelfile import load_model_file
-from tagger.predict import load_trained
-from tagger.train import train
+from tagger.network.modelfile import load_model_file
+from tagger.network.net import TaggerNet
+from tagger.training.loop import train
 
 TINY = [
     [
@@ -310,7 +310,7 @@ def test_resume_with_weight_averaging_equals_an_uninterrupted_run(
 
 
 def test_a_second_run_in_a_busy_folder_is_refused(tiny_files: Path, tmp_path: Path) -> None:
-    from tagger.atomic import exclusive_folder
+    from tagger.data.atomic import exclusive_folder
     from tagger.errors import FolderBusyError
 
     data = tiny_files / "train.txt"
@@ -326,7 +326,7 @@ def test_a_second_run_in_a_busy_folder_is_refused(tiny_files: Path, tmp_path: Pa
 def test_a_checkpoint_from_before_a_new_config_key_still_resumes(
     tiny_files: Path, tmp_path: Path
 ) -> None:
-    from tagger.modelfile import save_model_file
+    from tagger.network.modelfile import save_model_file
 
     data = tiny_files / "train.txt"
     config = small_config(data, data, train={"epochs": 2})

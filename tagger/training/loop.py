@@ -30,20 +30,20 @@ from typing import Any
 
 import torch
 
-from tagger.atomic import atomic_output, exclusive_folder
-from tagger.averaging import WeightAverage
-from tagger.batching import EncodedSentence, bucketed_batches, collate, encode_sentence
+from tagger.apply.tagger import TrainedTagger, build_net
 from tagger.config import Config, same_config
-from tagger.corpus import ColumnFormat, Sentence, read_sentences
+from tagger.data.atomic import atomic_output, exclusive_folder
+from tagger.data.corpus import ColumnFormat, Sentence, read_sentences
+from tagger.data.schemes import Span, detect_scheme, labels_for_types, spans_to_tags, tags_to_spans
 from tagger.errors import ConfigError, DataError, ModelFileError
-from tagger.features import FeatureSpec, build_features, check_columns
-from tagger.metrics import count_spans, summarise
-from tagger.modelfile import load_model_file, save_model_file
-from tagger.predict import TrainedTagger, build_net
-from tagger.schemes import Span, detect_scheme, labels_for_types, spans_to_tags, tags_to_spans
-from tagger.text import TokenizerSettings
-from tagger.vectors import read_word_vectors
-from tagger.vocab import Vocabularies, build_vocabularies
+from tagger.network.batching import EncodedSentence, bucketed_batches, collate, encode_sentence
+from tagger.network.modelfile import load_model_file, save_model_file
+from tagger.scoring.metrics import count_spans, summarise
+from tagger.text.features import FeatureSpec, build_features, check_columns
+from tagger.text.tokenizer import TokenizerSettings
+from tagger.text.vectors import read_word_vectors
+from tagger.text.vocab import Vocabularies, build_vocabularies
+from tagger.training.averaging import WeightAverage
 
 Progress = Callable[[dict[str, Any]], None]
 MODEL_NAME = "model.tagger"

@@ -6,10 +6,10 @@ Input formats (chosen per input from its name unless `input_format` says otherwi
 in .jsonl or .json read as jsonl, .conll .bio .iob .tsv as columns, anything else, and standard
 input, as text):
 
-    text     a UTF-8 file is one document; `tagger.text` finds its sentences and tokens
+    text     a UTF-8 file is one document; `tagger.text.tokenizer` finds its sentences and tokens
     jsonl    one JSON object per line with a "text" string and optionally an "id"; every other
              key is carried through to jsonl output untouched; blank lines are ignored
-    columns  a pre-tokenised column file (`tagger.corpus`); each sentence is one document whose
+    columns  a pre-tokenised column file (`tagger.data.corpus`); each sentence is one document whose
              text is its tokens joined by single spaces; all its columns are kept, and a model
              trained with extra feature columns (model.feature_columns) reads them from it
 
@@ -62,20 +62,20 @@ from dataclasses import dataclass, field, replace
 from pathlib import Path
 from typing import IO, TYPE_CHECKING, Any
 
-from tagger.atomic import atomic_output
+from tagger.data.atomic import atomic_output
 
 # oneDNN keeps a compiled recurrent kernel for every (batch, length) shape it meets, up to 1,024 of
 # them by default; a long input with varied sentence lengths fills that cache and peak memory grows
 # with the input (measured: +100 MB from a 10 MB to a 100 MB input). 64 keeps memory flat at no
 # measurable cost in speed. It must be set before the first kernel is built, i.e. before tagging.
 os.environ.setdefault("ONEDNN_PRIMITIVE_CACHE_CAPACITY", "64")
-from tagger.corpus import ColumnFormat, ColumnReader, Sentence, format_sentence
+from tagger.data.corpus import ColumnFormat, ColumnReader, Sentence, format_sentence
+from tagger.data.schemes import normalise_scheme_name, spans_to_tags
 from tagger.errors import ConfigError, DataError, TaggerError
-from tagger.schemes import normalise_scheme_name, spans_to_tags
-from tagger.text import TextSentence, TokenizerSettings, split_sentences
+from tagger.text.tokenizer import TextSentence, TokenizerSettings, split_sentences
 
 if TYPE_CHECKING:
-    from tagger.predict import TrainedTagger
+    from tagger.apply.tagger import TrainedTagger
 
 INPUT_FORMATS = ("text", "jsonl", "columns")
 OUTPUT_FORMATS = ("jsonl", "columns", "table")
@@ -604,7 +604,7 @@ def _start_worker(model: str, options: TagOptions) -> None:
     try:
         import torch
 
-        from tagger.predict import load_trained
+        from tagger.apply.tagger import load_trained
 
         torch.set_num_threads(options.threads or 1)
         _WORKER = _Engine(load_trained(model), options)
@@ -654,7 +654,7 @@ def tag_files(
     """
     import torch
 
-    from tagger.predict import load_trained
+    from tagger.apply.tagger import load_trained
 
     started = time.monotonic()
     tagger = load_trained(model)  # also checks the model file before any worker starts
@@ -712,7 +712,7 @@ class DocumentTagger:
 
     @classmethod
     def load(cls, path: str | Path, threads: int | None = None) -> DocumentTagger:
-        from tagger.predict import load_trained
+        from tagger.apply.tagger import load_trained
 
         if threads:
             import torch

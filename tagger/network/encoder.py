@@ -15,7 +15,7 @@ from __future__ import annotations
 import torch
 from torch import Tensor, nn
 
-from tagger.cells import (
+from tagger.network.cells import (
     CELL_KINDS,
     make_cell,
     padding_mask,

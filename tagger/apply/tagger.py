@@ -12,21 +12,21 @@ from typing import Any
 import numpy as np
 import torch
 
-from tagger import __version__
-from tagger.batching import EncodedSentence, encode_sentence
 from tagger.config import Config, config_from_dict
-from tagger.errors import ModelFileError, TaggerError
-from tagger.features import FeatureSpec
-from tagger.model import TaggerNet
-from tagger.modelfile import load_model_file, save_model_file
-from tagger.schemes import (
+from tagger.data.schemes import (
     OUTSIDE,
     Span,
     allowed_transitions,
     spans_to_tags,
     split_tag,
 )
-from tagger.vocab import Vocabularies
+from tagger.errors import ModelFileError, TaggerError
+from tagger.network.batching import EncodedSentence, encode_sentence
+from tagger.network.modelfile import load_model_file, save_model_file
+from tagger.network.net import TaggerNet
+from tagger.text.features import FeatureSpec
+from tagger.text.vocab import Vocabularies
+from tagger.version import __version__
 
 # Prefixes that close / open a span in the lenient reading (schemes.spans_lenient).
 _CLOSES = frozenset("ESLU")

@@ -1,20 +1,19 @@
-"""Score predictions against gold column files: `score` compares two files, `evaluate` runs a model first.
+"""Scoring a predicted column file against a gold one, both read from disk (no model, no torch).
 
-Both read spans the way the CoNLL evaluation does, so a predictions file written by `evaluate`
-and scored with `score` gives the same figures.
+Spans are read the way the CoNLL evaluation does, so a predictions file written by `evaluate`
+and scored here gives the same figures.
 """
 
 from __future__ import annotations
 
-from collections.abc import Iterator, Sequence
+from collections.abc import Iterator
 from itertools import zip_longest
 from pathlib import Path
 from typing import Any
 
-from tagger.corpus import ColumnFormat, Sentence, read_columns, write_columns
+from tagger.data.corpus import ColumnFormat, Sentence, read_columns
 from tagger.errors import DataError
-from tagger.metrics import SpanCounts, count_tag_sequences, summarise
-from tagger.predict import TrainedTagger
+from tagger.scoring.metrics import count_tag_sequences, summarise
 
 
 def _paired(
@@ -58,40 +57,4 @@ def score_files(
         "predicted": str(pred_path),
         "sentences": len(pairs),
         **summarise(counts),
-    }
-
-
-def evaluate_files(
-    tagger: TrainedTagger,
-    paths: Sequence[str | Path],
-    fmt: ColumnFormat = ColumnFormat(),
-    predictions: str | Path | None = None,
-) -> dict[str, Any]:
-    """Tag each gold file with the model and score it; ``predictions`` receives the predicted columns.
-
-    With several files the predictions are written one after another into the same file.
-    """
-    per_file: list[dict[str, Any]] = []
-    total = SpanCounts()
-    predicted_sentences: list[Sentence] = []
-    for path in paths:
-        sentences = list(read_columns(path, fmt))
-        predicted = tagger.predict_labels(
-            [s.tokens for s in sentences], rows=[s.rows for s in sentences]
-        )
-        counts = count_tag_sequences([s.labels for s in sentences], predicted)
-        total = total + counts
-        per_file.append({"file": str(path), "sentences": len(sentences), **summarise(counts)})
-        if predictions is not None:
-            predicted_sentences.extend(
-                s.with_labels(p) for s, p in zip(sentences, predicted, strict=True)
-            )
-    if predictions is not None:
-        write_columns(predictions, predicted_sentences)
-    overall = summarise(total) if len(per_file) > 1 else per_file[0]
-    return {
-        "files": per_file,
-        "overall": overall,
-        "model_scheme": tagger.scheme,
-        "input_scheme": tagger.input_scheme,
     }

@@ -28,13 +28,13 @@ from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
 from tagger.errors import ConfigError, DataError, TaggerError
-from tagger.lexicon import TAG_IDS, Lexicon, read_lexicon
-from tagger.text import TokenizerSettings
-from tagger.vocab import Vocab
+from tagger.text.lexicon import TAG_IDS, Lexicon, read_lexicon
+from tagger.text.tokenizer import TokenizerSettings
+from tagger.text.vocab import Vocab
 
 if TYPE_CHECKING:
     from tagger.config import ModelConfig
-    from tagger.corpus import Sentence
+    from tagger.data.corpus import Sentence
 
 UNKNOWN = 1  # the id of a column value training never saw
 

@@ -37,7 +37,7 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import BinaryIO
 
-from tagger.atomic import atomic_output
+from tagger.data.atomic import atomic_output
 from tagger.errors import ConfigError, DataError
 
 DOCSTART = "-DOCSTART-"

@@ -6,7 +6,7 @@ A batch is right-padded: sentence b occupies positions [0, lengths[b]) of every 
     chars   (batch, time, chars) character ids of each token, 0 = padding
     mask    (batch, time)        True at real tokens
     labels  (batch, time)        label ids (0 at padding, ignored through the mask), or None
-    features (batch, time, slots) ids of the extra features (tagger.features), or None
+    features (batch, time, slots) ids of the extra features (tagger.text.features), or None
 
 An encoded sentence holds its feature ids slot-major (one list per slot, as `FeatureSpec.encode`
 gives them); `collate` lays them out token-major:
@@ -26,7 +26,7 @@ from dataclasses import dataclass
 import numpy as np
 import torch
 
-from tagger.vocab import Vocabularies
+from tagger.text.vocab import Vocabularies
 
 MAX_TOKEN_CHARS = (
     24  # longer tokens keep their first and last 12 characters: affixes carry the signal

@@ -5,7 +5,7 @@ chars (B,T,C) ─CNN/RNN┤
 features (B,T,K) ─────┴─ concat ─ dropout ─ BiResidualEncoder ─ dropout ─ linear ─> emissions (B,T,L)
   one embedding per slot (optional)                                      └─ CRF or softmax
 
-The feature slots (extra columns, lexicon categories, word shape; see tagger.features) each get a
+The feature slots (extra columns, lexicon categories, word shape; see tagger.text.features) each get a
 small embedding; a model without them has no such modules, so its parameters are as they were.
 """
 
@@ -17,8 +17,8 @@ import torch
 from torch import nn
 
 from tagger.config import ModelConfig
-from tagger.crf import CRF
-from tagger.encoder import BiResidualEncoder, SharedDropout
+from tagger.network.crf import CRF
+from tagger.network.encoder import BiResidualEncoder, SharedDropout
 
 Transitions = tuple[list[bool], list[list[bool]], list[bool]]
 

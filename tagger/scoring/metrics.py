@@ -28,8 +28,8 @@ from dataclasses import dataclass, field
 from itertools import zip_longest
 from typing import Any
 
+from tagger.data.schemes import Span, spans_lenient
 from tagger.errors import DataError
-from tagger.schemes import Span, spans_lenient
 
 GOLD_OUTCOMES: tuple[str, ...] = ("exact", "wrong_type", "boundary", "type_and_boundary", "missed")
 PREDICTED_OUTCOMES: tuple[str, ...] = (
@@ -139,7 +139,7 @@ def count_tag_sequences(
 ) -> SpanCounts:
     """Counts for paired gold and predicted tag sequences, one pair per sentence.
 
-    Spans are read with :func:`tagger.schemes.spans_lenient` sentence by sentence. Raises
+    Spans are read with :func:`tagger.data.schemes.spans_lenient` sentence by sentence. Raises
     DataError if the numbers of sentences or the lengths of a pair differ.
     """
     counts = SpanCounts()

@@ -23,12 +23,10 @@ from collections import Counter
 from collections.abc import Callable, Iterable, Iterator, Sequence
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
-from tagger.corpus import STDIO, ColumnFormat, ColumnReader, ReadStats, Sentence, write_columns
-from tagger.errors import DataError
-from tagger.lexicon import Lexicon
-from tagger.schemes import (
+from tagger.data.corpus import STDIO, ColumnFormat, ColumnReader, ReadStats, Sentence, write_columns
+from tagger.data.schemes import (
     convert_tags,
     detect_scheme,
     ill_formed_transitions,
@@ -36,6 +34,10 @@ from tagger.schemes import (
     spans_lenient,
     split_tag,
 )
+from tagger.errors import DataError
+
+if TYPE_CHECKING:
+    from tagger.text.lexicon import Lexicon
 
 _ANY_FORMAT = ColumnFormat()  # the defaults: detect the delimiter, token first, label last
 
@@ -92,7 +94,7 @@ class _Examples:
 
 @dataclass
 class _Coverage:
-    """How one lexicon's matches (tagger.lexicon) meet the gold spans of one file."""
+    """How one lexicon's matches (tagger.text.lexicon) meet the gold spans of one file."""
 
     lexicon: Lexicon
     exact: Counter[str] = field(default_factory=Counter)  # per gold type

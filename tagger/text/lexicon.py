@@ -10,7 +10,7 @@ A lexicon file is UTF-8 text with one entry per line, optionally followed by a T
     anemometer
 
 Blank lines and lines whose first character is "#" are skipped. An entry is cut into tokens by
-`tagger.text.tokenize` (the tokeniser tagging uses), so "gbx oil-filter" matches the tokens the
+`tagger.text.tokenizer.tokenize` (the tokeniser tagging uses), so "gbx oil-filter" matches the tokens the
 tagger sees. The same entry may be listed with several types; it then marks each of them.
 
 Each (lexicon, type) pair is a *category*; an entry without a type belongs to the category named
@@ -36,7 +36,7 @@ from pathlib import Path
 from typing import Any
 
 from tagger.errors import ConfigError, DataError
-from tagger.text import TokenizerSettings, tokenize
+from tagger.text.tokenizer import TokenizerSettings, tokenize
 
 CASE_MODES = ("ignore", "exact", "smart")
 
