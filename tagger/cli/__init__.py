@@ -1,0 +1,13 @@
+"""The `tagger` command: parses options, calls library functions, turns errors into exit codes.
+
+stdout carries data only (tables, JSON); notes and progress go to stderr.
+Exit codes: 0 success, 1 a problem with the data, config or model (one clear line), 2 bad usage.
+
+Each module registers its commands on the one app; none imports torch at import time, so
+`tagger check` and `tagger score` start fast.
+"""
+
+from tagger.cli import files, model, tagging  # noqa: F401  (registers the commands)
+from tagger.cli.common import app
+
+__all__ = ["app"]

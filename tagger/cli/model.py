@@ -1,0 +1,121 @@
+"""Commands that make or measure a model: train, evaluate."""
+
+from __future__ import annotations
+
+import json
+from pathlib import Path
+from typing import Annotated
+
+import typer
+
+from tagger.cli.common import (
+    AsJson,
+    Delimiter,
+    ExistingFile,
+    LabelColumn,
+    TokenColumn,
+    app,
+    column_format,
+    domain_errors,
+    print_json,
+    say,
+)
+from tagger.cli.progress import TrainingProgress
+
+
+@app.command()
+def train(
+    config_path: Annotated[
+        Path | None, typer.Option("--config", exists=True, dir_okay=False, help="TOML config file.")
+    ] = None,
+    train_file: Annotated[
+        Path | None,
+        typer.Option(
+            "--train",
+            exists=True,
+            dir_okay=False,
+            help="Training column file (overrides data.train).",
+        ),
+    ] = None,
+    dev_file: Annotated[
+        Path | None,
+        typer.Option(
+            "--dev", exists=True, dir_okay=False, help="Dev column file (overrides data.dev)."
+        ),
+    ] = None,
+    out: Annotated[
+        Path,
+        typer.Option(
+            "--out", file_okay=False, help="Run folder for the model, checkpoint and history."
+        ),
+    ] = Path("runs/latest"),
+    overrides: Annotated[
+        list[str] | None,
+        typer.Option(
+            "--set", help="Override a config key, e.g. --set model.cell=gru (repeatable)."
+        ),
+    ] = None,
+    resume: Annotated[
+        bool, typer.Option("--resume", help="Continue from the run folder's last checkpoint.")
+    ] = False,
+) -> None:
+    """Train a tagger; the best model by dev span F1 is written to OUT/model.tagger."""
+    from tagger.config import apply_overrides, load_config
+    from tagger.training.loop import train as run_training
+
+    with domain_errors():
+        config = load_config(config_path)
+        extra = list(overrides or [])
+        if train_file:
+            extra.append(f"data.train={json.dumps(str(train_file))}")
+        if dev_file:
+            extra.append(f"data.dev={json.dumps(str(dev_file))}")
+        config = apply_overrides(config, extra)
+        try:
+            result = run_training(config, out, resume=resume, progress=TrainingProgress())
+        except KeyboardInterrupt:
+            say(f"\ninterrupted: continue with the same command and --resume (run folder {out})")
+            raise typer.Exit(130) from None
+    if result.diverged:
+        say(f"tagger: error: {result.stop_reason}")
+        raise typer.Exit(1)
+    say(f"stopped: {result.stop_reason}")
+    say(
+        f"best dev F1 {100 * result.best_dev['micro']['f1']:.2f} at epoch {result.best_epoch}; model: {result.model_path}"
+    )
+
+
+@app.command()
+def evaluate(
+    model: ExistingFile,
+    files: Annotated[
+        list[Path], typer.Argument(exists=True, dir_okay=False, help="Gold column files.")
+    ],
+    predictions: Annotated[
+        Path | None,
+        typer.Option("--predictions", dir_okay=False, help="Write the predicted column file here."),
+    ] = None,
+    token_column: TokenColumn = 0,
+    label_column: LabelColumn = -1,
+    delimiter: Delimiter = "auto",
+    as_json: AsJson = False,
+) -> None:
+    """Tag gold files with a model and report span scores per type, with the error breakdown."""
+    from tagger.apply.evaluate import evaluate_files
+    from tagger.apply.tagger import load_trained
+    from tagger.scoring.metrics import format_report
+
+    with domain_errors():
+        tagger = load_trained(model)
+        result = evaluate_files(
+            tagger, files, column_format(delimiter, token_column, label_column), predictions
+        )
+    if as_json:
+        print_json(result)
+        return
+    for entry in result["files"]:
+        print(f"== {entry['file']} ({entry['sentences']} sentences)")
+        print(format_report(entry))
+    if len(result["files"]) > 1:
+        print("== all files")
+        print(format_report(result["overall"]))

@@ -1,0 +1,154 @@
+"""Commands on new text: tag, tokenize."""
+
+from __future__ import annotations
+
+from pathlib import Path
+from typing import Annotated
+
+import typer
+
+from tagger.cli.common import (
+    ExistingFile,
+    TokenColumn,
+    app,
+    count,
+    domain_errors,
+    input_names,
+    say,
+)
+from tagger.cli.progress import TaggingProgress
+from tagger.errors import TaggerError
+
+
+@app.command()
+def tag(
+    model: ExistingFile,
+    inputs: Annotated[
+        list[Path] | None,
+        typer.Argument(help="Files to tag, in order; '-' or none reads standard input."),
+    ] = None,
+    out: Annotated[
+        Path, typer.Option("--out", "-o", dir_okay=False, help="Output file ('-' for stdout).")
+    ] = Path("-"),
+    input_format: Annotated[
+        str,
+        typer.Option(
+            help="auto, text, jsonl or columns. auto reads .jsonl/.json as jsonl, "
+            ".conll/.bio/.iob/.tsv as columns, anything else (and stdin) as text."
+        ),
+    ] = "auto",
+    output_format: Annotated[
+        str,
+        typer.Option(
+            help="jsonl (a record per document), columns (token and label per line) or "
+            "table (tab-separated spans with a header)."
+        ),
+    ] = "jsonl",
+    scheme: Annotated[
+        str | None,
+        typer.Option(help="Label scheme of columns output (default: that of the training files)."),
+    ] = None,
+    token_column: TokenColumn = 0,
+    min_score: Annotated[float, typer.Option(help="Drop spans scoring below this (0 to 1).")] = 0.0,
+    review_below: Annotated[
+        float,
+        typer.Option(help="Flag documents holding a span that scores below this (0 to 1)."),
+    ] = 0.8,
+    on_error: Annotated[
+        str,
+        typer.Option(
+            help="stop: exit 1 at the first bad input item; skip: go on and list each one."
+        ),
+    ] = "stop",
+    max_sentence_tokens: Annotated[
+        int | None,
+        typer.Option(help="Longest sentence accepted (default: the model's tokenizer setting)."),
+    ] = None,
+    threads: Annotated[
+        int, typer.Option(help="torch threads per process (0: all cores, or 1 per worker).")
+    ] = 0,
+    workers: Annotated[
+        int, typer.Option(help="Worker processes, each holding the model once.")
+    ] = 1,
+    batch_size: Annotated[int, typer.Option(help="Sentences per batch.")] = 64,
+    chunk_chars: Annotated[
+        int, typer.Option(help="Characters of text read, tagged and written at a time.")
+    ] = 200_000,
+) -> None:
+    """Tag new documents with a model; spans point into the original text by character offsets."""
+    from tagger.apply.tagging import TagOptions, tag_files
+
+    names = input_names(inputs)
+    try:
+        options = TagOptions(
+            input_format=input_format,
+            output_format=output_format,
+            scheme=scheme,
+            token_column=token_column,
+            min_score=min_score,
+            review_below=review_below,
+            on_error=on_error,
+            max_sentence_tokens=max_sentence_tokens,
+            batch_size=batch_size,
+            chunk_chars=chunk_chars,
+            workers=workers,
+            threads=threads,
+        )
+    except TaggerError as error:
+        raise typer.BadParameter(str(error)) from None
+    progress = TaggingProgress()
+    try:
+        with domain_errors():
+            summary = tag_files(model, names, out, options, progress)
+    finally:
+        progress.clear()
+    for note in summary.notes:
+        say(f"note: {note}")
+    say(
+        f"tagged {count(summary.documents, 'document')} ({summary.review:,} to review), "
+        f"{count(summary.sentences, 'sentence')}, {count(summary.tokens, 'token')}, "
+        f"{count(summary.spans, 'span')} in {summary.seconds:.1f} s "
+        f"({summary.tokens_per_second:,.0f} tokens/s); {len(summary.skipped)} skipped"
+    )
+    for item in summary.skipped:
+        say(f"  skipped {item}")
+
+
+@app.command()
+def tokenize(
+    inputs: Annotated[
+        list[Path] | None,
+        typer.Argument(help="Text or jsonl files; '-' or none reads standard input."),
+    ] = None,
+    model: Annotated[
+        Path | None,
+        typer.Option(
+            "--model", exists=True, dir_okay=False, help="Use this model's tokenizer settings."
+        ),
+    ] = None,
+    input_format: Annotated[
+        str, typer.Option(help="auto (from the file name), text or jsonl.")
+    ] = "auto",
+    out: Annotated[
+        Path, typer.Option("--out", "-o", dir_okay=False, help="Output file ('-' for stdout).")
+    ] = Path("-"),
+) -> None:
+    """Show the sentences and tokens the tagger sees: token, start and end offsets per line."""
+    from tagger.apply.tagging import tokenize_files
+    from tagger.text.tokenizer import TokenizerSettings
+
+    names = input_names(inputs)
+    if input_format not in ("auto", "text", "jsonl"):
+        raise typer.BadParameter(
+            f"must be auto, text or jsonl, not {input_format!r}", param_hint="--input-format"
+        )
+    with domain_errors():
+        settings = TokenizerSettings()
+        if model is not None:
+            from tagger.apply.tagging import tokenizer_settings
+            from tagger.network.modelfile import load_model_file
+
+            settings = tokenizer_settings(load_model_file(model)[1])
+        notes = tokenize_files(names, out, settings, input_format)
+    for note in notes:
+        say(f"note: {note}")
