@@ -20,6 +20,8 @@ from dataclasses import dataclass, field, fields, replace
 from pathlib import Path
 from typing import Any
 
+import tomli_w
+
 from tagger.errors import ConfigError
 
 CELLS = ("rnn", "minimal", "gru", "lstm")
@@ -106,6 +108,13 @@ class Config:
             section: {k: list(v) if isinstance(v, tuple) else v for k, v in values.items()}
             for section, values in dataclasses.asdict(self).items()
         }
+
+    def to_toml(self) -> str:
+        """The config as a TOML document that `load_config` reads back to an equal Config.
+
+        Written by a TOML writer, so that values JSON cannot spell in TOML (inf, nan) and any
+        string escape come out as TOML."""
+        return tomli_w.dumps(self.to_dict())
 
 
 SECTIONS: dict[str, type] = {"data": DataConfig, "model": ModelConfig, "train": TrainConfig}

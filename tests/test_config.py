@@ -72,3 +72,18 @@ def test_overrides_are_read_as_toml_values() -> None:
 def test_malformed_override_is_refused() -> None:
     with pytest.raises(ConfigError, match="section.key=value"):
         apply_overrides(Config(), ["layers=3"])
+
+
+def test_to_toml_reads_back_as_the_same_config(tmp_path: Path) -> None:
+    # Values JSON would spell in ways TOML rejects (Infinity) or that need escapes.
+    config = config_from_dict(
+        {
+            "data": {"train": 'a "quoted" n\u00e4me\\with\tstops.txt'},
+            "model": {"feature_columns": [1, 2], "lexicons": ["x.tsv"]},
+            "train": {"max_minutes": float("inf"), "learning_rate": 1e-7},
+        }
+    )
+    path = tmp_path / "config.toml"
+    path.write_text(config.to_toml(), encoding="utf-8")
+    assert load_config(path) == config
+    assert "max_minutes = inf" in config.to_toml()
