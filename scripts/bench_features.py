@@ -16,7 +16,8 @@ the predicted spans whose (type, text) never does, and their F1; also for COMPON
 alone (the lexicon's types).
 
 Speed, measured side by side in alternating rounds (these machines are shared and noisy):
-training tokens/s of full steps (collate, forward, backward, clipping, Adam) on the demo batches,
+training tokens/s of full steps on the demo batches (collating a batch, then the trainer's own
+`train_step`: unknown-word replacement, forward, backward, clipping, Adam),
 and tagging tokens/s of `predict_scored_spans` (the `tag` command's path: feature ids, lexicon
 matching, character features per distinct token, CRF decoding and marginals) on the test split.
 
@@ -43,13 +44,15 @@ sys.path.insert(0, str(ROOT / "scripts"))
 
 from benchlib import machine  # noqa: E402
 
-from tagger.apply.tagger import TrainedTagger, build_net, load_trained  # noqa: E402
+from tagger.apply.tagger import TrainedTagger, load_trained  # noqa: E402
 from tagger.config import Config, apply_overrides, load_config  # noqa: E402
 from tagger.data.corpus import read_sentences  # noqa: E402
 from tagger.data.schemes import Span, tags_to_spans  # noqa: E402
 from tagger.network.batching import bucketed_batches, collate  # noqa: E402
 from tagger.scoring.metrics import count_spans, summarise  # noqa: E402
-from tagger.training.loop import make_optimizer, prepare_training, train  # noqa: E402
+from tagger.training.loop import train  # noqa: E402
+from tagger.training.setup import new_network, prepare_training, step_tools  # noqa: E402
+from tagger.training.step import train_step  # noqa: E402
 
 RESULTS = ROOT / "benchmarks" / "features.json"
 SUMMARY = ROOT / "benchmarks" / "features.md"
@@ -140,13 +143,14 @@ def accuracy(tagger: TrainedTagger) -> dict[str, Any]:
 
 
 def training_step(config: Config) -> Any:
-    """A function running one training step on the next demo batch; returns its token count."""
+    """A function running the trainer's own `train_step` on the next demo batch (collated
+    inside, as training does); returns its token count."""
     setup = prepare_training(config)
     encoded = setup.encoded
     torch.manual_seed(1)
-    net = build_net(config, setup.vocabs, setup.features)
+    net, _ = new_network(config, setup)
     net.train()
-    optimizer = make_optimizer(config, net)  # the trainer's own optimizer, as configured
+    tools = step_tools(config, setup, net)  # the trainer's optimizer, clipping and averaging
     order = bucketed_batches(
         [len(e.words) for e in encoded], config.train.batch_size, random.Random(1)
     )
@@ -156,12 +160,7 @@ def training_step(config: Config) -> Any:
         indices = order[position[0] % len(order)]
         position[0] += 1
         batch = collate(encoded, indices)
-        emissions = net.emissions(batch.words, batch.chars, batch.lengths, features=batch.features)
-        loss = net.loss(emissions, batch.labels, batch.mask)
-        optimizer.zero_grad(set_to_none=True)
-        (loss / len(indices)).backward()
-        torch.nn.utils.clip_grad_norm_(net.parameters(), config.train.clip_norm)
-        optimizer.step()
+        train_step(tools, batch)
         return batch.tokens
 
     for _ in range(5):  # warm up

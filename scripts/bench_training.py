@@ -30,12 +30,14 @@ sys.path.insert(0, str(ROOT / "scripts"))
 from benchlib import machine, matmul_gflops  # noqa: E402
 
 from tagger.apply.evaluate import evaluate_files  # noqa: E402
-from tagger.apply.tagger import build_net, load_trained  # noqa: E402
+from tagger.apply.tagger import load_trained  # noqa: E402
 from tagger.config import apply_overrides, load_config, same_config  # noqa: E402
 from tagger.data.atomic import atomic_output  # noqa: E402
 from tagger.errors import ModelFileError  # noqa: E402
-from tagger.network.batching import bucketed_batches, collate  # noqa: E402
-from tagger.training.loop import make_optimizer, prepare_training, train  # noqa: E402
+from tagger.network.batching import Batch, bucketed_batches, collate  # noqa: E402
+from tagger.training.loop import train  # noqa: E402
+from tagger.training.setup import new_network, prepare_training, step_tools  # noqa: E402
+from tagger.training.step import StepTools, train_step  # noqa: E402
 
 RESULTS = ROOT / "benchmarks" / "training.json"
 SUMMARY = ROOT / "benchmarks" / "training.md"
@@ -47,12 +49,12 @@ ACCURACY_RUNS = {  # name: (config, test file)
 }
 
 
-def demo_training(overrides: list[str]) -> tuple[torch.nn.Module, torch.optim.Optimizer, list]:
-    """The default config's network, the trainer's own optimizer and the demo batches."""
+def demo_training(overrides: list[str]) -> tuple[StepTools, list[Batch]]:
+    """The default config's network with the trainer's own step tools, and the demo batches."""
     config = apply_overrides(load_config(ROOT / "configs" / "default.toml"), overrides)
     setup = prepare_training(config)
-    net = build_net(config, setup.vocabs, setup.features)
-    optimizer = make_optimizer(config, net)
+    net, _ = new_network(config, setup)
+    tools = step_tools(config, setup, net)
     encoded = setup.encoded
     batches = [
         collate(encoded, b)
@@ -61,32 +63,24 @@ def demo_training(overrides: list[str]) -> tuple[torch.nn.Module, torch.optim.Op
         )
     ]
     net.train()
-    return net, optimizer, batches
+    return tools, batches
 
 
 def training_speed(overrides: list[str], seconds: float = 20.0) -> dict:
-    """Training tokens/s of full steps (forward, backward, clipping, Adam) on demo batches."""
-    net, optimizer, batches = demo_training(overrides)
-
-    def step(batch) -> None:
-        emissions = net.emissions(batch.words, batch.chars, batch.lengths, features=batch.features)
-        loss = net.loss(emissions, batch.labels, batch.mask)
-        optimizer.zero_grad()
-        (loss / len(batch.indices)).backward()
-        torch.nn.utils.clip_grad_norm_(net.parameters(), 5.0)
-        optimizer.step()
-
+    """Training tokens/s of the trainer's own `train_step` on demo batches (unknown-word
+    replacement, forward, backward, clipping, the optimizer, weight averaging when on)."""
+    tools, batches = demo_training(overrides)
     for batch in batches[:5]:
-        step(batch)
+        train_step(tools, batch)
     tokens, start, i = 0, time.perf_counter(), 0
     while time.perf_counter() - start < seconds:
         batch = batches[i % len(batches)]
-        step(batch)
+        train_step(tools, batch)
         tokens += batch.tokens
         i += 1
     rate = tokens / (time.perf_counter() - start)
     # Training costs about 3x the forward FLOPs (PERFORMANCE.md, common practice for dense layers).
-    flops = 3 * net.flops_per_token()
+    flops = 3 * tools.net.flops_per_token()
     return {
         "overrides": overrides,
         "tokens_per_second": round(rate),
@@ -276,7 +270,8 @@ def render(results: dict) -> str:
             f"`{m['command']}`",
             "",
             "Ceiling = measured 1024^3 float32 matrix-product rate / (3 x forward FLOPs per token of "
-            "the word-level encoder and output layer). Full steps: forward, backward, clipping, Adam.",
+            "the word-level encoder and output layer). Full steps, the trainer's own `train_step`: "
+            "unknown-word replacement, forward, backward, clipping, Adam.",
             "",
         ]
         lines += speed_table(speed["rows"])

@@ -1,10 +1,12 @@
 """Where a training step's time goes: the default model on demo batches.
 
-Times the phases of each step (forward, backward, clipping, optimizer), lists the operators with the
-most self time (torch.profiler), and times one fused LSTM layer alone at the model's size, each beside
-the matrix-product ceiling measured in the same run. Writes benchmarks/training_profile.{json,md}.
+Times the phases of the trainer's own step (tagger.training.step.STEP_PHASES: unknown words,
+forward, backward, clipping, optimizer, averaging) with a clock between them, lists the operators
+with the most self time (torch.profiler), and times one fused LSTM layer alone at the model's size,
+each beside the matrix-product ceiling measured in the same run. Writes
+benchmarks/training_profile.{json,md}.
 
-    .venv/bin/python scripts/profile_training.py [--steps 300] [--threads 1]
+    .venv/bin/python scripts/profile_training.py [--steps 300] [--threads 1] [--set KEY=VALUE]
 """
 
 from __future__ import annotations
@@ -25,38 +27,37 @@ from bench_training import demo_training  # noqa: E402
 from benchlib import machine, matmul_gflops  # noqa: E402
 
 from tagger.data.atomic import atomic_output  # noqa: E402
+from tagger.network.batching import Batch  # noqa: E402
+from tagger.training.step import STEP_PHASES, StepTools, StepWork, train_step  # noqa: E402
 
 ROOT = Path(__file__).resolve().parents[1]
-PHASES = ("forward", "backward", "clipping", "optimizer")
+PHASES = tuple(name for name, _ in STEP_PHASES)
 
 
-def phase_times(net, optimizer, batches: list, steps: int) -> tuple[dict[str, float], int]:
-    """Seconds spent in each phase over `steps` steps, and the tokens they trained on."""
+def phase_times(tools: StepTools, batches: list[Batch], steps: int) -> tuple[dict[str, float], int]:
+    """Seconds spent in each phase of `train_step` over `steps` steps, and the tokens they
+    trained on: the step's own phases, in its order, with a clock read between them."""
     spent = dict.fromkeys(PHASES, 0.0)
     tokens = 0
     for i in range(steps):
         batch = batches[i % len(batches)]
-        t0 = time.perf_counter()
-        emissions = net.emissions(batch.words, batch.chars, batch.lengths, features=batch.features)
-        loss = net.loss(emissions, batch.labels, batch.mask) / len(batch.indices)
-        t1 = time.perf_counter()
-        optimizer.zero_grad()
-        loss.backward()
-        t2 = time.perf_counter()
-        torch.nn.utils.clip_grad_norm_(net.parameters(), 5.0)
-        t3 = time.perf_counter()
-        optimizer.step()
-        t4 = time.perf_counter()
-        for name, seconds in zip(PHASES, (t1 - t0, t2 - t1, t3 - t2, t4 - t3), strict=True):
-            spent[name] += seconds
+        work = StepWork(batch)
+        for name, phase in STEP_PHASES:
+            started = time.perf_counter()
+            phase(tools, work)
+            spent[name] += time.perf_counter() - started
         tokens += batch.tokens
     return spent, tokens
 
 
-def top_operators(net, optimizer, batches: list, steps: int, count: int = 12) -> list[dict]:
-    """The operators with the most self CPU time over `steps` steps, with their share."""
+def top_operators(
+    tools: StepTools, batches: list[Batch], steps: int, count: int = 12
+) -> list[dict]:
+    """The operators with the most self CPU time over `steps` calls of `train_step`, with their
+    share."""
     with torch.profiler.profile(activities=[torch.profiler.ProfilerActivity.CPU]) as prof:
-        phase_times(net, optimizer, batches, steps)
+        for i in range(steps):
+            train_step(tools, batches[i % len(batches)])
     events = [e for e in prof.key_averages() if e.self_cpu_time_total > 0]
     total = sum(e.self_cpu_time_total for e in events)
     events.sort(key=lambda e: e.self_cpu_time_total, reverse=True)
@@ -83,15 +84,16 @@ def lstm_layer_rate(hidden: int, batch: int, length: int, repeats: int = 200) ->
     return flops / seconds / 1e9
 
 
-def profile(threads: int, steps: int) -> dict:
+def profile(threads: int, steps: int, overrides: list[str]) -> dict:
     torch.manual_seed(1)
     torch.set_num_threads(threads)
     started_on = machine()
     ceiling_before = matmul_gflops(threads)
-    net, optimizer, batches = demo_training([])
-    phase_times(net, optimizer, batches, 10)  # warm-up
-    spent, tokens = phase_times(net, optimizer, batches, steps)
-    operators = top_operators(net, optimizer, batches, min(steps, 100))
+    tools, batches = demo_training(overrides)
+    net = tools.net
+    phase_times(tools, batches, 10)  # warm-up
+    spent, tokens = phase_times(tools, batches, steps)
+    operators = top_operators(tools, batches, min(steps, 100))
     mean_length = round(sum(b.tokens for b in batches) / sum(len(b.indices) for b in batches))
     hidden = net.encoder.hidden_size
     # The machine's rate drifts within minutes: pair each LSTM timing with a ceiling taken beside it.
@@ -103,6 +105,7 @@ def profile(threads: int, steps: int) -> dict:
     return {
         "machine": started_on,
         "threads": threads,
+        "overrides": overrides,
         "steps": steps,
         "tokens_per_second": round(tokens / total),
         "ceiling_gflops": round(ceiling, 1),
@@ -121,11 +124,12 @@ def profile(threads: int, steps: int) -> dict:
 
 def render(r: dict) -> str:
     m, lstm = r["machine"], r["lstm_layer"]
+    overrides = "".join(f", `{o}`" for o in r.get("overrides", []))
     lines = [
         "# Where a training step's time goes",
         "",
-        f"Default model (`configs/default.toml`) on demo batches, {r['threads']} thread(s), "
-        f"{r['steps']} steps: {r['tokens_per_second']:,} tokens/s, "
+        f"Default model (`configs/default.toml`{overrides}) on demo batches, the trainer's own "
+        f"step, {r['threads']} thread(s), {r['steps']} steps: {r['tokens_per_second']:,} tokens/s, "
         f"{100 * r['ceiling_share']:.0f}% of the matrix-product ceiling "
         f"({r['ceiling_gflops']} GFLOP/s, 1024^3 float32, measured in this run).",
         "",
@@ -161,8 +165,15 @@ def main() -> None:
     parser.add_argument("--steps", type=int, default=300, help="timed training steps")
     parser.add_argument("--threads", type=int, default=1, help="torch threads")
     parser.add_argument("--out", type=Path, default=ROOT / "benchmarks" / "training_profile")
+    parser.add_argument(
+        "--set",
+        dest="overrides",
+        action="append",
+        default=[],
+        help="override a config key, e.g. --set train.weight_average=0.999 (repeatable)",
+    )
     args = parser.parse_args()
-    result = profile(args.threads, args.steps)
+    result = profile(args.threads, args.steps, args.overrides)
     with atomic_output(args.out.with_suffix(".json")) as out:
         out.write(json.dumps(result, indent=2) + "\n")
     with atomic_output(args.out.with_suffix(".md")) as out:

@@ -2,57 +2,53 @@
 
 Averaging the weights of the last few thousand updates (Polyak & Juditsky 1992) smooths out the
 noise of the final steps; the trainer scores dev with the average and saves it as the model. The
-decay ramps up from 0 as min(decay, (1 + steps) / (10 + steps)), so early averages are not held
-back by the random initial weights.
+average is torch's `AveragedModel` (a copy of the network beside the live one) with an averaging
+function of our own: the decay ramps up from 0 as min(decay, (1 + steps) / (10 + steps)), so early
+averages are not held back by the random initial weights.
+
+The starting weights count as the first model averaged, so after `steps` training steps the
+copy's `n_averaged` is steps + 1 and step t averages with decay min(decay, (1 + t) / (10 + t)).
 """
 
 from __future__ import annotations
 
-from collections.abc import Iterator
-from contextlib import contextmanager
+from collections.abc import Callable
 
 import torch
+from torch.optim.swa_utils import AveragedModel
+
+AverageUpdate = Callable[[list[torch.Tensor], list[torch.Tensor], torch.Tensor | int], None]
 
 
-class WeightAverage:
-    """The running average of every parameter of `net`, updated after each optimizer step."""
+def ramped_decay(decay: float, steps: int) -> float:
+    """The decay applied at training step `steps` (1 for the first step)."""
+    return min(decay, (1 + steps) / (10 + steps))
 
-    def __init__(self, net: torch.nn.Module, decay: float) -> None:
-        self.decay = decay
-        self.steps = 0
-        self.params = [p for p in net.parameters() if p.requires_grad]
-        self.averaged = [p.detach().clone() for p in self.params]
-        self._live = [p.detach() for p in self.params]  # views: they follow every update
 
-    def update(self) -> None:
-        self.steps += 1
-        decay = min(self.decay, (1 + self.steps) / (10 + self.steps))
+def ramped_update(decay: float) -> AverageUpdate:
+    """An in-place averaging function for `AveragedModel(multi_avg_fn=...)`.
+
+    torch passes the number of models averaged so far, which is the training step's number
+    because the starting weights were the first."""
+
+    def update(
+        averaged: list[torch.Tensor], live: list[torch.Tensor], count: torch.Tensor | int
+    ) -> None:
+        weight = 1.0 - ramped_decay(decay, int(count))
         with torch.no_grad():
-            torch._foreach_lerp_(self.averaged, self._live, 1.0 - decay)
+            for target, source in zip(averaged, live, strict=True):
+                target.lerp_(source, weight)  # target + weight * (source - target)
 
-    @contextmanager
-    def swapped_in(self) -> Iterator[None]:
-        """Run the block with the averaged weights in the network, then put the live ones back."""
-        live = [p.detach().clone() for p in self.params]
-        with torch.no_grad():
-            torch._foreach_copy_(self.params, self.averaged)
-        try:
-            yield
-        finally:
-            with torch.no_grad():
-                torch._foreach_copy_(self.params, live)
+    return update
 
-    def state(self) -> tuple[dict[str, torch.Tensor], int]:
-        """Tensors and step count for a checkpoint."""
-        return {f"average.{i}": t for i, t in enumerate(self.averaged)}, self.steps
 
-    def load_state(self, tensors: dict[str, torch.Tensor], steps: int) -> None:
-        if len(tensors) != len(self.averaged):
-            raise ValueError(
-                f"the checkpoint holds {len(tensors)} averaged tensors; the network has "
-                f"{len(self.averaged)} parameters"
-            )
-        with torch.no_grad():
-            for i, target in enumerate(self.averaged):
-                target.copy_(tensors[f"average.{i}"])
-        self.steps = steps
+def new_average(net: torch.nn.Module, decay: float) -> AveragedModel:
+    """A moving average of `net` that starts from its current weights."""
+    average = AveragedModel(net, multi_avg_fn=ramped_update(decay))
+    average.update_parameters(net)  # the starting weights: copied, counted as the first model
+    return average
+
+
+def average_steps(average: AveragedModel) -> int:
+    """How many training steps the average has taken in (the starting weights not counted)."""
+    return int(average.n_averaged) - 1
