@@ -30,7 +30,7 @@ from typing import Any
 
 import torch
 
-from tagger.apply.tagger import TrainedTagger, build_net
+from tagger.apply.tagger import Tagger
 from tagger.config import Config, same_config
 from tagger.data.atomic import atomic_output, exclusive_folder
 from tagger.data.corpus import ColumnFormat, Sentence, read_sentences
@@ -38,6 +38,7 @@ from tagger.data.schemes import Span, detect_scheme, labels_for_types, spans_to_
 from tagger.errors import ConfigError, DataError, ModelFileError
 from tagger.network.batching import EncodedSentence, bucketed_batches, collate, encode_sentence
 from tagger.network.modelfile import load_model_file, save_model_file
+from tagger.network.net import build_net
 from tagger.scoring.metrics import count_spans, summarise
 from tagger.text.features import FeatureSpec, build_features, check_columns
 from tagger.text.tokenizer import TokenizerSettings
@@ -203,7 +204,7 @@ def _optimizer_from_file(tensors: dict[str, torch.Tensor], saved: dict) -> dict:
 
 
 def evaluate_spans(
-    tagger: TrainedTagger, sentences: Sequence[Sentence], gold: Sequence[list[Span]]
+    tagger: Tagger, sentences: Sequence[Sentence], gold: Sequence[list[Span]]
 ) -> dict:
     rows = [s.rows for s in sentences] if tagger.needs_columns else None
     predicted = tagger.predict_spans([s.tokens for s in sentences], rows=rows)
@@ -335,7 +336,7 @@ def _train(config: Config, run_dir: Path, resume: bool, report: Progress) -> Tra
     average = (
         WeightAverage(net, config.train.weight_average) if config.train.weight_average else None
     )
-    tagger = TrainedTagger(net, vocabs, config, data.input_scheme, features=features)
+    tagger = Tagger(net, vocabs, config, data.input_scheme, features=features)
     meta_common = {
         "training_data": {
             "fingerprint": data.fingerprint,
