@@ -44,7 +44,7 @@ sys.path.insert(0, str(ROOT / "scripts"))
 
 from benchlib import machine  # noqa: E402
 
-from tagger.apply.tagger import TrainedTagger, load_trained  # noqa: E402
+from tagger.apply.tagger import Tagger  # noqa: E402
 from tagger.config import Config, apply_overrides, load_config  # noqa: E402
 from tagger.data.corpus import read_sentences  # noqa: E402
 from tagger.data.schemes import Span, tags_to_spans  # noqa: E402
@@ -120,7 +120,7 @@ def unseen_scores(
     }
 
 
-def accuracy(tagger: TrainedTagger) -> dict[str, Any]:
+def accuracy(tagger: Tagger) -> dict[str, Any]:
     train_sentences = read_sentences(DEMO / "train.txt")
     train_spans = {
         key for s in train_sentences for key in span_keys(s.tokens, tags_to_spans(s.labels, "IOB2"))
@@ -180,7 +180,7 @@ def side_by_side(runs: dict[str, Any], rounds: int, seconds: float) -> dict[str,
     return {name: round(median(values), 1) for name, values in rates.items()}
 
 
-def tagging_run(tagger: TrainedTagger) -> Any:
+def tagging_run(tagger: Tagger) -> Any:
     test = read_sentences(DEMO / "test.txt")
     token_lists = [s.tokens for s in test]
     total = sum(len(t) for t in token_lists)
@@ -255,7 +255,7 @@ def main() -> int:
         "minutes": args.minutes,
         "variants": {},
     }
-    taggers: dict[str, TrainedTagger] = {}
+    taggers: dict[str, Tagger] = {}
     with tempfile.TemporaryDirectory(prefix="bench-features-") as scratch:
         folder = args.runs or Path(scratch)
         for name in args.variants:
@@ -263,7 +263,7 @@ def main() -> int:
             started = time.monotonic()
             result = train(config, folder / name)
             seconds = time.monotonic() - started
-            tagger = load_trained(result.model_path)
+            tagger = Tagger.load(result.model_path)
             taggers[name] = tagger
             entry["variants"][name] = {
                 "overrides": VARIANTS[name],

@@ -42,8 +42,7 @@ sys.path.insert(0, str(ROOT / "scripts"))
 
 from benchlib import machine, matmul_gflops  # noqa: E402
 
-from tagger.apply.tagger import load_trained  # noqa: E402
-from tagger.apply.tagging import tokenizer_settings  # noqa: E402
+from tagger.apply.tagger import Tagger  # noqa: E402
 from tagger.data.corpus import read_sentences  # noqa: E402
 from tagger.text.tokenizer import split_sentences  # noqa: E402
 
@@ -161,8 +160,8 @@ def run_command(model: Path, source: Path, *options: str) -> dict:
 def reference(model: Path, source: Path, threads: int, limit_sentences: int) -> dict:
     """One sentence at a time through the same model, tokeniser and JSON output, in-process."""
     torch.set_num_threads(threads)
-    tagger = load_trained(model)
-    settings = tokenizer_settings(tagger.meta)
+    tagger = Tagger.load(model)
+    settings = tagger.tokenizer_settings
     tokens = sentences = 0
     started = time.perf_counter()
     with open(source, encoding="utf-8") as lines, open(os.devnull, "w") as sink:
@@ -271,7 +270,7 @@ def main() -> int:
     info = machine()
     data = demo_data(args.data)
     model_path = ensure_model(args.model, data, args.epochs)
-    tagger = load_trained(model_path)
+    tagger = Tagger.load(model_path)
     flops = tagger.net.flops_per_token()
     sentences = [detokenise(s.tokens) for s in read_sentences(data / "test.txt")]
 

@@ -30,7 +30,7 @@ sys.path.insert(0, str(ROOT / "scripts"))
 from benchlib import machine, matmul_gflops  # noqa: E402
 
 from tagger.apply.evaluate import evaluate_files  # noqa: E402
-from tagger.apply.tagger import load_trained  # noqa: E402
+from tagger.apply.tagger import Tagger  # noqa: E402
 from tagger.config import apply_overrides, load_config, same_config  # noqa: E402
 from tagger.data.atomic import atomic_output  # noqa: E402
 from tagger.errors import ModelFileError  # noqa: E402
@@ -141,7 +141,7 @@ def train_seed(
     except ModelFileError:  # a checkpoint of another config or other data: start again
         shutil.rmtree(out)
         result = train(config, out, progress=lambda e: _print_epoch(e, label))
-    tagger = load_trained(result.model_path)
+    tagger = Tagger.load(result.model_path)
     test = evaluate_files(tagger, [test_file])["overall"]
     figures = {
         "seed": seed,

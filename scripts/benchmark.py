@@ -76,7 +76,7 @@ import bench_tagging  # noqa: E402
 from bench_training import accuracy_entry, run_speed, speed_table, train_seed  # noqa: E402
 from benchlib import machine, matmul_gflops  # noqa: E402
 
-from tagger.apply.tagger import load_trained  # noqa: E402
+from tagger.apply.tagger import Tagger  # noqa: E402
 from tagger.config import apply_overrides, load_config  # noqa: E402
 from tagger.data.atomic import atomic_output  # noqa: E402
 from tagger.data.corpus import read_sentences  # noqa: E402
@@ -559,7 +559,7 @@ class Benchmark:
                     "title": title,
                     "overrides": extra,
                     **self.summarise_runs(trained),
-                    "forward_flops_per_token": load_trained(models[-1]).net.flops_per_token(),
+                    "forward_flops_per_token": Tagger.load(models[-1]).net.flops_per_token(),
                     "runs": trained["runs"],
                 }
             )

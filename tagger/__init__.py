@@ -1,24 +1,26 @@
-"""tagger: train, evaluate and run bidirectional recurrent sequence taggers on CPUs."""
+"""tagger: train, evaluate and run bidirectional recurrent sequence taggers on CPUs.
+
+``from tagger import Tagger; Tagger.load("model.tagger").tag(["some text"])``. `Tagger` is looked
+up when first asked for, and its module needs no torch until a model is loaded, so ``import
+tagger`` and ``from tagger import Tagger`` stay light.
+"""
 
 from __future__ import annotations
 
-from typing import TYPE_CHECKING
-
-if TYPE_CHECKING:
-    from pathlib import Path
-
-    from tagger.apply.tagging import DocumentTagger
+from typing import TYPE_CHECKING, Any
 
 from tagger.version import __version__
 
-__all__ = ["__version__", "load_tagger"]
+if TYPE_CHECKING:
+    from tagger.apply.tagger import Tagger
+
+__all__ = ["Tagger", "__version__"]
 
 
-def load_tagger(path: str | Path, threads: int | None = None) -> DocumentTagger:
-    """Load a model file for tagging raw texts: ``load_tagger(path).tag(["some text"])``.
+def __getattr__(name: str) -> Any:
+    if name == "Tagger":
+        from tagger.apply.tagger import Tagger
 
-    torch is imported here, not when the package is, so ``import tagger`` stays light.
-    """
-    from tagger.apply.tagging import DocumentTagger
-
-    return DocumentTagger.load(path, threads=threads)
+        globals()["Tagger"] = Tagger  # found directly from now on
+        return Tagger
+    raise AttributeError(f"module {__name__!r} has no attribute {name!r}")

@@ -11,9 +11,8 @@ import pytest
 import torch
 from typer.testing import CliRunner
 
-from tagger import load_tagger
+from tagger import Tagger
 from tagger.apply.evaluate import evaluate_files
-from tagger.apply.tagger import build_net, load_trained
 from tagger.cli import app
 from tagger.config import Config, apply_overrides, config_from_dict
 from tagger.data.check import check_files, format_check
@@ -22,7 +21,7 @@ from tagger.data.schemes import tags_to_spans
 from tagger.errors import ConfigError, DataError, ModelFileError
 from tagger.network.batching import EncodedSentence, collate
 from tagger.network.modelfile import load_model_file
-from tagger.network.net import TaggerNet
+from tagger.network.net import TaggerNet, build_net
 from tagger.scoring.files import score_files
 from tagger.scoring.metrics import count_spans, summarise
 from tagger.text.features import (
@@ -226,8 +225,8 @@ def column_runs(tmp_path_factory: pytest.TempPathFactory) -> dict[str, Path]:
 def test_a_label_set_by_an_extra_column_is_learnt_only_with_it(
     column_runs: dict[str, Path],
 ) -> None:
-    with_column = load_trained(column_runs["with"])
-    without = load_trained(column_runs["without"])
+    with_column = Tagger.load(column_runs["with"])
+    without = Tagger.load(column_runs["without"])
     assert with_column.meta["dev_metrics"]["micro"]["f1"] == 1.0
     # Tokens are random, so without the column the best guess is poor.
     assert without.meta["dev_metrics"]["micro"]["f1"] < 0.8
@@ -240,7 +239,7 @@ def test_a_label_set_by_an_extra_column_is_learnt_only_with_it(
 def test_evaluate_reads_the_feature_column_and_agrees_with_score(
     column_runs: dict[str, Path], tmp_path: Path
 ) -> None:
-    tagger = load_trained(column_runs["with"])
+    tagger = Tagger.load(column_runs["with"])
     predictions = tmp_path / "pred.txt"
     report = evaluate_files(tagger, [column_runs["dev"]], predictions=predictions)
     assert report["overall"]["micro"]["f1"] == 1.0
@@ -301,9 +300,9 @@ def test_text_and_jsonl_input_are_refused_for_a_column_model(
     piped = runner.invoke(app, ["tag", str(column_runs["with"])], input="a b c\n")
     assert piped.exit_code == 1 and "<stdin>" in piped.stderr
     with pytest.raises(FeatureInputError, match="raw text"):
-        load_tagger(column_runs["with"]).tag(["a b c"])
+        Tagger.load(column_runs["with"]).tag(["a b c"])
     with pytest.raises(FeatureInputError):
-        load_trained(column_runs["with"]).predict_spans([["a", "b"]])
+        Tagger.load(column_runs["with"]).predict_spans([["a", "b"]])
     # A model without column features tags the same text.
     assert runner.invoke(app, ["tag", str(column_runs["without"]), str(source)]).exit_code == 0
 
@@ -418,14 +417,14 @@ def test_lexicons_travel_inside_the_model_file(lexicon_run: dict[str, Path]) -> 
     model = lexicon_run["model"]
     token_lists = [[t for t, _ in s] for s in report_task(5, 30, PARTS, FAULTS)]
     token_lists += [["SLIP", "RING", "Pitting", "t-3"], []]
-    before = load_trained(model).predict_scored_spans(token_lists)
+    before = Tagger.load(model).predict_scored_spans(token_lists)
     texts = [" ".join(tokens) for tokens in token_lists]
-    tagged_before = [[s.to_dict() for s in spans] for spans in load_tagger(model).tag(texts)]
+    tagged_before = [[s.to_dict() for s in spans] for spans in Tagger.load(model).tag(texts)]
     lexicon_run["lexicon"].unlink()  # tagging must not need the file
-    reloaded = load_trained(model)
+    reloaded = Tagger.load(model)
     assert reloaded.predict_scored_spans(token_lists) == before
     assert [
-        [s.to_dict() for s in spans] for spans in load_tagger(model).tag(texts)
+        [s.to_dict() for s in spans] for spans in Tagger.load(model).tag(texts)
     ] == tagged_before
     assert reloaded.features is not None
     assert reloaded.features.slot_names == ["catalogue/COMPONENT", "catalogue/DEFECT", "shape"]
@@ -438,7 +437,7 @@ def test_predicted_spans_with_features_equal_the_training_forward_pass(
 ) -> None:
     # Prediction computes character features per distinct token and feature ids per sentence;
     # training runs TaggerNet.emissions on collated batches. Both must find the same spans.
-    tagger = load_trained(lexicon_run["model"])
+    tagger = Tagger.load(lexicon_run["model"])
     token_lists = [[t for t, _ in s] for s in report_task(9, 40, PARTS, FAULTS)]
     token_lists += [["slip", "ring", "slip", "ring", "gearbox"], ["x" * 40]]
     encoded = tagger.encode(token_lists)
@@ -472,7 +471,7 @@ def test_a_changed_lexicon_does_not_resume_an_old_checkpoint(tmp_path: Path) -> 
 
 
 def test_build_net_sizes_the_encoder_for_the_feature_slots(lexicon_run: dict[str, Path]) -> None:
-    tagger = load_trained(lexicon_run["model"])
+    tagger = Tagger.load(lexicon_run["model"])
     model = tagger.config.model
     net = build_net(tagger.config, tagger.vocabs, tagger.features)
     assert net.features is not None

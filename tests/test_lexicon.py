@@ -172,6 +172,13 @@ def test_match_tags_are_the_bioes_tags_of_the_matches() -> None:
     assert lex.tags([]) == [[], []]
 
 
+def test_match_tags_hand_example_with_touching_matches() -> None:
+    # Hand-written BIOES: a three-token match, a one-token match touching it, a lone one.
+    lex = lexicon("a b c|X", "d|X")
+    (tags,) = lex.tags(["a", "b", "c", "d", "x", "d"])
+    assert tags == [BEGIN, INSIDE, END, SINGLE, NO_MATCH, SINGLE]
+
+
 _WORDS = ["a", "b", "c", "A", "B"]
 
 

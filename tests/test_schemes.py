@@ -19,6 +19,7 @@ from tagger.data.schemes import (
     ill_formed_transitions,
     labels_for_types,
     normalise_scheme_name,
+    span_prefixes,
     spans_lenient,
     spans_to_tags,
     split_tag,
@@ -152,6 +153,11 @@ def test_spans_never_cross_sentences() -> None:
     assert spans_lenient(first + second) == [("X", 1, 4)]  # what joining them would wrongly give
 
 
+def test_tags_to_spans_checks_the_scheme_name() -> None:
+    with pytest.raises(ConfigError):
+        tags_to_spans(["B-X"], "IOB3")
+
+
 def test_spans_lenient_rejects_unknown_prefixes() -> None:
     with pytest.raises(DataError):
         spans_lenient(["O", "Z-PER"])
@@ -224,6 +230,11 @@ def test_spans_to_tags_hand_examples() -> None:
     assert spans_to_tags(spans, 5, "BILOU") == ["B-X", "L-X", "U-X", "U-Y", "O"]
     with pytest.raises(DataError, match="IO cannot separate"):
         spans_to_tags(spans, 5, "IO")
+    # span_prefixes writes the same marks without the types, for callers that keep ids
+    assert span_prefixes(spans, 5, "BIOES") == ["B", "E", "S", "S", "O"]
+    assert span_prefixes(spans, 5, "IOB1") == ["I", "I", "B", "I", "O"]
+    with pytest.raises(DataError, match="IO cannot separate"):
+        span_prefixes(spans, 5, "IO")
 
 
 @pytest.mark.parametrize(

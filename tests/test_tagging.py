@@ -2,6 +2,7 @@ from __future__ import annotations
 
 import itertools
 import json
+import os
 import random
 import subprocess
 import sys
@@ -13,10 +14,11 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 from typer.testing import CliRunner
 
-from tagger import load_tagger
+from tagger import Tagger
+from tagger.apply.documents import detect_input_format
 from tagger.apply.evaluate import evaluate_files
-from tagger.apply.tagger import TrainedTagger, load_trained
-from tagger.apply.tagging import TagOptions, detect_input_format, tag_files
+from tagger.apply.tagger import limit_kernel_cache
+from tagger.apply.tagging import TagOptions, tag_files
 from tagger.cli import app
 from tagger.config import Config, config_from_dict
 from tagger.data.corpus import read_sentences
@@ -139,7 +141,7 @@ def test_tagged_column_file_scores_like_evaluate(model: Path, tmp_path: Path) ->
     # The output keeps the gold column and appends the prediction as the last column.
     assert [s.tokens for s in read_sentences(out)] == [s.tokens for s in read_sentences(gold)]
     scored = score_files(gold, out)
-    evaluated = evaluate_files(load_trained(model), [gold])["overall"]
+    evaluated = evaluate_files(Tagger.load(model), [gold])["overall"]
     assert scored["micro"] == evaluated["micro"]
     assert scored["per_type"] == evaluated["per_type"]
     assert 0.3 < scored["micro"]["f1"] < 1.0  # unseen names: a comparison with errors in it
@@ -163,7 +165,7 @@ def test_api_gives_the_spans_the_command_writes(
     result = _tag(str(model), str(_jsonl(tmp_path / "docs.jsonl", documents)))
     assert result.exit_code == 0, result.stderr
     written = [r["spans"] for r in _records(result.stdout)]
-    found = load_tagger(model).tag(documents)
+    found = Tagger.load(model).tag(documents)
     assert [[s.to_dict() for s in spans] for spans in found] == written
     assert any(written), "the model should find some spans in these texts"
 
@@ -201,7 +203,7 @@ _LOADED: dict[Path, object] = {}
 
 def _api(model: Path):  # one loaded tagger for every hypothesis example
     if model not in _LOADED:
-        _LOADED[model] = load_tagger(model)
+        _LOADED[model] = Tagger.load(model)
     return _LOADED[model]
 
 
@@ -236,7 +238,7 @@ def test_two_workers_keep_input_order(model: Path, documents: list[str], tmp_pat
 
 
 def test_span_scores_are_brute_force_marginals(model: Path) -> None:
-    tagger = load_trained(model)
+    tagger = Tagger.load(model)
     tokens = ["gearbox", "on", "T-14", "."]
     (scored,) = tagger.predict_scored_spans([tokens])
     net, labels = tagger.net, tagger.vocabs.labels.itos
@@ -270,7 +272,7 @@ def test_span_scores_are_brute_force_marginals(model: Path) -> None:
 def test_label_paths_read_as_tags_to_spans_reads_them(scheme: str, data: st.DataObject) -> None:
     labels = labels_for_types(["A", "B"], scheme)
     vocabs = Vocabularies(Vocab([]), Vocab([]), Vocab(labels, specials=False), False, False)
-    reader = TrainedTagger(None, vocabs, Config(), scheme)  # type: ignore[arg-type] # no network needed
+    reader = Tagger(None, vocabs, Config(), scheme)  # type: ignore[arg-type] # no network needed
     length = data.draw(st.integers(0, 10))
     if data.draw(st.booleans()):  # any label sequence, mostly ill-formed
         path = data.draw(
@@ -287,13 +289,13 @@ def test_label_paths_read_as_tags_to_spans_reads_them(scheme: str, data: st.Data
         tags = spans_to_tags(spans, length, scheme)
         path = [labels.index(t) for t in tags]
     # schemes.tags_to_spans is the reference reading.
-    assert reader.path_spans(path) == tags_to_spans([labels[j] for j in path], scheme)
+    assert reader.label_ids_to_spans(path) == tags_to_spans([labels[j] for j in path], scheme)
 
 
 def test_predicted_spans_equal_decoding_the_training_forward_pass(model: Path) -> None:
     # Prediction looks up character features per distinct token; training runs TaggerNet.emissions
     # on padded batches. Both must find the same spans.
-    tagger = load_trained(model)
+    tagger = Tagger.load(model)
     token_lists = [[t for t, _ in s] for s in _sentences(11, 80, unseen=True)]
     token_lists += [["x" * 40, "T-14"], ["Ünseen", "gearbox", "🙂"]]
     encoded = tagger.encode(token_lists)
@@ -312,7 +314,7 @@ def test_predicted_spans_equal_decoding_the_training_forward_pass(model: Path) -
 
 
 def test_cached_encoding_equals_encoding(model: Path) -> None:
-    tagger = load_trained(model)
+    tagger = Tagger.load(model)
     token_lists = [["gearbox", "on", "T-14", "."], ["unseen-word", "gearbox", "x" * 40], []]
     for _ in range(2):  # the second pass reads the cache
         assert tagger.encode_cached(token_lists) == tagger.encode(token_lists)
@@ -327,7 +329,7 @@ def test_min_score_drops_low_spans_and_review_flags_documents(
     model: Path, documents: list[str], tmp_path: Path
 ) -> None:
     source = _jsonl(tmp_path / "docs.jsonl", documents)
-    found = load_tagger(model).tag(documents)
+    found = Tagger.load(model).tag(documents)
     scores = sorted(s.score for spans in found for s in spans)
     cut = scores[len(scores) // 2]  # the median: some spans on each side
     everything = _records(_tag(str(model), str(source), "--review-below", str(cut)).stdout)
@@ -409,7 +411,7 @@ def test_tokenizer_settings_travel_in_the_model_file(model: Path, tmp_path: Path
     meta = load_model_file(model)[1]
     assert meta["tokenizer"] == TokenizerSettings().to_dict()
     # A copy of the model whose stored settings split hyphens: tagging must use them.
-    tagger = load_trained(model)
+    tagger = Tagger.load(model)
     split = TokenizerSettings(split_hyphens=True)
     tagger.save(tmp_path / "split.tagger", {"tokenizer": split.to_dict()})
     text = "Crew A replaced the gearbox on T-14."
@@ -419,7 +421,7 @@ def test_tokenizer_settings_travel_in_the_model_file(model: Path, tmp_path: Path
     tokens = [line.split("\t")[0] for line in shown.stdout.splitlines() if line]
     assert tokens == [t.text for s in split_sentences(text, split) for t in s.tokens]
     assert "-" in tokens
-    spans = load_tagger(tmp_path / "split.tagger").tag([text])[0]
+    spans = Tagger.load(tmp_path / "split.tagger").tag([text])[0]
     # Hyphens split: no span can hold "T-14" as one token, so none starts at "14".
     sentence_tokens = [t for s in split_sentences(text, split) for t in s.tokens]
     starts = {t.start for t in sentence_tokens}
@@ -442,9 +444,77 @@ def test_tokenize_prints_tokens_with_offsets(tmp_path: Path) -> None:
 
 
 def test_import_tagger_does_not_load_torch() -> None:
-    code = "import sys, tagger; print('torch' in sys.modules, callable(tagger.load_tagger))"
+    code = (
+        "import sys, tagger; light = 'torch' not in sys.modules\n"
+        "from tagger import Tagger\n"
+        "print(light, 'torch' in sys.modules, callable(Tagger.load), Tagger is tagger.Tagger)"
+    )
     done = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
-    assert done.stdout.split() == ["False", "True"]
+    assert done.stdout.split() == ["True", "False", "True", "True"]
+
+
+def test_tag_wants_a_list_of_texts_and_tag_text_takes_one(model: Path) -> None:
+    tagger = _api(model)
+    text = "Crew A replaced the gearbox on T-9. Vibration hit 7.2 mm/s at T-14."
+    with pytest.raises(TypeError, match="tag_text"):
+        tagger.tag(text)
+    spans = tagger.tag_text(text)
+    assert spans, "the model should find spans in this text"
+    assert [s.to_dict() for s in spans] == [s.to_dict() for s in tagger.tag([text])[0]]
+    assert [s.to_dict() for s in tagger.tag(iter([text, ""]))[0]] == [s.to_dict() for s in spans]
+
+
+def test_tagger_tokenizes_with_its_stored_settings(model: Path, tmp_path: Path) -> None:
+    split = TokenizerSettings(split_hyphens=True)
+    Tagger.load(model).save(tmp_path / "split.tagger", {"tokenizer": split.to_dict()})
+    tagger = Tagger.load(tmp_path / "split.tagger")
+    assert tagger.tokenizer_settings == split
+    text = "Crew A replaced the gearbox on T-14."
+    assert tagger.tokenize(text) == split_sentences(text, split)
+    assert [t.text for s in tagger.tokenize(text) for t in s.tokens][-4:] == ["T", "-", "14", "."]
+
+
+_CACHE_SETTING = "ONEDNN_PRIMITIVE_CACHE_CAPACITY"
+
+
+@pytest.mark.parametrize(
+    "start",
+    [
+        "Tagger.load(model, threads=1); assert torch.get_num_threads() == 1",
+        "tag_files(model, [source], out)",
+    ],
+)
+def test_the_kernel_cache_is_capped_when_tagging_starts_not_on_import(
+    model: Path, tmp_path: Path, start: str
+) -> None:
+    source = tmp_path / "in.txt"
+    source.write_text(GOOD)
+    code = (
+        "import os, pkgutil, importlib, sys\n"
+        f"os.environ.pop({_CACHE_SETTING!r}, None)\n"
+        "import tagger, tagger.apply, tagger.cli\n"
+        "for found in pkgutil.iter_modules(tagger.apply.__path__, 'tagger.apply.'):\n"
+        "    importlib.import_module(found.name)\n"
+        f"assert {_CACHE_SETTING!r} not in os.environ, 'set on import'\n"
+        "import torch\n"
+        "from tagger import Tagger\n"
+        "from tagger.apply.tagging import tag_files\n"
+        f"model, source, out = {str(model)!r}, {str(source)!r}, {str(tmp_path / 'out.jsonl')!r}\n"
+        f"{start}\n"
+        f"print(os.environ[{_CACHE_SETTING!r}])\n"
+    )
+    done = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True)
+    assert done.returncode == 0, done.stderr
+    assert done.stdout.split() == ["64"]
+
+
+def test_a_kernel_cache_setting_already_made_wins(monkeypatch: pytest.MonkeyPatch) -> None:
+    monkeypatch.setenv(_CACHE_SETTING, "7")
+    limit_kernel_cache()
+    assert os.environ[_CACHE_SETTING] == "7"
+    monkeypatch.delenv(_CACHE_SETTING)
+    limit_kernel_cache()
+    assert os.environ[_CACHE_SETTING] == "64"
 
 
 # ---------------------------------------------------------------------------------------------

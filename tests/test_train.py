@@ -8,7 +8,7 @@ import pytest
 import torch
 
 from tagger.apply.evaluate import evaluate_files
-from tagger.apply.tagger import load_trained
+from tagger.apply.tagger import Tagger
 from tagger.config import Config, config_from_dict
 from tagger.network.modelfile import load_model_file
 from tagger.network.net import TaggerNet
@@ -80,7 +80,7 @@ def test_overfits_a_tiny_set(tiny_files: Path, tmp_path: Path, output: str) -> N
     data = tiny_files / "train.txt"
     result = train(small_config(data, data, model={"output": output}), tmp_path / "run")
     assert result.best_dev["micro"]["f1"] == 1.0
-    tagger = load_trained(result.model_path)
+    tagger = Tagger.load(result.model_path)
     report = evaluate_files(tagger, [data])
     assert report["overall"]["micro"]["f1"] == 1.0
 
@@ -201,7 +201,7 @@ def test_non_finite_loss_stops_and_keeps_the_last_good_model(
     assert result.diverged
     assert "epoch 3, batch 1" in result.stop_reason and "keeps epoch" in result.stop_reason
     assert len(result.history) == 2
-    assert load_trained(result.model_path).meta["epoch"] == result.best_epoch
+    assert Tagger.load(result.model_path).meta["epoch"] == result.best_epoch
 
 
 def test_without_a_dev_file_a_seeded_part_of_train_is_held_out(tmp_path: Path) -> None:
@@ -260,7 +260,7 @@ def test_pretrained_vectors_initialise_the_embedding(
         train={"epochs": 1, "learning_rate": 0.0},
     )
     result = train(config, tmp_path / "run")
-    tagger = load_trained(result.model_path)
+    tagger = Tagger.load(result.model_path)
     weight = tagger.net.words.weight
     assert torch.allclose(weight[tagger.vocabs.words.index("bearing")], torch.full((16,), 0.5))
     assert torch.allclose(weight[tagger.vocabs.words.index("leak")], torch.full((16,), -0.25))
@@ -275,7 +275,7 @@ def test_with_weight_averaging_the_model_file_holds_the_average(
     tensors, _ = load_model_file(tmp_path / "run" / "checkpoint.tagger")
     # torch's AveragedModel counts the starting weights as the first model averaged.
     assert int(tensors["average.n_averaged"]) == 1 + 2  # 6 sentences in batches of 4: 2 steps
-    saved = dict(load_trained(tmp_path / "run" / "model.tagger").net.named_parameters())
+    saved = dict(Tagger.load(tmp_path / "run" / "model.tagger").net.named_parameters())
     averaged = {k[len("average.module.") :]: v for k, v in tensors.items() if "module." in k}
     assert set(averaged) >= set(saved) and saved
     for name, kept in saved.items():

@@ -1,5 +1,14 @@
-"""Applying a trained model: the `Tagger` object (load, save, predict), batch tagging of
+"""Applying a trained model: the `Tagger` object (load, save, predict, tag texts), batch tagging of
 documents, and evaluation of a model on gold files.
+
+    tagger.py      `Tagger`; its torch work on token lists is in predict.py
+    documents.py   reading the input formats into documents (or `Skipped` records)
+    engine.py      chunks of documents -> sentences and tokens with offsets -> scored spans
+    outputs.py     the output formats (jsonl, columns, table)
+    pool.py        worker processes that tag chunks, results in input order
+    tagging.py     the `tag` pipeline: `tag_files`, its options and summary
+    tokenizing.py  `tokenize_files`: the tokens the tagger sees
+    evaluate.py    `evaluate_files`: tag gold files and score them
 
 May import `tagger.network` and everything below it; never `tagger.training` or the CLI.
 """

@@ -12,11 +12,11 @@ from tagger.data.corpus import ColumnFormat, Sentence, read_columns, write_colum
 from tagger.scoring.metrics import SpanCounts, count_tag_sequences, summarise
 
 if TYPE_CHECKING:
-    from tagger.apply.tagger import TrainedTagger
+    from tagger.apply.tagger import Tagger
 
 
 def evaluate_files(
-    tagger: TrainedTagger,
+    tagger: Tagger,
     paths: Sequence[str | Path],
     fmt: ColumnFormat = ColumnFormat(),
     predictions: str | Path | None = None,

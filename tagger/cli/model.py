@@ -102,11 +102,11 @@ def evaluate(
 ) -> None:
     """Tag gold files with a model and report span scores per type, with the error breakdown."""
     from tagger.apply.evaluate import evaluate_files
-    from tagger.apply.tagger import load_trained
+    from tagger.apply.tagger import Tagger
     from tagger.scoring.metrics import format_report
 
     with domain_errors():
-        tagger = load_trained(model)
+        tagger = Tagger.load(model)
         result = evaluate_files(
             tagger, files, column_format(delimiter, token_column, label_column), predictions
         )

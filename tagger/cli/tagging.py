@@ -134,7 +134,7 @@ def tokenize(
     ] = Path("-"),
 ) -> None:
     """Show the sentences and tokens the tagger sees: token, start and end offsets per line."""
-    from tagger.apply.tagging import tokenize_files
+    from tagger.apply.tokenizing import tokenize_files
     from tagger.text.tokenizer import TokenizerSettings
 
     names = input_names(inputs)
@@ -145,10 +145,10 @@ def tokenize(
     with domain_errors():
         settings = TokenizerSettings()
         if model is not None:
-            from tagger.apply.tagging import tokenizer_settings
+            from tagger.apply.tagger import read_tokenizer_settings
             from tagger.network.modelfile import load_model_file
 
-            settings = tokenizer_settings(load_model_file(model)[1])
+            settings = read_tokenizer_settings(load_model_file(model)[1])
         notes = tokenize_files(names, out, settings, input_format)
     for note in notes:
         say(f"note: {note}")

@@ -1,9 +1,9 @@
 """Tagging schemes as declarative tables: tags <-> spans, conversion, checks and detection.
 
 This module owns everything that depends on how a tag prefix marks a span: reading tag sequences
-into spans (a lenient reading for scoring, a scheme-aware one for training data), writing spans back
-as tags, converting between schemes, finding ill-formed transitions, guessing a file's scheme and
-the transition tables a CRF decodes through.
+into spans (one reader, :func:`read_spans`, for every scheme and for ill-formed input), writing spans
+back as tags, converting between schemes, finding ill-formed transitions, guessing a file's scheme
+and the transition tables a CRF decodes through.
 
 Each scheme is a :class:`SchemeTable` saying which prefix a token gets from its place in its span.
 Everything else is derived from that one rule by the shared matcher below:
@@ -21,6 +21,13 @@ table's rule over all nine (left, right) pairs. For all seven schemes the allowe
 product (left set x right set), so a sequence is well-formed exactly when every single boundary has
 at least one relation allowed by both neighbours: well-formedness is a first-order property, which
 is what lets a CRF enforce it with a transition table.
+
+Reading needs no scheme. Each prefix plays one part in every scheme that writes it, found from the
+derived boundaries: one that never shares a span with the token before it opens a span (B-, S-,
+U-), one that never shares a span with the token after it closes its span (E-, S-, L-, U-), and the
+rest (I-) continue the open span of their type; O and a change of type end a span. This is the
+CoNLL shared-task reading of any tag sequence, and on a sequence well-formed in a scheme it gives
+the spans the scheme wrote (the tests check every short sequence of every scheme).
 
 Spans are half-open: ``(type, start, end)`` covers tokens ``start .. end-1``.
 """
@@ -41,7 +48,6 @@ SCHEME_NAMES: tuple[str, ...] = ("IO", "IOB1", "IOB2", "IOE1", "IOE2", "BIOES", 
 OUTSIDE = "O"
 
 _ALIASES = {"BIO": "IOB2", "IOBES": "BIOES"}
-_KNOWN_PREFIXES = frozenset("BIESLU")
 
 # How token i relates to token i-1; see the module docstring.
 _SAME = "same"
@@ -217,6 +223,35 @@ class _Rules:
 _RULES = {name: _Rules.derive(table) for name, table in SCHEMES.items()}
 
 
+def _prefixes_in_role_order() -> tuple[str, ...]:
+    """Every prefix some scheme writes: begin marks first, then inside, end and single marks."""
+    found: dict[str, None] = {}
+    for role in ("begin", "inside", "end", "single"):
+        for table in SCHEMES.values():
+            mark = getattr(table, role)
+            if mark is not None:
+                found.setdefault(mark)
+    return tuple(found)
+
+
+def _never_continues(side: str) -> frozenset[str]:
+    """Prefixes that no scheme lets share a span with their neighbour on ``side``."""
+    return frozenset(
+        prefix
+        for prefix in _PREFIXES
+        if all(
+            _SAME not in getattr(rules, side)[prefix]
+            for rules in _RULES.values()
+            if prefix in rules.left
+        )
+    )
+
+
+_PREFIXES = _prefixes_in_role_order()
+_OPENS = _never_continues("left")  # B- S- U-: always start a span
+_CLOSES = _never_continues("right")  # E- S- L- U-: always end the span they are in
+
+
 def normalise_scheme_name(name: str) -> str:
     """The canonical name of a scheme: case-insensitive, with BIO -> IOB2 and IOBES -> BIOES."""
     key = name.strip().upper() if isinstance(name, str) else ""
@@ -234,9 +269,9 @@ def _split(tag: str) -> tuple[str, str]:
     if tag == OUTSIDE:
         return (OUTSIDE, "")
     prefix, hyphen, type_ = tag.partition("-")
-    if not hyphen or prefix not in _KNOWN_PREFIXES:
+    if not hyphen or prefix not in _PREFIXES:
         raise DataError(
-            f"tag {tag!r} is neither O nor PREFIX-TYPE with PREFIX one of B, I, E, S, L, U"
+            f"tag {tag!r} is neither O nor PREFIX-TYPE with PREFIX one of {', '.join(_PREFIXES)}"
         )
     if not type_:
         raise DataError(f"tag {tag!r} has no type after its prefix")
@@ -257,10 +292,29 @@ def _rules(scheme: str) -> _Rules:
     return _RULES[normalise_scheme_name(scheme)]
 
 
-# The CoNLL shared-task scoring convention: a span always ends after E/S and always starts at B/S;
-# otherwise neighbouring tokens of one type share a span. L and U read like E and S.
-_LENIENT_CLOSES = frozenset("ESLU")
-_LENIENT_OPENS = frozenset("BSU")
+def read_spans(parsed: Sequence[tuple[str, str]]) -> list[Span]:
+    """The spans of parsed tags, ``(prefix, type)`` pairs as :func:`split_tag` gives them.
+
+    The one reading of tags as spans (see the module docstring): B-/S-/U- always start a span,
+    E-/S-/L-/U- always end one, any other prefix continues the open span of its type or starts
+    one, and O or a change of type ends the open span. Prefixes of all schemes may be mixed.
+    """
+    spans: list[Span] = []
+    open_type: str | None = None
+    start = 0
+    previous = OUTSIDE
+    for i, (prefix, type_) in enumerate(parsed):
+        if open_type is not None and (
+            prefix == OUTSIDE or type_ != open_type or previous in _CLOSES or prefix in _OPENS
+        ):
+            spans.append((open_type, start, i))
+            open_type = None
+        if prefix != OUTSIDE and open_type is None:
+            open_type, start = type_, i
+        previous = prefix
+    if open_type is not None:
+        spans.append((open_type, start, len(parsed)))
+    return spans
 
 
 def spans_lenient(tags: Sequence[str]) -> list[Span]:
@@ -270,40 +324,16 @@ def spans_lenient(tags: Sequence[str]) -> list[Span]:
     span, a change of type starts a span, B-/S-/U- always start one and E-/S-/L-/U- always end one.
     Unknown prefixes raise DataError.
     """
-    spans: list[Span] = []
-    open_type: str | None = None
-    start = 0
-    prev_prefix = OUTSIDE
-    for i, tag in enumerate(tags):
-        prefix, type_ = split_tag(tag)
-        if open_type is not None and (
-            prefix == OUTSIDE
-            or type_ != open_type
-            or prev_prefix in _LENIENT_CLOSES
-            or prefix in _LENIENT_OPENS
-        ):
-            spans.append((open_type, start, i))
-            open_type = None
-        if prefix != OUTSIDE and open_type is None:
-            open_type, start = type_, i
-        prev_prefix = prefix
-    if open_type is not None:
-        spans.append((open_type, start, len(tags)))
-    return spans
+    return read_spans([split_tag(t) for t in tags])
 
 
-def _scan(
-    tags: Sequence[str], rules: _Rules, explain: bool = True
-) -> tuple[list[Span], list[tuple[int, str]]]:
-    """The shared matcher: the scheme-aware spans of ``tags`` and every ill-formed transition.
+def _problems(tags: Sequence[str], rules: _Rules, explain: bool = True) -> list[tuple[int, str]]:
+    """Every ill-formed transition of ``tags`` in one scheme, in token order.
 
     With ``explain=False`` the problems carry empty messages (cheaper, for counting).
     """
     parsed = [split_tag(t) for t in tags]
-    spans: list[Span] = []
     problems: list[tuple[int, str]] = []
-    open_type: str | None = None
-    start = 0
     for i, cur in enumerate(parsed):
         prev = parsed[i - 1] if i else None
         if not rules.knows(cur):
@@ -312,34 +342,27 @@ def _scan(
                 f"{tags[i]}: {rules.table.name} has no {cur[0]}- prefix (it uses O and {options})"
             )
             problems.append((i, message if explain else ""))
-        feasible = rules.feasible(prev, cur)
-        if not feasible:
+        if not rules.feasible(prev, cur):
             problems.extend(rules.explain(i, prev, cur, tags) if explain else [(i, "")])
-        if open_type is not None and (cur[0] == OUTSIDE or _SAME not in feasible):
-            spans.append((open_type, start, i))
-            open_type = None
-        if cur[0] != OUTSIDE and open_type is None:
-            open_type, start = cur[1], i
     if parsed and not rules.feasible(parsed[-1], None):
         problems.extend(
             rules.explain(len(parsed), parsed[-1], None, tags)
             if explain
             else [(len(parsed) - 1, "")]
         )
-    if open_type is not None:
-        spans.append((open_type, start, len(parsed)))
     problems.sort(key=lambda p: p[0])
-    return spans, problems
+    return problems
 
 
 def tags_to_spans(tags: Sequence[str], scheme: str) -> list[Span]:
-    """Spans of a tag sequence read in ``scheme``; ill-formed input gets :func:`spans_lenient`.
+    """Spans of a tag sequence written in ``scheme`` (checked by name): :func:`read_spans`.
 
-    On well-formed input both readings agree; the scheme matters for which input counts as
-    well-formed (e.g. IOB1 uses B- only between touching spans of one type).
+    Well-formed input reads as the scheme wrote it and ill-formed input leniently, so the scheme
+    does not change the reading (see the module docstring); it matters for which input counts as
+    well-formed (:func:`ill_formed_transitions`).
     """
-    spans, problems = _scan(tags, _rules(scheme))
-    return spans_lenient(tags) if problems else spans
+    normalise_scheme_name(scheme)
+    return read_spans([split_tag(t) for t in tags])
 
 
 def ill_formed_transitions(tags: Sequence[str], scheme: str) -> list[tuple[int, str]]:
@@ -348,7 +371,7 @@ def ill_formed_transitions(tags: Sequence[str], scheme: str) -> list[tuple[int, 
     Covers I-X after O where spans must start with B-, a type change inside an open span, E-
     without a start, B- never closed, prefixes the scheme does not use, and the like.
     """
-    return _scan(tags, _rules(scheme))[1]
+    return _problems(tags, _rules(scheme))
 
 
 def _checked_spans(spans: Iterable[Span], length: int) -> list[Span]:
@@ -373,32 +396,49 @@ def _checked_spans(spans: Iterable[Span], length: int) -> list[Span]:
     return ordered
 
 
-def spans_to_tags(spans: Iterable[Span], length: int, scheme: str) -> list[str]:
-    """The tags of ``length`` tokens holding ``spans`` in ``scheme``.
-
-    Raises DataError for overlapping or out-of-range spans, and for touching spans of one type
-    that the scheme cannot separate (IO).
-    """
-    rules = _rules(scheme)
+def _write_prefixes(ordered: Sequence[Span], length: int, rules: _Rules) -> list[str]:
+    """Each token's prefix (``"O"`` outside) for spans checked and sorted by :func:`_checked_spans`."""
     table = rules.table
-    ordered = _checked_spans(spans, length)
-    tags = [OUTSIDE] * length
+    prefixes = [OUTSIDE] * length
     for k, (type_, start, end) in enumerate(ordered):
         after_same = k > 0 and ordered[k - 1][2] == start and ordered[k - 1][0] == type_
         before_same = (
             k + 1 < len(ordered) and ordered[k + 1][1] == end and ordered[k + 1][0] == type_
         )
         for i in range(start, end):
-            prefix = table.prefix_for(i == start, i == end - 1, after_same, before_same)
-            tags[i] = f"{prefix}-{type_}"
+            prefixes[i] = table.prefix_for(i == start, i == end - 1, after_same, before_same)
         if after_same and _SAME in rules.feasible(
-            split_tag(tags[start - 1]), split_tag(tags[start])
+            (prefixes[start - 1], type_), (prefixes[start], type_)
         ):
             raise DataError(
                 f"{table.name} cannot separate touching spans of one type: a {type_!r} span "
                 f"ends at token {start} where the next {type_!r} span starts; choose a scheme "
                 f"with B-, E- or S- tags"
             )
+    return prefixes
+
+
+def span_prefixes(spans: Iterable[Span], length: int, scheme: str) -> list[str]:
+    """The prefix each of ``length`` tokens gets in ``scheme`` from the span holding it (``"O"``
+    outside every span): :func:`spans_to_tags` without the types, for marks kept as ids.
+
+    Raises DataError as :func:`spans_to_tags` does.
+    """
+    return _write_prefixes(_checked_spans(spans, length), length, _rules(scheme))
+
+
+def spans_to_tags(spans: Iterable[Span], length: int, scheme: str) -> list[str]:
+    """The tags of ``length`` tokens holding ``spans`` in ``scheme``.
+
+    Raises DataError for overlapping or out-of-range spans, and for touching spans of one type
+    that the scheme cannot separate (IO).
+    """
+    ordered = _checked_spans(spans, length)
+    prefixes = _write_prefixes(ordered, length, _rules(scheme))
+    tags = [OUTSIDE] * length
+    for type_, start, end in ordered:
+        for i in range(start, end):
+            tags[i] = f"{prefixes[i]}-{type_}"
     return tags
 
 
@@ -488,7 +528,7 @@ def detect_scheme(tag_sequences: Iterable[Sequence[str]]) -> SchemeGuess:
                 sentences_bad, boundaries_bad = misses[name]
                 misses[name] = (sentences_bad + 1, boundaries_bad + bad)
                 if name not in first_problem:
-                    i, message = _scan(tags, rules)[1][0]
+                    i, message = _problems(tags, rules)[0]
                     first_problem[name] = f"sentence {s + 1}, token {i + 1}: {message}"
     marks = ", ".join(f"{p}-" for p in sorted(prefixes - {OUTSIDE}))
     fitting = tuple(name for name in _LIKELIHOOD if misses[name] == (0, 0))

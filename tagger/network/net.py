@@ -7,18 +7,26 @@ features (B,T,K) ─────┴─ concat ─ dropout ─ BiResidualEncoder 
 
 The feature slots (extra columns, lexicon categories, word shape; see tagger.text.features) each get a
 small embedding; a model without them has no such modules, so its parameters are as they were.
+`build_net` makes the network a config describes, for training and for loading a model file.
 """
 
 from __future__ import annotations
 
 from collections.abc import Sequence
+from typing import TYPE_CHECKING
 
 import torch
 from torch import nn
 
 from tagger.config import ModelConfig
+from tagger.data.schemes import allowed_transitions
 from tagger.network.crf import CRF
 from tagger.network.encoder import BiResidualEncoder, SharedDropout
+
+if TYPE_CHECKING:
+    from tagger.config import Config
+    from tagger.text.features import FeatureSpec
+    from tagger.text.vocab import Vocabularies
 
 Transitions = tuple[list[bool], list[list[bool]], list[bool]]
 
@@ -170,3 +178,17 @@ class TaggerNet(nn.Module):
         """Forward FLOPs of the word-level encoder and output layer per token (the dominant cost)."""
         out = self.output
         return self.encoder.flops_per_token() + 2 * out.in_features * out.out_features
+
+
+def build_net(
+    config: Config, vocabs: Vocabularies, features: FeatureSpec | None = None
+) -> TaggerNet:
+    """The network a config describes, sized for the vocabularies and feature slots; a CRF output
+    layer may take only the transitions that are well-formed in the model's scheme."""
+    transitions = None
+    if config.model.output == "crf":
+        transitions = allowed_transitions(vocabs.labels.itos, config.model.scheme)
+    slots = features.slot_sizes(config.model) if features is not None else ()
+    return TaggerNet(
+        config.model, len(vocabs.words), len(vocabs.chars), len(vocabs.labels), transitions, slots
+    )

@@ -21,7 +21,8 @@ after the lexicon alone. Matching, per lexicon and sentence:
    says which of those are entries (no scan over the entries);
 2. occurrences are chosen longest first (ties: leftmost first), each skipped when it overlaps
    one already chosen, so a token belongs to at most one match of a lexicon;
-3. each chosen match marks its tokens with BIOES tags in the category of each of its types.
+3. each chosen match marks its tokens with BIOES tags in the category of each of its types (written
+   by `tagger.data.schemes`, kept as ids).
 
 Case handling (`case`): "exact" compares tokens as written; "ignore" compares them case-folded;
 "smart" lets an all-lower-case entry match any casing ("gearbox" matches "GEARBOX") while an entry
@@ -35,6 +36,7 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
 
+from tagger.data.schemes import OUTSIDE, SCHEMES, Span, span_prefixes
 from tagger.errors import ConfigError, DataError
 from tagger.text.tokenizer import TokenizerSettings, tokenize
 
@@ -43,6 +45,16 @@ CASE_MODES = ("ignore", "exact", "smart")
 # Tag ids of a category, as the model reads them: 0 is padding, 1 "no match".
 PAD_ID, NO_MATCH, BEGIN, INSIDE, END, SINGLE = 0, 1, 2, 3, 4, 5
 TAG_IDS = 6  # how many ids a category uses
+
+MATCH_SCHEME = "BIOES"  # matches are written in it by the schemes module's own writer
+_MARKS = SCHEMES[MATCH_SCHEME]
+_TAG_ID_OF_PREFIX: dict[str | None, int] = {
+    OUTSIDE: NO_MATCH,
+    _MARKS.begin: BEGIN,
+    _MARKS.inside: INSIDE,
+    _MARKS.end: END,
+    _MARKS.single: SINGLE,
+}
 
 Match = tuple[int, int, tuple[str, ...]]  # (start, end exclusive, types), token indices
 
@@ -172,19 +184,16 @@ class Lexicon:
     def tags(self, tokens: Sequence[str]) -> list[list[int]]:
         """Per category (in `categories` order), one BIOES tag id per token."""
         n = len(tokens)
-        out = [[NO_MATCH] * n for _ in self.types]
-        if not n:
-            return out
+        matches: list[list[Span]] = [[] for _ in self.types]
         for start, end, ids in self._chosen(tokens):
             for i in ids:
-                row = out[i]
-                if end - start == 1:
-                    row[start] = SINGLE
-                else:
-                    row[start] = BEGIN
-                    row[start + 1 : end - 1] = [INSIDE] * (end - start - 2)
-                    row[end - 1] = END
-        return out
+                matches[i].append((self.types[i] or self.name, start, end))
+        return [
+            [_TAG_ID_OF_PREFIX[p] for p in span_prefixes(spans, n, MATCH_SCHEME)]
+            if spans
+            else [NO_MATCH] * n
+            for spans in matches
+        ]
 
     def to_dict(self) -> dict[str, Any]:
         """JSON-ready: the entries as token lists, so that matching never depends on re-tokenising."""

@@ -25,7 +25,7 @@ from typing import Any
 import torch
 from torch.optim.lr_scheduler import LRScheduler
 
-from tagger.apply.tagger import TrainedTagger
+from tagger.apply.tagger import Tagger
 from tagger.config import Config
 from tagger.data.atomic import exclusive_folder
 from tagger.data.corpus import Sentence
@@ -127,7 +127,7 @@ def _train(
 
     clock = RunClock(config.train.max_minutes, state.seconds_used)
     # With weight averaging on, the averaged copy is the model: dev scores it and it is saved.
-    scored = TrainedTagger(
+    scored = Tagger(
         tools.average.module if tools.average is not None else net,
         setup.vocabs,
         config,
@@ -239,7 +239,7 @@ def _train_epoch(
 
 
 def evaluate_spans(
-    tagger: TrainedTagger, sentences: Sequence[Sentence], gold: Sequence[list[Span]]
+    tagger: Tagger, sentences: Sequence[Sentence], gold: Sequence[list[Span]]
 ) -> dict:
     rows = [s.rows for s in sentences] if tagger.needs_columns else None
     predicted = tagger.predict_spans([s.tokens for s in sentences], rows=rows)

@@ -12,12 +12,11 @@ from typing import Any
 
 import torch
 
-from tagger.apply.tagger import build_net
 from tagger.config import Config
 from tagger.data.schemes import labels_for_types, spans_to_tags
 from tagger.errors import ConfigError
 from tagger.network.batching import EncodedSentence, encode_sentence
-from tagger.network.net import TaggerNet
+from tagger.network.net import TaggerNet, build_net
 from tagger.text.features import FeatureSpec, build_features, check_columns
 from tagger.text.tokenizer import TokenizerSettings
 from tagger.text.vectors import read_word_vectors

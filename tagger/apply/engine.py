@@ -1,0 +1,166 @@
+"""The tagging engine: documents in chunks -> sentences and tokens with offsets -> scored spans.
+
+Documents are gathered into chunks of about `chunk_chars` characters (the default is roughly
+2,000 sentences of ordinary prose; a longer document is a chunk of its own). Each chunk is
+tokenised and tagged in length-sorted batches across its documents, so the batches stay full
+while memory depends on the chunk size and the longest document, not on the input size.
+
+A span's score is the smallest, over its tokens, of the probability of the label chosen there
+(see `Tagger.predict_scored_spans`). Offsets count characters of the document text, end
+exclusive: `text[start:end]` is the span's text.
+
+A sentence longer than the tokenizer's `max_sentence_tokens` makes its document a `Skipped` record.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Iterable, Iterator, Sequence
+from dataclasses import dataclass
+from typing import TYPE_CHECKING, Any
+
+from tagger.apply.documents import Document, Item, Skipped
+from tagger.text.tokenizer import TextSentence, TokenizerSettings, split_sentences
+
+if TYPE_CHECKING:
+    from tagger.apply.tagger import ScoredSpan, Tagger
+
+CHUNK_CHARS = 200_000  # about 2,000 sentences of 100 characters: long enough to batch by length
+SCORE_DIGITS = 4  # scores are written rounded; filtering uses the exact value
+
+
+@dataclass(frozen=True)
+class TaggedSpan:
+    """One entity found in a document; `text == document[start:end]` (characters, end exclusive)."""
+
+    start: int
+    end: int
+    label: str
+    text: str
+    score: float
+
+    def to_dict(self) -> dict[str, Any]:
+        return {
+            "start": self.start,
+            "end": self.end,
+            "label": self.label,
+            "text": self.text,
+            "score": round(self.score, SCORE_DIGITS),
+        }
+
+
+@dataclass
+class Analysed:
+    """A document cut into sentences: tokens with the character offsets of each."""
+
+    doc: Document
+    tokens: list[list[str]]
+    starts: list[list[int]]
+    ends: list[list[int]]
+
+
+@dataclass
+class TaggedDocument:
+    document: Document
+    spans: list[TaggedSpan]  # every span found, before `min_score` filtering
+    token_spans: list[list[ScoredSpan]]  # per sentence, token indices
+    analysed: Analysed
+
+
+def chunks(items: Iterable[Item], chunk_chars: int, stop_at_skip: bool) -> Iterator[list[Item]]:
+    """Consecutive items in chunks of about `chunk_chars` characters of text.
+
+    With `stop_at_skip` nothing is read after the first Skipped item (the run will stop there).
+    """
+    chunk: list[Item] = []
+    size = 0
+    for item in items:
+        chunk.append(item)
+        if isinstance(item, Skipped):
+            if stop_at_skip:
+                break
+            continue
+        size += len(item.text) + 1
+        if size >= chunk_chars:
+            yield chunk
+            chunk, size = [], 0
+    if chunk:
+        yield chunk
+
+
+class Engine:
+    """Tokenise and tag the documents of one chunk together. Runs in each worker process."""
+
+    def __init__(self, tagger: Tagger, settings: TokenizerSettings, batch_size: int) -> None:
+        self.tagger = tagger
+        self.settings = settings
+        self.batch_size = batch_size
+
+    def analyse(self, doc: Document) -> Analysed | Skipped:
+        limit = self.settings.max_sentence_tokens
+        if doc.sentence is not None:
+            spec = self.tagger.features
+            if spec is not None and doc.sentence.rows:
+                problem = spec.missing_columns(doc.sentence.rows[0])
+                if problem:
+                    return Skipped(doc.source, doc.line, problem)
+            tokens = doc.sentence.tokens
+            if len(tokens) > limit:
+                return Skipped(
+                    doc.source,
+                    doc.line,
+                    f"a sentence of {len(tokens)} tokens is longer than "
+                    f"max_sentence_tokens={limit}",
+                )
+            starts, position = [], 0
+            for token in tokens:
+                starts.append(position)
+                position += len(token) + 1
+            ends = [s + len(t) for s, t in zip(starts, tokens, strict=True)]
+            return Analysed(doc, [tokens], [starts], [ends])
+        sentences: list[TextSentence] = split_sentences(doc.text, self.settings)
+        analysed = Analysed(doc, [], [], [])
+        for sentence in sentences:
+            if sentence.cut:
+                line = doc.line
+                if doc.record is None:  # a text file: count its lines; a jsonl text is one line
+                    line += doc.text.count("\n", 0, sentence.start)
+                return Skipped(
+                    doc.source,
+                    line,
+                    f"a sentence longer than max_sentence_tokens={limit} tokens starts at "
+                    f"character {sentence.start} of the document",
+                )
+            analysed.tokens.append([t.text for t in sentence.tokens])
+            analysed.starts.append([t.start for t in sentence.tokens])
+            analysed.ends.append([t.end for t in sentence.tokens])
+        return analysed
+
+    def tag(self, items: Sequence[Item]) -> list[TaggedDocument | Skipped]:
+        """Tag the documents of one chunk together (batched by length across documents)."""
+        prepared = [item if isinstance(item, Skipped) else self.analyse(item) for item in items]
+        analysed = [a for a in prepared if isinstance(a, Analysed)]
+        token_lists = [t for a in analysed for t in a.tokens]
+        rows = None
+        if self.tagger.needs_columns:
+            # Column documents are one sentence each; anything else has no columns to give.
+            for a in analysed:
+                if a.doc.sentence is None:
+                    raise self.tagger.features.refusal(a.doc.source)  # type: ignore[union-attr]
+            rows = [a.doc.sentence.rows for a in analysed]  # type: ignore[union-attr]
+        scored = iter(self.tagger.predict_scored_spans(token_lists, self.batch_size, rows=rows))
+        results: list[TaggedDocument | Skipped] = []
+        for entry in prepared:
+            if isinstance(entry, Skipped):
+                results.append(entry)
+                continue
+            text = entry.doc.text
+            spans: list[TaggedSpan] = []
+            per_sentence = []
+            for starts, ends in zip(entry.starts, entry.ends, strict=True):
+                found = next(scored)
+                per_sentence.append(found)
+                for label, first, last, score in found:
+                    start, end = starts[first], ends[last - 1]
+                    spans.append(TaggedSpan(start, end, label, text[start:end], score))
+            results.append(TaggedDocument(entry.doc, spans, per_sentence, entry))
+        return results
