@@ -29,6 +29,8 @@ __all__ = [
     "domain_errors",
     "input_names",
     "print_json",
+    "input_argument",
+    "input_option",
     "readable_inputs",
     "say",
 ]
@@ -124,10 +126,24 @@ def input_names(paths: list[Path] | None) -> list[str]:
     return names
 
 
+def input_argument(help: str) -> Any:
+    """A positional argument naming a file to read, or '-' for standard input.
+
+    A folder is refused as the argument is parsed; call `readable_inputs` for the rest (the
+    argument parser's own existence check would refuse '-').
+    """
+    return typer.Argument(dir_okay=False, help=help)
+
+
+def input_option(name: str, help: str) -> Any:
+    """An option naming a file to read, or '-' for standard input; see `input_argument`."""
+    return typer.Option(name, dir_okay=False, help=help)
+
+
 def readable_inputs(*arguments: tuple[str, Path | Sequence[Path] | None]) -> None:
-    """Usage errors (exit 2) for the files a command will read, each given as (the argument's
-    name as help shows it, its value): a missing file, a folder, or standard input ("-") named
-    more than once in the command, since it can be read only once."""
+    """Usage errors (exit 2) for the files a command will read, each argument given as (its name
+    as help shows it, its value): a missing file, a folder, or standard input ('-') named more
+    than once in the command, since it can be read only once."""
     reading_stdin: str | None = None
     for argument, value in arguments:
         paths = [] if value is None else [value] if isinstance(value, Path | str) else value
@@ -147,6 +163,6 @@ def readable_inputs(*arguments: tuple[str, Path | Sequence[Path] | None]) -> Non
 def _must_be_a_file(name: str, argument: str) -> None:
     path = Path(name)
     if path.is_dir():
-        raise typer.BadParameter(f"{name!r} is a folder, not a file", param_hint=f"'{argument}'")
+        raise typer.BadParameter(f"file {name!r} is a directory.", param_hint=f"'{argument}'")
     if not path.exists():
-        raise typer.BadParameter(f"file {name!r} does not exist", param_hint=f"'{argument}'")
+        raise typer.BadParameter(f"file {name!r} does not exist.", param_hint=f"'{argument}'")

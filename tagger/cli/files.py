@@ -18,6 +18,8 @@ from tagger.cli.common import (
     app,
     column_format,
     domain_errors,
+    input_argument,
+    input_option,
     print_json,
     readable_inputs,
     say,
@@ -28,9 +30,9 @@ from tagger.cli.common import (
 def check(
     files: Annotated[
         list[Path],
-        typer.Argument(
-            help="Annotated column files; the first is read as train, any others as dev/test "
-            "and compared with it. '-' reads standard input.",
+        input_argument(
+            "Annotated column files; the first is read as train, any others as dev/test "
+            "and compared with it. '-' reads standard input."
         ),
     ],
     token_column: TokenColumn = 0,
@@ -38,9 +40,9 @@ def check(
     delimiter: Delimiter = "auto",
     lexicons: Annotated[
         list[Path] | None,
-        typer.Option(
+        input_option(
             "--lexicon",
-            help="A lexicon file ('entry' or 'entry<TAB>type' per line) whose coverage of the "
+            "A lexicon file ('entry' or 'entry<TAB>type' per line) whose coverage of the "
             "annotated spans to report (repeatable; '-' reads standard input).",
         ),
     ] = None,
@@ -72,7 +74,7 @@ def check(
 @app.command()
 def convert(
     source: Annotated[
-        Path, typer.Argument(help="Annotated column file to rewrite ('-' for standard input).")
+        Path, input_argument("Annotated column file to rewrite ('-' for standard input).")
     ],
     target: Annotated[
         Path,
@@ -105,13 +107,13 @@ def convert(
 @app.command()
 def score(
     gold: Annotated[
-        Path, typer.Argument(help="Column file holding the gold labels ('-' for standard input).")
+        Path, input_argument("Column file holding the gold labels ('-' for standard input).")
     ],
     predicted: Annotated[
         Path,
-        typer.Argument(
-            help="Column file holding the predicted labels for the same tokens, in the same "
-            "order ('-' for standard input).",
+        input_argument(
+            "Column file holding the predicted labels for the same tokens, in the same "
+            "order ('-' for standard input)."
         ),
     ],
     token_column: TokenColumn = 0,

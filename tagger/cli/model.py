@@ -17,6 +17,7 @@ from tagger.cli.common import (
     app,
     column_format,
     domain_errors,
+    input_argument,
     print_json,
     readable_inputs,
     say,
@@ -91,7 +92,7 @@ def evaluate(
     model: ModelFile,
     files: Annotated[
         list[Path],
-        typer.Argument(help="Gold column files to tag and score ('-' for standard input)."),
+        input_argument("Gold column files to tag and score ('-' for standard input)."),
     ],
     predictions: Annotated[
         Path | None,
