@@ -27,10 +27,10 @@ __all__ = [
     "column_format",
     "count",
     "domain_errors",
-    "input_names",
-    "print_json",
     "input_argument",
+    "input_names",
     "input_option",
+    "print_json",
     "readable_inputs",
     "say",
 ]
@@ -126,18 +126,18 @@ def input_names(paths: list[Path] | None) -> list[str]:
     return names
 
 
-def input_argument(help: str) -> Any:
+def input_argument(description: str) -> Any:
     """A positional argument naming a file to read, or '-' for standard input.
 
     A folder is refused as the argument is parsed; call `readable_inputs` for the rest (the
     argument parser's own existence check would refuse '-').
     """
-    return typer.Argument(dir_okay=False, help=help)
+    return typer.Argument(dir_okay=False, help=description)
 
 
-def input_option(name: str, help: str) -> Any:
+def input_option(name: str, description: str) -> Any:
     """An option naming a file to read, or '-' for standard input; see `input_argument`."""
-    return typer.Option(name, dir_okay=False, help=help)
+    return typer.Option(name, dir_okay=False, help=description)
 
 
 def readable_inputs(*arguments: tuple[str, Path | Sequence[Path] | None]) -> None:

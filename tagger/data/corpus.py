@@ -302,7 +302,7 @@ class ColumnSource:
     path: str | Path
     fmt: ColumnFormat = ColumnFormat()
     stats: ReadStats = field(default_factory=ReadStats)
-    _kept: list[Sentence] | None = None
+    _kept: list[Sentence] | None = field(default=None, init=False, repr=False)
 
     def sentences(self) -> Iterator[Sentence]:
         if self._kept is not None:
