@@ -15,6 +15,7 @@ from tagger.data.atomic import atomic_output
 from tagger.data.corpus import (
     ColumnFormat,
     ColumnReader,
+    ColumnSource,
     Sentence,
     format_sentence,
     read_columns,
@@ -382,6 +383,34 @@ def test_read_from_stdin(monkeypatch: pytest.MonkeyPatch) -> None:
 
     monkeypatch.setattr("sys.stdin", FakeStdin())
     assert [s.tokens for s in read_columns("-")] == [["a"], ["b"]]
+
+
+def test_a_column_source_rereads_a_file_and_keeps_stdin(
+    tmp_path: Path, monkeypatch: pytest.MonkeyPatch
+) -> None:
+    path = write_bytes(tmp_path, "a\tO\n\nb\tB-X\n")
+    source = ColumnSource(path)
+    assert [s.tokens for s in source.sentences()] == [["a"], ["b"]]
+    path.write_text("c\tO\n", encoding="utf-8")  # a file is read from disk each time
+    assert [s.tokens for s in source.sentences()] == [["c"]]
+    assert source.stats.sentences == 1
+
+    class FakeStdin:
+        buffer = io.BytesIO(b"d e O\n")
+
+    monkeypatch.setattr("sys.stdin", FakeStdin())
+    kept = ColumnSource("-")
+    first = [s.rows for s in kept.sentences()]
+    assert first == [(("d", "e", "O"),)] and kept.stats.delimiter == "space"
+    assert [s.rows for s in kept.sentences()] == first  # stdin, already drained, was kept
+
+
+def test_any_stream_of_byte_lines_parses(tmp_path: Path) -> None:
+    # Readers of other inputs hand the column parser lines they repaired or buffered.
+    reader = ColumnReader("repaired.conll")
+    sentences = list(reader._parse([b"\xef\xbb\xbfa\tO\r\n", b"\n", b"b\tB-X"]))
+    assert [s.tokens for s in sentences] == [["a"], ["b"]]
+    assert [s.line_numbers for s in sentences] == [(1,), (3,)]
 
 
 # --- streaming --------------------------------------------------------------------------------

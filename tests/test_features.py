@@ -15,13 +15,14 @@ from tagger import Tagger
 from tagger.apply.evaluate import evaluate_files
 from tagger.cli import app
 from tagger.config import Config, apply_overrides, config_from_dict
-from tagger.data.check import check_files, format_check
+from tagger.data.check import check_files
 from tagger.data.corpus import read_sentences
 from tagger.data.schemes import tags_to_spans
 from tagger.errors import ConfigError, DataError, ModelFileError
 from tagger.network.batching import EncodedSentence, collate
 from tagger.network.modelfile import load_model_file
 from tagger.network.net import TaggerNet, build_net
+from tagger.reports.check import format_check
 from tagger.scoring.files import score_files
 from tagger.scoring.metrics import count_spans, summarise
 from tagger.text.features import (

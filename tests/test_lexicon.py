@@ -14,9 +14,10 @@ from typer.testing import CliRunner
 
 from tagger.cli import app
 from tagger.config import LEXICON_CASES
-from tagger.data.check import check_files, format_check
+from tagger.data.check import check_files
 from tagger.data.schemes import spans_to_tags
 from tagger.errors import DataError
+from tagger.reports.check import format_check
 from tagger.text.lexicon import (
     BEGIN,
     CASE_MODES,

@@ -11,12 +11,12 @@ from seqeval.metrics import classification_report, f1_score, precision_score, re
 
 from tagger.data.schemes import Span, spans_lenient, spans_to_tags
 from tagger.errors import DataError
+from tagger.reports.scores import format_report
 from tagger.scoring.metrics import (
     SpanCounts,
     count_sentence,
     count_spans,
     count_tag_sequences,
-    format_report,
     summarise,
 )
 

@@ -1,6 +1,8 @@
 from __future__ import annotations
 
 import json
+import os
+import stat
 from pathlib import Path
 
 import pytest
@@ -69,3 +71,67 @@ def test_not_a_model_file(tmp_path: Path) -> None:
         load_model_file(tmp_path / "notes.txt")
     with pytest.raises(ModelFileError, match="not found"):
         load_model_file(tmp_path / "absent.tagger")
+
+
+# --- written through the atomic writer ----------------------------------------------------------
+
+
+@pytest.mark.parametrize("umask", [0o022, 0o077, 0o027], ids=["022", "077", "027"])
+def test_a_new_model_file_gets_the_permissions_of_any_new_file(tmp_path: Path, umask: int) -> None:
+    previous = os.umask(umask)
+    try:
+        _save(tmp_path / "m.tagger")
+        (tmp_path / "plain.txt").write_text("x")  # what open() gives under the same umask
+    finally:
+        os.umask(previous)
+    mode = (tmp_path / "m.tagger").stat().st_mode & 0o777
+    assert mode == 0o666 & ~umask
+    assert mode == (tmp_path / "plain.txt").stat().st_mode & 0o777
+
+
+def test_saving_over_a_model_file_keeps_its_permissions(tmp_path: Path) -> None:
+    _save(tmp_path / "m.tagger")
+    (tmp_path / "m.tagger").chmod(0o640)
+    _save(tmp_path / "m.tagger")
+    assert (tmp_path / "m.tagger").stat().st_mode & 0o777 == 0o640
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["m.tagger"]  # no temporary left
+
+
+def test_the_model_is_synced_before_it_replaces_the_old_file(
+    tmp_path: Path, monkeypatch: pytest.MonkeyPatch
+) -> None:
+    target = tmp_path / "m.tagger"
+    target.write_bytes(b"old")
+    synced: list[tuple[str, bytes]] = []
+    real_fsync = os.fsync
+
+    def recording_fsync(fd: int) -> None:
+        kind = "folder" if stat.S_ISDIR(os.fstat(fd).st_mode) else "file"
+        synced.append((kind, target.read_bytes()))
+        real_fsync(fd)
+
+    monkeypatch.setattr(os, "fsync", recording_fsync)
+    _save(target)
+    # The new bytes are synced while the target still holds the old ones; then the folder,
+    # once the rename has happened.
+    assert [(kind, content == b"old") for kind, content in synced] == [
+        ("file", True),
+        ("folder", False),
+    ]
+    assert synced[-1][1] == target.read_bytes()
+    assert load_model_file(target)[1]["labels"] == ["O", "B-X"]
+
+
+def test_a_failed_save_leaves_the_old_file(tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
+    target = tmp_path / "m.tagger"
+    _save(target)
+    before = target.read_bytes()
+
+    def failing_fsync(fd: int) -> None:
+        raise OSError(5, "Input/output error")
+
+    monkeypatch.setattr(os, "fsync", failing_fsync)
+    with pytest.raises(OSError, match="Input/output error"):
+        save_model_file(target, {"w": torch.zeros(2)}, {"labels": ["O"]})
+    assert target.read_bytes() == before
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["m.tagger"]

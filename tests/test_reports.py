@@ -1,4 +1,5 @@
-"""Tests for tagger.data.check: the `check` report and file conversion between schemes."""
+"""Tests for the `check` analysis (tagger.data.check) and its text (tagger.reports.check), and for
+conversion between schemes (tagger.data.convert)."""
 
 from __future__ import annotations
 
@@ -10,9 +11,11 @@ from pathlib import Path
 import pytest
 from seqeval.metrics.sequence_labeling import get_entities
 
-from tagger.data.check import check_files, convert_file, format_check
+from tagger.data.check import check_files
+from tagger.data.convert import convert_file
 from tagger.data.corpus import ColumnFormat, read_sentences
 from tagger.errors import ConfigError, DataError
+from tagger.reports.check import format_check
 
 CORPORA = Path(__file__).resolve().parents[2] / "shared" / "corpora"
 
@@ -360,6 +363,24 @@ def test_convert_to_stdout(tmp_path: Path, capsysbinary: pytest.CaptureFixture[b
     src = write(tmp_path, "in.conll", sentences("a B-X\nb I-X"))
     convert_file(src, "-", "IOE2")
     assert capsysbinary.readouterr().out == b"a\tI-X\nb\tE-X\n\n"
+
+
+def test_convert_from_stdin_detects_then_converts_what_it_kept(
+    tmp_path: Path, monkeypatch: pytest.MonkeyPatch
+) -> None:
+    # Detecting the scheme reads the input once and converting reads it again: standard input
+    # is kept from the first read.
+    class FakeStdin:
+        buffer = io.BytesIO(CONLL_STYLE.encode())
+
+    monkeypatch.setattr("sys.stdin", FakeStdin())
+    dst = tmp_path / "out.txt"
+    summary = convert_file("-", dst, "IOB1")
+    assert summary["source_scheme"] == "IOB2" and summary["sentences"] == 2
+    assert [s.labels for s in read_sentences(dst)] == [
+        ["I-ORG", "O", "I-MISC", "O", "O"],
+        ["I-PER", "I-PER"],
+    ]
 
 
 # --- the shared public corpora -------------------------------------------------------------------

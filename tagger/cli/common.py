@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import json
 import sys
-from collections.abc import Iterator
+from collections.abc import Iterator, Sequence
 from contextlib import contextmanager
 from pathlib import Path
 from typing import Annotated, Any
@@ -12,7 +12,28 @@ from typing import Annotated, Any
 import typer
 
 from tagger.data.corpus import ColumnFormat
+from tagger.data.io import is_stdio
 from tagger.errors import TaggerError
+from tagger.reports.layout import count
+from tagger.version import package_version
+
+__all__ = [
+    "AsJson",
+    "Delimiter",
+    "LabelColumn",
+    "ModelFile",
+    "TokenColumn",
+    "app",
+    "column_format",
+    "count",
+    "domain_errors",
+    "input_argument",
+    "input_names",
+    "input_option",
+    "print_json",
+    "readable_inputs",
+    "say",
+]
 
 app = typer.Typer(
     add_completion=False,
@@ -30,7 +51,37 @@ Delimiter = Annotated[str, typer.Option(help="Column separator: auto, tab or spa
 AsJson = Annotated[
     bool, typer.Option("--json", help="Print machine-readable JSON instead of a table.")
 ]
-ExistingFile = Annotated[Path, typer.Argument(exists=True, dir_okay=False, readable=True)]
+ModelFile = Annotated[
+    Path,
+    typer.Argument(
+        exists=True,
+        dir_okay=False,
+        readable=True,
+        help="Model file written by train (RUN_FOLDER/model.tagger).",
+    ),
+]
+
+
+def _print_version(wanted: bool) -> None:
+    if wanted:
+        print(f"tagger {package_version()}")
+        raise typer.Exit()
+
+
+@app.callback()
+def _options(
+    version: Annotated[
+        bool,
+        typer.Option(
+            "--version",
+            callback=_print_version,
+            is_eager=True,
+            help="Print the installed version and exit.",
+        ),
+    ] = False,
+) -> None:
+    # Options of the app itself, before any command; --version acts in its callback.
+    pass
 
 
 def say(message: str) -> None:
@@ -66,14 +117,52 @@ def print_json(data: Any) -> None:
     print(json.dumps(data, indent=2, ensure_ascii=False))
 
 
-def count(n: int, noun: str) -> str:
-    return f"{n:,} {noun}{'' if n == 1 else 's'}"
-
-
 def input_names(paths: list[Path] | None) -> list[str]:
     """Input paths as given; '-' is standard input. Missing files are a usage error (exit 2)."""
     names = [str(p) for p in paths or []]
     for name in names:
-        if name != "-" and not Path(name).is_file():
-            raise typer.BadParameter(f"file {name!r} does not exist", param_hint="INPUT")
+        if not is_stdio(name):
+            _must_be_a_file(name, "inputs")
     return names
+
+
+def input_argument(description: str) -> Any:
+    """A positional argument naming a file to read, or '-' for standard input.
+
+    A folder is refused as the argument is parsed; call `readable_inputs` for the rest (the
+    argument parser's own existence check would refuse '-').
+    """
+    return typer.Argument(dir_okay=False, help=description)
+
+
+def input_option(name: str, description: str) -> Any:
+    """An option naming a file to read, or '-' for standard input; see `input_argument`."""
+    return typer.Option(name, dir_okay=False, help=description)
+
+
+def readable_inputs(*arguments: tuple[str, Path | Sequence[Path] | None]) -> None:
+    """Usage errors (exit 2) for the files a command will read, each argument given as (its name
+    as help shows it, its value): a missing file, a folder, or standard input ('-') named more
+    than once in the command, since it can be read only once."""
+    reading_stdin: str | None = None
+    for argument, value in arguments:
+        paths = [] if value is None else [value] if isinstance(value, Path | str) else value
+        for path in paths:
+            if not is_stdio(path):
+                _must_be_a_file(str(path), argument)
+            elif reading_stdin is None:
+                reading_stdin = argument
+            else:
+                raise typer.BadParameter(
+                    "standard input ('-') can be read only once per command, and "
+                    f"{reading_stdin} already reads it",
+                    param_hint=f"'{argument}'",
+                )
+
+
+def _must_be_a_file(name: str, argument: str) -> None:
+    path = Path(name)
+    if path.is_dir():
+        raise typer.BadParameter(f"file {name!r} is a directory.", param_hint=f"'{argument}'")
+    if not path.exists():
+        raise typer.BadParameter(f"file {name!r} does not exist.", param_hint=f"'{argument}'")

@@ -1,4 +1,7 @@
-"""Commands on annotated files alone, no model: check, convert, score (none loads torch)."""
+"""Commands on annotated files alone, no model: check, convert, score (none loads torch).
+
+Every file they read may be '-' (standard input), once per command.
+"""
 
 from __future__ import annotations
 
@@ -10,13 +13,15 @@ import typer
 from tagger.cli.common import (
     AsJson,
     Delimiter,
-    ExistingFile,
     LabelColumn,
     TokenColumn,
     app,
     column_format,
     domain_errors,
+    input_argument,
+    input_option,
     print_json,
+    readable_inputs,
     say,
 )
 
@@ -25,8 +30,9 @@ from tagger.cli.common import (
 def check(
     files: Annotated[
         list[Path],
-        typer.Argument(
-            exists=True, dir_okay=False, help="Column files; the first is read as train."
+        input_argument(
+            "Annotated column files; the first is read as train, any others as dev/test "
+            "and compared with it. '-' reads standard input."
         ),
     ],
     token_column: TokenColumn = 0,
@@ -34,12 +40,10 @@ def check(
     delimiter: Delimiter = "auto",
     lexicons: Annotated[
         list[Path] | None,
-        typer.Option(
+        input_option(
             "--lexicon",
-            exists=True,
-            dir_okay=False,
-            help="A lexicon file ('entry' or 'entry<TAB>type' per line) whose coverage of the "
-            "annotated spans to report (repeatable).",
+            "A lexicon file ('entry' or 'entry<TAB>type' per line) whose coverage of the "
+            "annotated spans to report (repeatable; '-' reads standard input).",
         ),
     ] = None,
     lexicon_case: Annotated[
@@ -49,9 +53,11 @@ def check(
 ) -> None:
     """Inspect annotated column files: counts, scheme, ill-formed tags, leakage, inconsistencies,
     values of extra columns and lexicon coverage."""
-    from tagger.data.check import check_files, format_check
+    from tagger.data.check import check_files
+    from tagger.reports.check import format_check
     from tagger.text.lexicon import CASE_MODES, read_lexicon
 
+    readable_inputs(("--lexicon", lexicons), ("files", files))
     if lexicon_case not in CASE_MODES:
         raise typer.BadParameter(
             f"must be one of {', '.join(CASE_MODES)}, not {lexicon_case!r}",
@@ -67,8 +73,15 @@ def check(
 
 @app.command()
 def convert(
-    source: ExistingFile,
-    target: Annotated[Path, typer.Argument(dir_okay=False, help="Output file ('-' for stdout).")],
+    source: Annotated[
+        Path, input_argument("Annotated column file to rewrite ('-' for standard input).")
+    ],
+    target: Annotated[
+        Path,
+        typer.Argument(
+            dir_okay=False, help="Output file, replaced once complete ('-' for stdout)."
+        ),
+    ],
     to: Annotated[
         str, typer.Option("--to", help="Target scheme: IO, IOB1, IOB2, IOE1, IOE2, BIOES, BILOU.")
     ],
@@ -80,21 +93,29 @@ def convert(
     delimiter: Delimiter = "auto",
 ) -> None:
     """Rewrite a column file's labels in another tagging scheme, keeping every other column."""
-    from tagger.data.check import convert_file
+    from tagger.data.convert import convert_file
+    from tagger.reports.conversion import format_conversion
 
+    readable_inputs(("source", source))
     with domain_errors():
         summary = convert_file(
             source, target, to, column_format(delimiter, token_column, label_column), source_scheme
         )
-    say(
-        f"converted {summary['sentences']} sentences from {summary['source_scheme']} to {summary['target_scheme']}"
-    )
+    say(format_conversion(summary))
 
 
 @app.command()
 def score(
-    gold: ExistingFile,
-    predicted: ExistingFile,
+    gold: Annotated[
+        Path, input_argument("Column file holding the gold labels ('-' for standard input).")
+    ],
+    predicted: Annotated[
+        Path,
+        input_argument(
+            "Column file holding the predicted labels for the same tokens, in the same "
+            "order ('-' for standard input)."
+        ),
+    ],
     token_column: TokenColumn = 0,
     label_column: LabelColumn = -1,
     predicted_label_column: Annotated[
@@ -104,9 +125,10 @@ def score(
     as_json: AsJson = False,
 ) -> None:
     """Score a predicted column file against a gold one: strict span precision, recall and F1."""
+    from tagger.reports.scores import format_report
     from tagger.scoring.files import score_files
-    from tagger.scoring.metrics import format_report
 
+    readable_inputs(("gold", gold), ("predicted", predicted))
     gold_fmt = column_format(delimiter, token_column, label_column)
     pred_fmt = column_format(
         delimiter,

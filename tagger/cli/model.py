@@ -11,13 +11,15 @@ import typer
 from tagger.cli.common import (
     AsJson,
     Delimiter,
-    ExistingFile,
     LabelColumn,
+    ModelFile,
     TokenColumn,
     app,
     column_format,
     domain_errors,
+    input_argument,
     print_json,
+    readable_inputs,
     say,
 )
 from tagger.cli.progress import TrainingProgress
@@ -87,9 +89,10 @@ def train(
 
 @app.command()
 def evaluate(
-    model: ExistingFile,
+    model: ModelFile,
     files: Annotated[
-        list[Path], typer.Argument(exists=True, dir_okay=False, help="Gold column files.")
+        list[Path],
+        input_argument("Gold column files to tag and score ('-' for standard input)."),
     ],
     predictions: Annotated[
         Path | None,
@@ -103,8 +106,9 @@ def evaluate(
     """Tag gold files with a model and report span scores per type, with the error breakdown."""
     from tagger.apply.evaluate import evaluate_files
     from tagger.apply.tagger import Tagger
-    from tagger.scoring.metrics import format_report
+    from tagger.reports.scores import format_evaluation
 
+    readable_inputs(("files", files))
     with domain_errors():
         tagger = Tagger.load(model)
         result = evaluate_files(
@@ -112,10 +116,5 @@ def evaluate(
         )
     if as_json:
         print_json(result)
-        return
-    for entry in result["files"]:
-        print(f"== {entry['file']} ({entry['sentences']} sentences)")
-        print(format_report(entry))
-    if len(result["files"]) > 1:
-        print("== all files")
-        print(format_report(result["overall"]))
+    else:
+        print(format_evaluation(result), end="")

@@ -8,7 +8,7 @@ from typing import Annotated
 import typer
 
 from tagger.cli.common import (
-    ExistingFile,
+    ModelFile,
     TokenColumn,
     app,
     count,
@@ -22,7 +22,7 @@ from tagger.errors import TaggerError
 
 @app.command()
 def tag(
-    model: ExistingFile,
+    model: ModelFile,
     inputs: Annotated[
         list[Path] | None,
         typer.Argument(help="Files to tag, in order; '-' or none reads standard input."),

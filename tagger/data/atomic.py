@@ -26,6 +26,9 @@ def atomic_output(
     The block writes to a temporary file in the target's directory (so the final rename stays on
     one file system); the temporary file replaces the target only when the block exits normally.
     On an exception the temporary file is deleted and the target is left untouched.
+    The data reach the disk (fsync) before the rename, and the rename itself after it (fsync of
+    the folder, where the system allows it), so a crash leaves the old file or the whole new one.
+    A new file gets the permissions the umask gives; a replaced one keeps its own.
     `path` "-" means standard output, written directly (it cannot be made atomic).
     `mode` is "w" (text) or "wb" (bytes; `encoding` and `newline` are then ignored).
     """
@@ -64,6 +67,21 @@ def atomic_output(
         with contextlib.suppress(FileNotFoundError):
             os.unlink(temp_name)
         raise
+    _sync_folder(target.parent)
+
+
+def _sync_folder(folder: Path) -> None:
+    """Make a rename in `folder` durable; skipped where folders cannot be opened (Windows)."""
+    try:
+        handle = os.open(folder, os.O_RDONLY)
+    except OSError:
+        return
+    try:
+        os.fsync(handle)
+    except OSError:
+        pass  # some file systems refuse fsync on a folder; the data itself is already synced
+    finally:
+        os.close(handle)
 
 
 def _permissions_for(target: Path) -> int:

@@ -23,34 +23,46 @@ The format rules this module owns:
   dropped on writing; the reader's `ReadStats.trailing_lines` counts them.
 * Files are UTF-8, with or without a byte-order mark at the very start (only that one is
   removed); lines end in LF or CRLF (only the line ending is removed). Bytes that are not
-  UTF-8 are reported with file, line and byte offset.
+  UTF-8 are reported with file, line and byte offset. These are the rules of every input
+  (`tagger.data.io`); how a single line reads is `tagger.data.column_lines`.
 
 Reading is a generator over a binary stream decoded line by line, so a file is never held whole.
 """
 
 from __future__ import annotations
 
-import re
-import sys
-from collections.abc import Callable, Iterable, Iterator, Sequence
-from dataclasses import dataclass
+from collections.abc import Iterable, Iterator, Sequence
+from dataclasses import dataclass, field
 from pathlib import Path
-from typing import BinaryIO
 
 from tagger.data.atomic import atomic_output
+from tagger.data.column_lines import (
+    DELIMITERS,
+    DOCSTART,
+    detect_delimiter,
+    is_blank,
+    is_docstart,
+    splitter,
+    unwritable,
+    writing_delimiter,
+)
+from tagger.data.io import STDIO, UTF8_BOM, decoded_lines, input_name, is_stdio, open_input
+from tagger.data.io import shortened as _shorten
 from tagger.errors import ConfigError, DataError
 
-DOCSTART = "-DOCSTART-"
-STDIO = "-"
-
-# How many content lines the delimiter detection looks at before deciding.
-DETECT_LINES = 20
-
-_DELIMITERS = {"tab": "\t", "space": " "}
-_BLANK_CHARS = " \t\r\f\v"
-_SPACE_RUN = re.compile(r"[ \t]+")
-_UTF8_BOM = b"\xef\xbb\xbf"
-_SHOWN_CHARS = 60
+__all__ = [
+    "DOCSTART",
+    "STDIO",
+    "ColumnFormat",
+    "ColumnReader",
+    "ColumnSource",
+    "ReadStats",
+    "Sentence",
+    "format_sentence",
+    "read_columns",
+    "read_sentences",
+    "write_columns",
+]
 
 
 @dataclass(frozen=True)
@@ -64,7 +76,7 @@ class ColumnFormat:
     has_labels: bool = True  # False for files to be tagged: no label column is read
 
     def __post_init__(self) -> None:
-        if self.delimiter is not None and self.delimiter not in _DELIMITERS:
+        if self.delimiter is not None and self.delimiter not in DELIMITERS:
             raise ConfigError(
                 f"delimiter must be 'tab', 'space' or None (detect), not {self.delimiter!r}"
             )
@@ -172,28 +184,22 @@ class ColumnReader:
     def __init__(self, path: str | Path, fmt: ColumnFormat = ColumnFormat()) -> None:
         self.path = path
         self.fmt = fmt
-        self.name = "<stdin>" if str(path) == STDIO else str(path)
+        self.name = input_name(path)
         self.stats = ReadStats()
 
     def __iter__(self) -> Iterator[Sentence]:
-        if str(self.path) == STDIO:
-            yield from self._parse(sys.stdin.buffer)
-            return
-        try:
-            stream = open(self.path, "rb")  # noqa: SIM115 - closed by the with below
-        except OSError as error:
-            raise DataError(f"cannot open the file: {error.strerror}", self.name) from error
-        with stream:
+        with open_input(self.path) as stream:
             yield from self._parse(stream)
 
-    def _parse(self, stream: BinaryIO) -> Iterator[Sentence]:
+    def _parse(self, stream: Iterable[bytes]) -> Iterator[Sentence]:
+        """The sentences of any stream of byte lines (an open file, standard input, a list)."""
         fmt, stats, name = self.fmt, self.stats, self.name
-        lines: Iterable[tuple[int, str]] = _decoded_lines(stream, name)
+        lines: Iterable[tuple[int, str]] = decoded_lines(stream, name)
         if fmt.delimiter is None:
-            lines, stats.delimiter = _detect_delimiter(lines, fmt.comment_prefix)
+            lines, stats.delimiter = detect_delimiter(lines, fmt.comment_prefix)
         else:
             stats.delimiter = fmt.delimiter
-        split = _splitter(stats.delimiter)
+        split = splitter(stats.delimiter)
         comment = fmt.comment_prefix
 
         rows: list[tuple[str, ...]] = []
@@ -224,7 +230,7 @@ class ColumnReader:
 
         number = 0
         for number, text in lines:
-            if not text.strip(_BLANK_CHARS):
+            if is_blank(text):
                 if text:
                     stats.whitespace_only_lines += 1
                 if rows:
@@ -232,7 +238,7 @@ class ColumnReader:
                 elif prefix:
                     prefix.append(text)  # the blank line after a -DOCSTART- is part of the layout
                 continue
-            if _is_docstart(text):
+            if is_docstart(text):
                 if rows:
                     yield finish()
                 if started:
@@ -288,20 +294,43 @@ def read_sentences(path: str | Path, fmt: ColumnFormat = ColumnFormat()) -> list
     return list(read_columns(path, fmt))
 
 
+@dataclass
+class ColumnSource:
+    """A column file that can be read more than once: a file is read again from disk each time,
+    standard input ("-") is kept on the first read. `stats` are those of the latest read."""
+
+    path: str | Path
+    fmt: ColumnFormat = ColumnFormat()
+    stats: ReadStats = field(default_factory=ReadStats)
+    _kept: list[Sentence] | None = field(default=None, init=False, repr=False)
+
+    def sentences(self) -> Iterator[Sentence]:
+        if self._kept is not None:
+            yield from self._kept
+            return
+        reader = ColumnReader(self.path, self.fmt)
+        self.stats = reader.stats  # filled as the reader goes
+        if is_stdio(self.path):
+            self._kept = list(reader)
+            yield from self._kept
+            return
+        yield from reader
+
+
 def format_sentence(sentence: Sentence, delimiter: str = "\t") -> str:
     """A sentence as column-file text: its prefix lines, one line per token, a blank line.
 
     `delimiter` is "\\t" or " " (or "tab" / "space"). A sentence without tokens gives only its
     prefix lines. Raises DataError for a column that would not read back as written.
     """
-    separator = _writing_delimiter(delimiter)
+    separator = writing_delimiter(delimiter)
     parts = [line + "\n" for line in sentence.prefix_lines]
     if not sentence.rows:
         return "".join(parts)
     numbers = sentence.line_numbers
     for index, row in enumerate(sentence.rows):
         line = separator.join(row)
-        problem = _unwritable(row, line, separator)
+        problem = unwritable(row, line, separator)
         if problem:
             where = numbers[index] if index < len(numbers) else None
             raise DataError(f"cannot write {_shorten(line)}: {problem}", None, where)
@@ -315,8 +344,8 @@ def write_columns(path: str | Path, sentences: Iterable[Sentence], delimiter: st
 
     Path "-" writes to stdout. Each sentence is followed by a blank line.
     """
-    separator = _writing_delimiter(delimiter)
-    name = "<stdout>" if str(path) == STDIO else str(path)
+    separator = writing_delimiter(delimiter)
+    name = "<stdout>" if is_stdio(path) else str(path)
     with atomic_output(path, "wb") as out:
         at_start = True
         for sentence in sentences:
@@ -327,7 +356,7 @@ def write_columns(path: str | Path, sentences: Iterable[Sentence], delimiter: st
             if at_start and text.startswith("\ufeff"):
                 # A reader removes one byte-order mark at the start of a file; give it one to
                 # remove so that a token starting with U+FEFF reads back intact.
-                out.write(_UTF8_BOM)
+                out.write(UTF8_BOM)
             at_start = at_start and not text
             try:
                 out.write(text.encode("utf-8"))
@@ -337,78 +366,6 @@ def write_columns(path: str | Path, sentences: Iterable[Sentence], delimiter: st
                     name,
                     sentence.first_line,
                 ) from error
-
-
-def _decoded_lines(stream: BinaryIO, name: str) -> Iterator[tuple[int, str]]:
-    """(1-based line number, text without its line ending) for each line; split on LF only."""
-    offset = 0
-    for number, raw in enumerate(stream, start=1):
-        start = offset
-        offset += len(raw)
-        if raw.endswith(b"\n"):
-            raw = raw[:-2] if raw.endswith(b"\r\n") else raw[:-1]
-        if number == 1 and raw.startswith(_UTF8_BOM):
-            raw = raw[len(_UTF8_BOM) :]
-            start += len(_UTF8_BOM)
-        try:
-            text = raw.decode("utf-8")
-        except UnicodeDecodeError as error:
-            bad = raw[error.start : error.end]
-            raise DataError(
-                f"bytes {bad!r} at byte offset {start + error.start} are not valid UTF-8 "
-                f"({error.reason})",
-                name,
-                number,
-            ) from None
-        yield number, text
-
-
-def _detect_delimiter(
-    lines: Iterable[tuple[int, str]], comment: str | None
-) -> tuple[Iterator[tuple[int, str]], str]:
-    """Look at the first content lines: "tab" if any holds a TAB, else "space".
-
-    Returns the lines again (the ones looked at first, then the rest) and the decision.
-    """
-    iterator = iter(lines)
-    seen: list[tuple[int, str]] = []
-    content = 0
-    tab = False
-    for item in iterator:
-        seen.append(item)
-        text = item[1]
-        if (
-            not text.strip(_BLANK_CHARS)
-            or _is_docstart(text)
-            or (comment is not None and text.startswith(comment))
-        ):
-            continue
-        content += 1
-        if "\t" in text:
-            tab = True
-            break
-        if content >= DETECT_LINES:
-            break
-    return _chain(seen, iterator), "tab" if tab else "space"
-
-
-def _chain(
-    first: list[tuple[int, str]], rest: Iterator[tuple[int, str]]
-) -> Iterator[tuple[int, str]]:
-    yield from first
-    yield from rest
-
-
-def _splitter(delimiter: str) -> Callable[[str], list[str]]:
-    if delimiter == "tab":
-        return lambda text: text.split("\t")
-    return lambda text: _SPACE_RUN.split(text.strip(" \t"))
-
-
-def _is_docstart(text: str) -> bool:
-    return text.startswith(DOCSTART) and (
-        len(text) == len(DOCSTART) or text[len(DOCSTART)] in " \t"
-    )
 
 
 def _resolve_columns(
@@ -438,35 +395,3 @@ def _resolve_columns(
             number,
         )
     return token, label
-
-
-def _writing_delimiter(delimiter: str) -> str:
-    separator = _DELIMITERS.get(delimiter, delimiter)
-    if separator not in ("\t", " "):
-        raise ValueError(f"delimiter must be '\\t' or ' ' ('tab' or 'space'), not {delimiter!r}")
-    return separator
-
-
-def _unwritable(row: tuple[str, ...], line: str, separator: str) -> str | None:
-    """Why a row would not read back as the same columns, or None if it would."""
-    for column, value in enumerate(row):
-        if "\n" in value:
-            return f"column {column} holds a line break"
-        if separator in value:
-            return f"column {column} holds the delimiter {separator!r}"
-        if separator == " " and ("\t" in value or not value):
-            return f"column {column} is empty or holds a TAB, which a space-separated file splits"
-    if line.endswith("\r"):
-        return "the last column ends in a carriage return, which reads as part of a line ending"
-    if not line.strip(_BLANK_CHARS):
-        return "the line would be blank"
-    if _is_docstart(line):
-        return f"the line would read as a {DOCSTART} line"
-    return None
-
-
-def _shorten(text: str) -> str:
-    """repr() of text, cut to a readable length."""
-    if len(text) > _SHOWN_CHARS:
-        return repr(text[: _SHOWN_CHARS - 3]) + "..."
-    return repr(text)

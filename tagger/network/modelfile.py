@@ -9,8 +9,6 @@ from __future__ import annotations
 
 import hashlib
 import json
-import os
-import tempfile
 from pathlib import Path
 from typing import Any
 
@@ -19,6 +17,7 @@ from safetensors import SafetensorError
 from safetensors.torch import load as load_safetensors
 from safetensors.torch import save as save_safetensors
 
+from tagger.data.atomic import atomic_output
 from tagger.errors import ModelFileError
 
 FORMAT_NAME = "tagger-model"
@@ -41,7 +40,8 @@ def _digest(tensors: dict[str, torch.Tensor]) -> str:
 def save_model_file(
     path: str | Path, tensors: dict[str, torch.Tensor], metadata: dict[str, Any]
 ) -> None:
-    """Write weights and metadata atomically (a temporary file renamed into place)."""
+    """Write weights and metadata through the one atomic writer (`tagger.data.atomic`): the old
+    file or the complete new one, synced to disk, with the permissions any new output gets."""
     tensors = {name: t.detach().contiguous().cpu() for name, t in tensors.items()}
     header = {
         "format": FORMAT_NAME,
@@ -50,16 +50,9 @@ def save_model_file(
         **metadata,
     }
     blob = save_safetensors(tensors, metadata={_META_KEY: json.dumps(header, ensure_ascii=False)})
-    path = Path(path)
-    path.parent.mkdir(parents=True, exist_ok=True)
-    handle, temporary = tempfile.mkstemp(dir=path.parent, prefix=f".{path.name}.", suffix=".tmp")
-    try:
-        with os.fdopen(handle, "wb") as out:
-            out.write(blob)
-        os.replace(temporary, path)
-    except BaseException:
-        Path(temporary).unlink(missing_ok=True)
-        raise
+    Path(path).parent.mkdir(parents=True, exist_ok=True)
+    with atomic_output(path, "wb") as out:
+        out.write(blob)
 
 
 def _read_header(blob: bytes, path: Path) -> dict[str, Any]:

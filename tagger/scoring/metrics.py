@@ -3,7 +3,8 @@
 This module owns span-level scoring. :class:`SpanCounts` holds additive counts (per-type correct,
 predicted and gold spans, token agreement, and an error breakdown), so counts from several files
 or batches merge with ``+``. :func:`summarise` turns counts into precision, recall and F1 per type,
-micro- and macro-averaged, as a plain JSON-ready dict; :func:`format_report` prints that dict.
+micro- and macro-averaged, as a plain JSON-ready dict; `tagger.reports.scores` lays that dict out
+as text.
 
 A span is correct only when its type, start and end all equal a gold span's (strict matching).
 Spans never cross sentences: each sentence is read and matched on its own.
@@ -240,88 +241,3 @@ def summarise(counts: SpanCounts) -> dict[str, Any]:
         "sentences": counts.sentences,
         "breakdown": breakdown,
     }
-
-
-def _percent(x: float) -> str:
-    return f"{100 * x:.2f}"
-
-
-def _table(
-    header: list[str], rows: list[list[str]], totals: list[list[str]], indent: str = "  "
-) -> list[str]:
-    """Rows under a header, then totals under a rule; first column left-aligned, others right."""
-    widths = [max(len(r[c]) for r in [header, *rows, *totals]) for c in range(len(header))]
-
-    def line(cells: list[str]) -> str:
-        first = cells[0].ljust(widths[0])
-        rest = [cell.rjust(width) for cell, width in zip(cells[1:], widths[1:], strict=True)]
-        return indent + "   ".join([first, *rest]).rstrip()
-
-    rule = indent + "-" * (sum(widths) + 3 * (len(widths) - 1))
-    body = [line(r) for r in rows] + ([rule] if rows and totals else [])
-    return [line(header), rule, *body, *(line(r) for r in totals)]
-
-
-_OUTCOME_LABELS = {
-    "exact": "exact",
-    "wrong_type": "type only",
-    "boundary": "edges only",
-    "type_and_boundary": "type+edges",
-    "missed": "missed",
-    "spurious": "spurious",
-}
-
-
-def format_report(summary: dict[str, Any]) -> str:
-    """A plain-text report of a :func:`summarise` dict (extra keys are ignored).
-
-    Scores first (types ordered by gold count, F1 before precision and recall, counts after),
-    then where the errors come from.
-    """
-    per_type: dict[str, dict[str, Any]] = summary["per_type"]
-    micro, macro = summary["micro"], summary["macro"]
-    order = sorted(per_type, key=lambda t: (-per_type[t]["gold"], t))
-
-    def score_row(name: str, s: dict[str, Any]) -> list[str]:
-        counts = [str(s.get(k, "")) for k in ("gold", "predicted", "correct")]
-        return [name, _percent(s["f1"]), _percent(s["precision"]), _percent(s["recall"]), *counts]
-
-    header = ["span type", "F1 %", "prec %", "rec %", "in gold", "tagged", "right"]
-    rows = [score_row(t, per_type[t]) for t in order]
-    totals = [
-        score_row("all spans pooled", micro),
-        score_row(f"mean of {macro.get('types', len(per_type))} types", macro),
-    ]
-    lines = [
-        f"Span scores: F1 {_percent(micro['f1'])} % over {micro['gold']} gold and "
-        f"{micro['predicted']} tagged spans",
-        "",
-        *_table(header, rows, totals),
-    ]
-    if summary.get("tokens"):
-        lines += [
-            "",
-            f"Tokens tagged right: {_percent(summary['token_accuracy'])} % of {summary['tokens']}",
-        ]
-    breakdown = summary.get("breakdown")
-    if breakdown:
-        lines += ["", "Where each span ended up (each span counted once, first match wins)"]
-        for side, names, title in (
-            ("gold", GOLD_OUTCOMES, "gold spans"),
-            ("predicted", PREDICTED_OUTCOMES, "tagged spans"),
-        ):
-            side_rows = [
-                [t, *(str(breakdown["per_type"][t][side][n]) for n in names)]
-                for t in order
-                if any(breakdown["per_type"].get(t, {}).get(side, {}).values())
-            ]
-            total = [[f"all {title}", *(str(breakdown[side][n]) for n in names)]]
-            header = [title, *(_OUTCOME_LABELS[n] for n in names)]
-            lines += ["", *_table(header, side_rows, total)]
-        lines += [
-            "",
-            "  exact: same type and edges; type only: same edges, another type;",
-            "  edges only: overlaps a span of its own type; type+edges: overlaps only spans",
-            "  of other types; missed / spurious: overlaps nothing on the other side",
-        ]
-    return "\n".join(lines) + "\n"

@@ -36,6 +36,7 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
 
+from tagger.data.io import input_name, is_stdio, read_lines
 from tagger.data.schemes import OUTSIDE, SCHEMES, Span, span_prefixes
 from tagger.errors import ConfigError, DataError
 from tagger.text.tokenizer import TokenizerSettings, tokenize
@@ -222,39 +223,28 @@ def read_lexicon(
 ) -> Lexicon:
     """Read a lexicon file (see the module docstring); `name` defaults to the file's stem.
 
-    Raises DataError with file and line for a line that is not `entry` or `entry<TAB>type`.
+    Lines are read by `tagger.data.io` ("-" is standard input, named "stdin"). Raises DataError
+    with file and line for a line that is not `entry` or `entry<TAB>type`, or not UTF-8.
     """
-    path = Path(path)
-    try:
-        raw = path.read_bytes()
-    except OSError as error:
-        raise DataError(f"cannot read the lexicon: {error.strerror}", str(path)) from None
-    if raw.startswith(b"\xef\xbb\xbf"):
-        raw = raw[3:]
+    where = input_name(path)
     entries: list[tuple[list[str], str]] = []
-    for number, line in enumerate(raw.split(b"\n"), start=1):
-        try:
-            text = line.decode("utf-8").rstrip("\r")
-        except UnicodeDecodeError as error:
-            raise DataError(
-                f"bytes {line[error.start : error.end]!r} are not valid UTF-8", str(path), number
-            ) from None
+    for number, text in read_lines(path):
         if not text.strip() or text.startswith("#"):
             continue
         fields = text.split("\t")
         if len(fields) > 2:
             raise DataError(
                 f"expected 'entry' or 'entry<TAB>type', found {len(fields)} TAB-separated fields",
-                str(path),
+                where,
                 number,
             )
         type_ = fields[1].strip() if len(fields) == 2 else ""
         if len(fields) == 2 and not type_:
-            raise DataError("empty type after the TAB", str(path), number)
+            raise DataError("empty type after the TAB", where, number)
         tokens = [t.text for t in tokenize(fields[0], settings)]
         if not tokens:
-            raise DataError(f"the entry {fields[0]!r} holds no token", str(path), number)
+            raise DataError(f"the entry {fields[0]!r} holds no token", where, number)
         entries.append((tokens, type_))
     if not entries:
-        raise DataError("the lexicon holds no entries", str(path))
-    return Lexicon(name or path.stem, entries, case)
+        raise DataError("the lexicon holds no entries", where)
+    return Lexicon(name or ("stdin" if is_stdio(path) else Path(path).stem), entries, case)

@@ -6,6 +6,7 @@ from pathlib import Path
 
 import numpy as np
 
+from tagger.data.io import input_name, read_lines, shortened
 from tagger.errors import DataError
 
 
@@ -14,38 +15,38 @@ def read_word_vectors(path: str | Path) -> tuple[list[str], np.ndarray]:
 
     word2vec text files start with a "count dim" line; GloVe files do not. Every other line is a
     word followed by dim numbers, separated by single spaces. A repeated word keeps its first vector.
+    Lines are read by `tagger.data.io` (a leading byte-order mark is dropped, "-" is standard
+    input); every problem is a DataError naming the file and line.
     """
+    where = input_name(path)
     words: list[str] = []
     rows: list[np.ndarray] = []
     seen: set[str] = set()
     dim: int | None = None
-    with open(path, encoding="utf-8", newline="") as handle:
-        for number, line in enumerate(handle, start=1):
-            parts = line.rstrip("\r\n").rstrip(" ").split(" ")
-            if number == 1 and len(parts) == 2 and all(p.isdigit() for p in parts):
-                dim = int(parts[1])
-                continue
-            if len(parts) < 2:
-                if line.strip():
-                    raise DataError(
-                        f"expected a word and its numbers, found {line[:60]!r}", str(path), number
-                    )
-                continue
-            dim = dim or len(parts) - 1
-            if len(parts) - 1 != dim:
+    for number, line in read_lines(path):
+        parts = line.rstrip(" ").split(" ")
+        if number == 1 and len(parts) == 2 and all(p.isdigit() for p in parts):
+            dim = int(parts[1])
+            continue
+        if len(parts) < 2:
+            if line.strip():
                 raise DataError(
-                    f"expected {dim} numbers after the word, found {len(parts) - 1}",
-                    str(path),
-                    number,
+                    f"expected a word and its numbers, found {shortened(line)}", where, number
                 )
-            try:
-                vector = np.asarray(parts[1:], dtype=np.float32)
-            except ValueError:
-                raise DataError(f"not a number in {line[:60]!r}", str(path), number) from None
-            if parts[0] not in seen:
-                seen.add(parts[0])
-                words.append(parts[0])
-                rows.append(vector)
+            continue
+        dim = dim or len(parts) - 1
+        if len(parts) - 1 != dim:
+            raise DataError(
+                f"expected {dim} numbers after the word, found {len(parts) - 1}", where, number
+            )
+        try:
+            vector = np.asarray(parts[1:], dtype=np.float32)
+        except ValueError:
+            raise DataError(f"not a number in {shortened(line)}", where, number) from None
+        if parts[0] not in seen:
+            seen.add(parts[0])
+            words.append(parts[0])
+            rows.append(vector)
     if not rows:
-        raise DataError("no vectors found", str(path))
+        raise DataError("no vectors found", where)
     return words, np.stack(rows)

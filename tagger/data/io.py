@@ -1,0 +1,152 @@
+"""Reading input: the one place that opens a path or standard input, splits lines, removes a
+byte-order mark and decodes UTF-8. Every reader of a text file builds on it (column files, lexicons,
+word vectors, documents to tag), so they all accept the same inputs and fail the same way.
+
+The rules:
+
+* A path of "-" is standard input. It is never closed here, and since it cannot be read twice a
+  caller that needs two passes keeps what it read.
+* Lines end at LF. A CR directly before the LF belongs to the line ending; any other CR, and
+  every other Unicode line separator, stays in the text.
+* Only a byte-order mark at the very start of the input is removed.
+* Bytes that are not UTF-8 raise DataError naming the file and line, with the bytes, their byte
+  offset in the input and the bytes around them, shortened.
+* A file that cannot be opened raises DataError naming the file.
+
+Input is read line by line, never held whole. Writing is `tagger.data.atomic`.
+"""
+
+from __future__ import annotations
+
+import contextlib
+import io
+import sys
+from collections.abc import Iterable, Iterator
+from dataclasses import dataclass
+from pathlib import Path
+from typing import BinaryIO
+
+from tagger.errors import DataError
+
+STDIO = "-"
+STDIN_NAME = "<stdin>"
+UTF8_BOM = b"\xef\xbb\xbf"
+
+# How much of an offending line an error message shows.
+SHOWN_CHARS = 60
+SHOWN_BYTES = 8  # of the bytes that are not UTF-8
+CONTEXT_BYTES = 16  # on either side of them
+
+
+def is_stdio(path: str | Path) -> bool:
+    """Does `path` name standard input (or output)?"""
+    return str(path) == STDIO
+
+
+def input_name(path: str | Path) -> str:
+    """The name error messages give an input: the path, or "<stdin>"."""
+    return STDIN_NAME if is_stdio(path) else str(path)
+
+
+@contextlib.contextmanager
+def open_input(path: str | Path) -> Iterator[BinaryIO]:
+    """`path` opened for reading bytes; "-" is standard input (left open afterwards).
+
+    Raises DataError naming the file when it cannot be opened (missing, a folder, no permission).
+    """
+    if is_stdio(path):
+        yield sys.stdin.buffer
+        return
+    try:
+        stream = open(path, "rb")  # noqa: SIM115 - closed by the with below
+    except OSError as error:
+        raise DataError(f"cannot open the file: {error.strerror}", str(path)) from None
+    with stream:
+        yield stream
+
+
+@dataclass(frozen=True, slots=True)
+class RawLine:
+    """One input line as bytes, before decoding."""
+
+    number: int  # 1-based
+    data: bytes  # without its line ending, and on line 1 without a byte-order mark
+    offset: int  # byte offset of data[0] in the input
+
+
+def raw_lines(stream: Iterable[bytes]) -> Iterator[RawLine]:
+    """The lines of a byte stream (split at LF) under the module's rules, not yet decoded."""
+    offset = 0
+    for number, raw in enumerate(stream, start=1):
+        start = offset
+        offset += len(raw)
+        if raw.endswith(b"\n"):
+            raw = raw[:-2] if raw.endswith(b"\r\n") else raw[:-1]
+        if number == 1 and raw.startswith(UTF8_BOM):
+            raw = raw[len(UTF8_BOM) :]
+            start += len(UTF8_BOM)
+        yield RawLine(number, raw, start)
+
+
+def decode_line(line: RawLine, name: str) -> str:
+    """The text of a line; raises DataError (file, line, bytes and offset) if it is not UTF-8."""
+    try:
+        return line.data.decode("utf-8")
+    except UnicodeDecodeError as error:
+        message = undecodable(line.data, error.start, error.end, error.reason, line.offset)
+        raise DataError(message, name, line.number) from None
+
+
+def decoded_lines(stream: Iterable[bytes], name: str) -> Iterator[tuple[int, str]]:
+    """(1-based line number, text without its line ending) for each line of a byte stream.
+
+    Raises DataError at the first line that is not UTF-8; the lines before it arrive first.
+    """
+    for line in raw_lines(stream):
+        yield line.number, decode_line(line, name)
+
+
+def read_lines(path: str | Path) -> Iterator[tuple[int, str]]:
+    """(line number, text) for each line of a file or of standard input ("-"), read lazily.
+
+    The file is opened on the first `next()`; every failure is a DataError naming the input.
+    """
+    name = input_name(path)
+    with open_input(path) as stream:
+        yield from decoded_lines(stream, name)
+
+
+def decode_text(data: bytes, name: str) -> str:
+    """A whole input held as bytes, as text: the byte-order mark removed, UTF-8 decoded.
+
+    Raises the DataError that reading `data` line by line raises at its first bad line.
+    """
+    skip = len(UTF8_BOM) if data.startswith(UTF8_BOM) else 0
+    try:
+        return data[skip:].decode("utf-8")
+    except UnicodeDecodeError:
+        # LF never occurs inside a UTF-8 sequence, so some line fails to decode on its own.
+        for _ in decoded_lines(io.BytesIO(data), name):
+            pass
+        raise
+
+
+def undecodable(data: bytes, start: int, end: int, reason: str, offset: int) -> str:
+    """What is wrong with a line whose bytes data[start:end] are not UTF-8: the bytes, their
+    offset in the input (`offset` is that of data[0]) and the bytes around them, shortened."""
+    bad = data[start:end]
+    shown = repr(bad[:SHOWN_BYTES]) + ("..." if len(bad) > SHOWN_BYTES else "")
+    before = max(0, start - CONTEXT_BYTES)
+    after = min(len(data), end + CONTEXT_BYTES)
+    around = ("..." if before else "") + repr(data[before:after])
+    around += "..." if after < len(data) else ""
+    return (
+        f"bytes {shown} at byte offset {offset + start} are not valid UTF-8 ({reason}) in {around}"
+    )
+
+
+def shortened(text: str, limit: int = SHOWN_CHARS) -> str:
+    """repr() of an offending piece of input, cut to a readable length."""
+    if len(text) > limit:
+        return repr(text[: limit - 3]) + "..."
+    return repr(text)

@@ -1,0 +1,184 @@
+"""The `check` report as text: a block of labelled lines per file, then each later file against
+the training file. Reads the dict of `tagger.data.check.check_files`.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Callable
+from typing import Any
+
+from tagger.data.check import LONG_SENTENCE
+from tagger.reports.layout import bullets, count, labelled, number, share
+
+
+def format_check(report: dict[str, Any]) -> str:
+    """A check report as readable text: one block per file, then the comparison with train."""
+    out: list[str] = [report["note"] + "."]
+    for entry in report["files"]:
+        out.append("")
+        out.extend(_format_file(entry))
+    if report["against_train"]:
+        out.append("")
+        out.append(f"Against the training file {report['train']}")
+        for comparison, entry in zip(report["against_train"], report["files"][1:], strict=True):
+            out.extend(_format_comparison(comparison, entry))
+    return "\n".join(out)
+
+
+def _examples(found: dict[str, Any], describe: Callable[[dict[str, Any]], str]) -> list[str]:
+    texts = [describe(example) for example in found["examples"]]
+    return bullets(texts, hidden=found["count"] - len(found["examples"]))
+
+
+def _counted_values(counts: dict[str, int]) -> str:
+    return ", ".join(f"{name}={number(n)}" for name, n in counts.items())
+
+
+def _format_file(entry: dict[str, Any]) -> list[str]:
+    out = [entry["file"]]
+    size = (
+        f"{count(entry['sentences'], 'sentence')}, {count(entry['tokens'], 'token')}, "
+        f"{count(entry['documents'], 'document')}"
+    )
+    if entry["columns"]:
+        size += f"; {count(entry['columns'], 'column')}, {entry['delimiter']}-separated"
+    out += labelled("size", size)
+    longest = entry["longest_sentence"]
+    if longest["line"] is not None:
+        out += labelled(
+            "longest", f"{count(longest['tokens'], 'token')}, from line {longest['line']}"
+        )
+    if entry["whitespace_only_lines"]:
+        out += labelled(
+            "blank lines",
+            f"{count(entry['whitespace_only_lines'], 'line')} holding only spaces or TABs, "
+            "taken as empty lines",
+        )
+    if entry["trailing_lines"]:
+        out += labelled(
+            "after end",
+            f"{count(entry['trailing_lines'], 'line')} of document marks, comments or blanks "
+            "after the last sentence, which belong to no sentence",
+        )
+    if "scheme" in entry:
+        out += _format_labels(entry)
+    for column in entry["extra_columns"]:
+        shown = _counted_values({v["value"]: v["count"] for v in column["most_frequent"]})
+        more = column["distinct"] - len(column["most_frequent"])
+        out += labelled(
+            f"column {column['column']}",
+            f"{count(column['distinct'], 'distinct value')}: {shown}"
+            + (f", and {number(more)} more" if more > 0 else ""),
+        )
+    for coverage in entry.get("lexicon_coverage", []):
+        out += _format_coverage(coverage)
+    found = entry["invisible_characters"]
+    if found["count"]:
+        out += labelled(
+            "hidden chars",
+            f"{count(found['count'], 'token')} holding invisible, control or unusual space "
+            "characters:",
+        )
+        out += _examples(
+            found, lambda e: f"line {e['line']}: {e['token']}, {', '.join(e['characters'])}"
+        )
+    repeated = entry["repeated_sentences"]
+    verb = "repeats" if repeated == 1 else "repeat"
+    out += labelled("repeats", f"{count(repeated, 'sentence')} {verb} an earlier one of this file")
+    return out
+
+
+def _format_labels(entry: dict[str, Any]) -> list[str]:
+    out: list[str] = []
+    scheme = entry["scheme"]
+    if scheme is not None:
+        if scheme["checked_as"] is None:
+            out += labelled("scheme", f"unknown: {scheme['note']}")
+        else:
+            names = " or ".join(scheme["candidates"])
+            if scheme["ambiguous"]:
+                names += f" (several fit equally well; checked as {scheme['checked_as']})"
+            out += labelled("scheme", f"{names}: {scheme['note']}")
+    types = _counted_values(entry["span_types"])
+    out += labelled("spans", number(entry["spans"]) + (f": {types}" if types else ""))
+    labels = _counted_values(entry["labels"])
+    if entry["labels_not_shown"]:
+        labels += f", and {number(entry['labels_not_shown'])} rarer ones"
+    out += labelled(
+        "labels", f"{number(entry['distinct_labels'])} distinct: {labels}" if labels else "none"
+    )
+    found = entry["not_span_tags"]
+    if found["count"]:
+        out += labelled(
+            "not tags",
+            f"{count(found['count'], 'sentence')} with labels that are neither O nor PREFIX-TYPE:",
+        )
+        out += _examples(found, lambda e: f"line {e['line']}: {e['label']!r}")
+    found = entry["ill_formed"]
+    if found is not None:
+        if found["count"]:
+            out += labelled("ill-formed", f"{count(found['count'], 'transition')}:")
+            out += _examples(found, lambda e: f"line {e['line']}: {e['message']}")
+        else:
+            out += labelled("ill-formed", "none")
+    found = entry["inconsistent_labelling"]
+    if found["count"]:
+        out += labelled(
+            "conflicts",
+            f"{count(found['count'], 'token sequence')} labelled in more than one way:",
+        )
+        out += _examples(found, _describe_conflict)
+    return out
+
+
+def _format_coverage(coverage: dict[str, Any]) -> list[str]:
+    spans, entries, matches = coverage["spans"], coverage["entries"], coverage["matches"]
+    text = (
+        f"{coverage['lexicon']} ({count(entries, 'entry', 'entries')}) covers "
+        f"{number(coverage['exact'])} of {count(spans, 'gold span')} exactly "
+        f"({share(coverage['exact'], spans)}; {number(coverage['exact_same_type'])} with the "
+        f"same type), {number(coverage['partial'])} in part, {number(coverage['none'])} not at "
+        f"all; {number(coverage['matches_outside_spans'])} of its "
+        f"{count(matches, 'match', 'matches')} lie outside every gold span"
+    )
+    out = labelled("lexicon", text)
+    by_type = "; ".join(
+        f"{kind} {number(t['exact'])} of {number(t['spans'])} exactly, "
+        f"{number(t['partial'])} in part"
+        for kind, t in coverage["per_type"].items()
+    )
+    if by_type:
+        out += labelled("", f"by type: {by_type}")
+    return out
+
+
+def _describe_conflict(example: dict[str, Any]) -> str:
+    first, later = example["lines"]
+    text = f"lines {first} and {later}: {example['text']!r}"
+    difference = example.get("first_difference")
+    if difference:
+        a, b = difference["labels"]
+        text += f", token {difference['position']} {difference['token']!r} is {a}, then {b}"
+    return text
+
+
+def _format_comparison(comparison: dict[str, Any], entry: dict[str, Any]) -> list[str]:
+    out = ["", comparison["file"]]
+    for key, title in (
+        ("span_types_not_in_train", "new types"),
+        ("labels_not_in_train", "new labels"),
+        ("train_labels_absent_here", "train only"),
+    ):
+        items = comparison[key]
+        out += labelled(title, ", ".join(items) if items else "none")
+    shared = comparison["sentences_also_in_train"]
+    longer = comparison["longer_sentences_also_in_train"]
+    text = f"{number(shared)} of {number(comparison['sentences'])} sentences also occur in train"
+    if shared:
+        text += f" ({number(longer)} of them with {LONG_SENTENCE} tokens or more):"
+    out += labelled("overlap", text)
+    out += _examples(
+        entry["also_in_train"],
+        lambda e: f"line {e['line']} (train line {e['train_line']}): {e['text']!r}",
+    )
+    return out
