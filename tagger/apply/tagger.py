@@ -17,16 +17,19 @@ from typing import TYPE_CHECKING, Any
 
 from tagger.apply.documents import Document, Skipped
 from tagger.apply.engine import CHUNK_CHARS, Engine, TaggedSpan, chunks
-from tagger.config import Config, config_from_dict
+from tagger.config import Config
 from tagger.data.schemes import Span, read_spans, spans_to_tags, split_tag
-from tagger.errors import DataError, ModelFileError, TaggerError
+from tagger.errors import DataError, ModelFileError
 from tagger.text.features import FeatureSpec
 from tagger.text.tokenizer import TextSentence, TokenizerSettings, split_sentences
 from tagger.text.vocab import Vocabularies
 from tagger.version import __version__
 
 if TYPE_CHECKING:
+    import torch
+
     from tagger.network.batching import EncodedSentence
+    from tagger.network.metadata import StoredModel
     from tagger.network.net import TaggerNet
 
 PREDICT_BATCH = 64  # sentences per batch when predicting (PERFORMANCE.md: 64-128 on 2 threads)
@@ -52,6 +55,25 @@ def read_tokenizer_settings(meta: dict[str, Any]) -> TokenizerSettings:
     return TokenizerSettings.from_dict(meta.get("tokenizer", {}))
 
 
+def _read_checked(
+    path: str | Path, notes: list[str]
+) -> tuple[dict[str, torch.Tensor], dict[str, Any], StoredModel]:
+    """A model file's tensors, raw metadata and checked contents; nothing built yet."""
+    from tagger.network.metadata import check_weights, read_stored_model
+    from tagger.network.modelfile import load_model_file
+
+    tensors, meta = load_model_file(path, notes)
+    stored = read_stored_model(meta, path)
+    check_weights(tensors, stored, path)
+    return tensors, meta, stored
+
+
+def model_tokenizer_settings(path: str | Path, notes: list[str] | None = None) -> TokenizerSettings:
+    """The tokenizer settings of a model file, read with every check `Tagger.load` makes (no
+    network is built); notes on the file are appended to ``notes``."""
+    return _read_checked(path, notes if notes is not None else [])[2].tokenizer
+
+
 @dataclass
 class Tagger:
     """A trained tagger: ``Tagger.load(path).tag(["some text"])``.
@@ -66,6 +88,7 @@ class Tagger:
     input_scheme: str  # the scheme of the training files; predictions are written back in it
     meta: dict[str, Any] = field(default_factory=dict)
     features: FeatureSpec | None = None  # extra columns, lexicons, word shape; None: words only
+    notes: list[str] = field(default_factory=list)  # remarks on the model file it was loaded from
 
     # --- model files ---------------------------------------------------------------------------
 
@@ -73,35 +96,33 @@ class Tagger:
     def load(cls, path: str | Path, threads: int | None = None) -> Tagger:
         """Rebuild a tagger from its model file (never unpickles).
 
+        Nothing is built before the metadata is checked and the file's tensors are found to be
+        exactly those of the network it describes (`tagger.network.metadata`); every refusal is
+        a one-line ModelFileError naming the file. Notes on the file (one written before the
+        metadata digest) are kept in ``notes``.
         ``threads`` sets how many threads torch uses in this process (None or 0: torch's default).
         """
         limit_kernel_cache()  # before torch builds any kernel
         import torch
 
-        from tagger.network.modelfile import load_model_file
         from tagger.network.net import build_net
 
         if threads:
             torch.set_num_threads(threads)
-        tensors, meta = load_model_file(path)
+        notes: list[str] = []
+        tensors, meta, stored = _read_checked(path, notes)
         try:
-            config = config_from_dict(meta["config"])
-            vocabs = Vocabularies.from_dict(meta["vocabularies"])
-            input_scheme = meta["input_scheme"]
-            features = FeatureSpec.from_dict(meta["features"]) if "features" in meta else None
-        except (KeyError, TypeError, IndexError) as error:
-            raise ModelFileError(f"{path}: model metadata lacks {error}") from None
-        except (TaggerError, ValueError) as error:
-            raise ModelFileError(f"{path}: the stored features are unreadable ({error})") from None
-        net = build_net(config, vocabs, features)
-        try:
+            net = build_net(stored.config, stored.vocabs, stored.features)
             net.load_state_dict(tensors)
-        except RuntimeError as error:
+        except (RuntimeError, ValueError) as error:  # not expected once the checks have passed
+            detail = " ".join(str(error).split())[:200]
             raise ModelFileError(
-                f"{path}: weights do not fit the stored config ({error})"
+                f"{path}: weights do not fit the stored config ({detail})"
             ) from None
         net.eval()
-        return cls(net, vocabs, config, input_scheme, meta, features)
+        return cls(
+            net, stored.vocabs, stored.config, stored.input_scheme, meta, stored.features, notes
+        )
 
     def save(self, path: str | Path, extra: dict[str, Any] | None = None) -> None:
         """Write the model file; ``extra`` adds to (or replaces) keys of the stored metadata."""

@@ -166,7 +166,7 @@ def tag_files(
                 name = "<stdin>" if str(path) == STDIO else str(path)
                 raise tagger.features.refusal(f"{name} ({kind} input)")
     job = _job(tagger, options)
-    summary = TagSummary()
+    summary = TagSummary(notes=list(tagger.notes))
     items = read_documents(inputs, options.input_format, options.token_column, summary.notes)
     chunked = chunks(items, options.chunk_chars, stop_at_skip=options.on_error == "stop")
     if options.workers > 1:

@@ -111,6 +111,8 @@ def evaluate(
     readable_inputs(("files", files))
     with domain_errors():
         tagger = Tagger.load(model)
+        for note in tagger.notes:
+            say(f"note: {note}")
         result = evaluate_files(
             tagger, files, column_format(delimiter, token_column, label_column), predictions
         )

@@ -144,11 +144,11 @@ def tokenize(
         )
     with domain_errors():
         settings = TokenizerSettings()
+        model_notes: list[str] = []
         if model is not None:
-            from tagger.apply.tagger import read_tokenizer_settings
-            from tagger.network.modelfile import load_model_file
+            from tagger.apply.tagger import model_tokenizer_settings
 
-            settings = read_tokenizer_settings(load_model_file(model)[1])
-        notes = tokenize_files(names, out, settings, input_format)
+            settings = model_tokenizer_settings(model, model_notes)
+        notes = model_notes + tokenize_files(names, out, settings, input_format)
     for note in notes:
         say(f"note: {note}")
