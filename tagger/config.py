@@ -1,10 +1,15 @@
 """Typed, validated configuration: loaded from TOML, overridden from the command line, saved in model files.
 
-A config file has three tables, each optional, each key optional:
+A config file has four tables, each optional, each key optional:
 
-    [data]   where the annotated files are and how to read them
-    [model]  what network to build (travels inside the model file)
-    [train]  how to fit it
+    [data]       where the annotated files are and how to read them
+    [model]      what network to build (travels inside the model file)
+    [train]      how to fit it
+    [tokenizer]  how raw text is cut into tokens at tagging time (travels inside the model file)
+
+Every key with a fixed set of values is an enum owned here or by the module that owns the
+concept (schemes, delimiters, lexicon case), and the command line offers the same enums, so a new
+value is one edit.
 
 Unknown keys, wrong types and values outside the allowed set are rejected with the key's name.
 List-valued keys (e.g. `feature_columns = [1]`) are TOML arrays, held as tuples so that a config
@@ -17,21 +22,57 @@ import dataclasses
 import tomllib
 import typing
 from dataclasses import dataclass, field, fields, replace
+from enum import Enum, StrEnum
 from pathlib import Path
 from typing import Any
 
 import tomli_w
 
+from tagger.data.column_lines import DelimiterChoice
+from tagger.data.scheme_rules import SchemeName, normalise_scheme_name
 from tagger.errors import ConfigError
+from tagger.text.lexicon import LexiconCase
+from tagger.text.tokenizer import TokenizerSettings
 
-CELLS = ("rnn", "minimal", "gru", "lstm")
-OUTPUTS = ("crf", "softmax")
-CHAR_ENCODERS = ("cnn", "rnn", "none")
-OPTIMIZERS = ("adam", "sgd")
-SCHEDULES = ("constant", "exponential", "plateau")
-DELIMITERS = ("auto", "tab", "space")
-HOLDOUTS = ("random", "last")
-LEXICON_CASES = ("ignore", "exact", "smart")  # see tagger.text.lexicon
+
+class CellKind(StrEnum):
+    """The recurrent cells (tagger.network.cells)."""
+
+    RNN = "rnn"  # vanilla tanh
+    MINIMAL = "minimal"  # minimal gated unit
+    GRU = "gru"
+    LSTM = "lstm"
+
+
+class OutputLayer(StrEnum):
+    CRF = "crf"
+    SOFTMAX = "softmax"
+
+
+class CharEncoder(StrEnum):
+    CNN = "cnn"
+    RNN = "rnn"
+    NONE = "none"
+
+
+class OptimizerKind(StrEnum):
+    ADAM = "adam"
+    SGD = "sgd"
+
+
+class Schedule(StrEnum):
+    """How the learning rate moves after each epoch (tagger.training.schedule)."""
+
+    CONSTANT = "constant"
+    EXPONENTIAL = "exponential"
+    PLATEAU = "plateau"
+
+
+class Holdout(StrEnum):
+    """Which training sentences become dev when no dev file is given."""
+
+    RANDOM = "random"
+    LAST = "last"
 
 
 @dataclass(frozen=True)
@@ -39,30 +80,27 @@ class DataConfig:
     train: str = ""
     dev: str = ""
     dev_fraction: float = 0.1  # held out of train when no dev file is given
-    dev_holdout: str = (
-        "random"  # which sentences: a seeded random draw, or the last ones in the file
-    )
+    dev_holdout: Holdout = Holdout.RANDOM  # a seeded random draw, or the last ones in the file
     token_column: int = 0
     label_column: int = -1
-    delimiter: str = "auto"
+    delimiter: DelimiterChoice = DelimiterChoice.AUTO
 
 
 @dataclass(frozen=True)
 class ModelConfig:
-    cell: str = "lstm"
+    cell: CellKind = CellKind.LSTM
     hidden_size: int = 128  # per direction
     layers: int = 2
     bidirectional: bool = True
     word_dim: int = 100
-    char_encoder: str = "cnn"
+    char_encoder: CharEncoder = CharEncoder.CNN
     char_dim: int = 32
     char_features: int = 64  # CNN filters, or hidden units per direction of the character RNN
     char_kernel: int = 3
     dropout: float = 0.5
-    output: str = "crf"
-    scheme: str = (
-        "BIOES"  # the scheme the network learns; predictions are written in the input's scheme
-    )
+    output: OutputLayer = OutputLayer.CRF
+    # the scheme the network learns; predictions are written in the input's scheme
+    scheme: SchemeName = SchemeName["BIOES"]
     lowercase: bool = False
     digits_to_zero: bool = True
     min_word_count: int = 1
@@ -72,7 +110,7 @@ class ModelConfig:
     feature_columns: tuple[int, ...] = ()  # 0-based columns of the input files read as features
     feature_dim: int = 16  # embedding size of each feature column's values
     lexicons: tuple[str, ...] = ()  # lexicon files: "entry" or "entry<TAB>type" per line
-    lexicon_case: str = "ignore"  # ignore, exact, or smart (lower-case entries ignore case)
+    lexicon_case: LexiconCase = LexiconCase.IGNORE  # smart: lower-case entries ignore case
     lexicon_dim: int = 8  # embedding size of each lexicon category's match tags
     word_shape: bool = False  # read each token's shape (case, digits, punctuation, length)
     shape_dim: int = 8
@@ -82,9 +120,9 @@ class ModelConfig:
 class TrainConfig:
     epochs: int = 30
     batch_size: int = 32
-    optimizer: str = "adam"
+    optimizer: OptimizerKind = OptimizerKind.ADAM
     learning_rate: float = 0.002
-    lr_schedule: str = "exponential"
+    lr_schedule: Schedule = Schedule.EXPONENTIAL
     lr_decay: float = 0.95  # per epoch (exponential) or on each plateau (plateau)
     weight_decay: float = 0.0
     clip_norm: float = 5.0
@@ -101,11 +139,12 @@ class Config:
     data: DataConfig = field(default_factory=DataConfig)
     model: ModelConfig = field(default_factory=ModelConfig)
     train: TrainConfig = field(default_factory=TrainConfig)
+    tokenizer: TokenizerSettings = field(default_factory=TokenizerSettings)
 
     def to_dict(self) -> dict[str, dict[str, Any]]:
-        """Plain JSON-ready tables: list-valued keys come back as lists."""
+        """Plain JSON-ready tables: list-valued keys come back as lists, choices as strings."""
         return {
-            section: {k: list(v) if isinstance(v, tuple) else v for k, v in values.items()}
+            section: {k: _plain(v) for k, v in values.items()}
             for section, values in dataclasses.asdict(self).items()
         }
 
@@ -117,18 +156,19 @@ class Config:
         return tomli_w.dumps(self.to_dict())
 
 
-SECTIONS: dict[str, type] = {"data": DataConfig, "model": ModelConfig, "train": TrainConfig}
+def _plain(value: Any) -> Any:
+    if isinstance(value, tuple):
+        return list(value)
+    return value.value if isinstance(value, Enum) else value
 
-_CHOICES: dict[tuple[str, str], tuple[str, ...]] = {
-    ("model", "cell"): CELLS,
-    ("model", "output"): OUTPUTS,
-    ("model", "char_encoder"): CHAR_ENCODERS,
-    ("train", "optimizer"): OPTIMIZERS,
-    ("train", "lr_schedule"): SCHEDULES,
-    ("data", "delimiter"): DELIMITERS,
-    ("data", "dev_holdout"): HOLDOUTS,
-    ("model", "lexicon_case"): LEXICON_CASES,
+
+SECTIONS: dict[str, type] = {
+    "data": DataConfig,
+    "model": ModelConfig,
+    "train": TrainConfig,
+    "tokenizer": TokenizerSettings,
 }
+
 _POSITIVE = {
     ("model", "hidden_size"),
     ("model", "layers"),
@@ -169,6 +209,8 @@ def _coerce(section: str, name: str, expected: Any, value: Any) -> Any:
     elif expected is float:
         ok = isinstance(value, int | float) and not isinstance(value, bool)
         value = float(value) if ok else value
+    elif isinstance(expected, type) and issubclass(expected, Enum):
+        return _choice(key, expected, value)
     else:
         ok = isinstance(value, expected)
     if not ok:
@@ -176,11 +218,22 @@ def _coerce(section: str, name: str, expected: Any, value: Any) -> Any:
     return value
 
 
+def _choice(key: str, kind: type[Enum], value: Any) -> Enum:
+    """A value of a fixed set, read from its string; scheme names also by alias and any case."""
+    if kind is SchemeName and isinstance(value, str):
+        try:
+            return SchemeName(normalise_scheme_name(value))
+        except ConfigError as error:
+            raise ConfigError(f"{key}: {error}") from None
+    try:
+        return kind(value)
+    except ValueError:
+        allowed = ", ".join(str(member.value) for member in kind)  # type: ignore[attr-defined]
+        raise ConfigError(f"{key} must be one of {allowed}; got {value!r}") from None
+
+
 def _validate(section: str, name: str, value: Any) -> None:
     key = f"{section}.{name}"
-    choices = _CHOICES.get((section, name))
-    if choices and value not in choices:
-        raise ConfigError(f"{key} must be one of {', '.join(choices)}; got {value!r}")
     if (section, name) in _POSITIVE and value < 1:
         raise ConfigError(f"{key} must be at least 1; got {value!r}")
     if (section, name) in _FRACTIONS and not 0.0 <= value < 1.0:
@@ -199,10 +252,6 @@ def _validate(section: str, name: str, value: Any) -> None:
             raise ConfigError(f"{key} lists a column twice: {list(value)}")
     if (section, name) == ("model", "lexicons") and not all(v.strip() for v in value):
         raise ConfigError(f"{key} must hold file paths, not empty strings; got {list(value)}")
-    if (section, name) == ("model", "scheme"):
-        from tagger.data.schemes import normalise_scheme_name
-
-        normalise_scheme_name(value)
 
 
 def _section(section: str, values: dict[str, Any], base: Any) -> Any:
@@ -226,7 +275,7 @@ def config_from_dict(raw: dict[str, Any], base: Config | None = None) -> Config:
     config = base or Config()
     for section, values in raw.items():
         if section not in SECTIONS:
-            raise ConfigError(f"unknown table [{section}]; known tables: data, model, train")
+            raise ConfigError(f"unknown table [{section}]; known tables: {', '.join(SECTIONS)}")
         if not isinstance(values, dict):
             raise ConfigError(f"[{section}] must be a table of keys")
         config = replace(config, **{section: _section(section, values, getattr(config, section))})

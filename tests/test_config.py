@@ -87,3 +87,39 @@ def test_to_toml_reads_back_as_the_same_config(tmp_path: Path) -> None:
     path.write_text(config.to_toml(), encoding="utf-8")
     assert load_config(path) == config
     assert "max_minutes = inf" in config.to_toml()
+
+
+def test_the_tokenizer_table_is_validated_and_reaches_the_model(tmp_path: Path) -> None:
+    path = tmp_path / "c.toml"
+    path.write_text(
+        "[tokenizer]\nsplit_hyphens = true\nkeep_number_units = true\nmax_sentence_tokens = 80\n",
+        encoding="utf-8",
+    )
+    config = load_config(path)
+    assert config.tokenizer.split_hyphens and config.tokenizer.keep_number_units
+    assert config.tokenizer.max_sentence_tokens == 80
+    # written back by the run folder's writer and read again unchanged
+    again = tmp_path / "again.toml"
+    again.write_text(config.to_toml(), encoding="utf-8")
+    assert load_config(again) == config
+    with pytest.raises(ConfigError, match="split_clitics"):
+        config_from_dict({"tokenizer": {"split_clitics": "yes"}})
+    with pytest.raises(ConfigError, match="unknown key tokenizer.hyphens"):
+        config_from_dict({"tokenizer": {"hyphens": True}})
+
+
+@pytest.mark.parametrize(
+    ("section", "key", "value"),
+    [("model", "cell", "lstmm"), ("model", "output", "crf2"), ("data", "delimiter", "comma"),
+     ("train", "lr_schedule", "cosine"), ("model", "lexicon_case", "upper")],
+)  # fmt: skip
+def test_choices_name_the_allowed_values(section: str, key: str, value: str) -> None:
+    with pytest.raises(ConfigError, match=f"{section}.{key} must be one of .*got '{value}'"):
+        config_from_dict({section: {key: value}})
+
+
+def test_scheme_names_are_read_by_alias_and_stored_canonical() -> None:
+    assert config_from_dict({"model": {"scheme": "bio"}}).model.scheme == "IOB2"
+    assert config_from_dict({"model": {"scheme": "iobes"}}).to_dict()["model"]["scheme"] == "BIOES"
+    with pytest.raises(ConfigError, match="model.scheme: unknown tagging scheme"):
+        config_from_dict({"model": {"scheme": "BIOX"}})

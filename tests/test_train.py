@@ -63,7 +63,7 @@ def small_config(train_path: Path, dev_path: Path | None, **sections: dict) -> C
         },
     }
     for name, values in sections.items():
-        raw[name] = {**raw[name], **values}
+        raw[name] = {**raw.get(name, {}), **values}
     return config_from_dict(raw)
 
 
@@ -341,3 +341,13 @@ def test_a_checkpoint_from_before_a_new_config_key_still_resumes(
 
     with pytest.raises(ModelFileError, match="another config"):
         train(config, tmp_path / "run", resume=True)
+
+
+def test_the_configs_tokenizer_table_travels_in_the_model(tiny_files: Path, tmp_path: Path) -> None:
+    data = tiny_files / "train.txt"
+    config = small_config(data, data, train={"epochs": 1}, tokenizer={"split_hyphens": True})
+    tagger = Tagger.load(train(config, tmp_path / "run").model_path)
+    assert tagger.tokenizer_settings.split_hyphens
+    # the stored settings are the ones tagging uses: "T-14" is cut at its hyphen
+    words = [t.text for s in tagger.tokenize("Crew checked T-14 today.") for t in s.tokens]
+    assert words[:5] == ["Crew", "checked", "T", "-", "14"]

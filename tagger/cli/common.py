@@ -11,6 +11,7 @@ from typing import Annotated, Any
 
 import typer
 
+from tagger.data.column_lines import DelimiterChoice
 from tagger.data.corpus import ColumnFormat
 from tagger.data.io import is_stdio
 from tagger.errors import TaggerError
@@ -36,7 +37,7 @@ __all__ = [
 ]
 
 app = typer.Typer(
-    add_completion=False,
+    add_completion=True,  # choices are enums, so shells can offer them
     no_args_is_help=True,
     help="Train, evaluate and run sequence taggers on annotated column files, on CPUs.",
 )
@@ -47,7 +48,13 @@ TokenColumn = Annotated[
 LabelColumn = Annotated[
     int, typer.Option(help="Column holding the label (0-based; -1 is the last).")
 ]
-Delimiter = Annotated[str, typer.Option(help="Column separator: auto, tab or space.")]
+Delimiter = Annotated[
+    DelimiterChoice,
+    typer.Option(
+        help="Column separator: found from the first lines, one TAB, or runs of spaces/TABs.",
+        case_sensitive=False,
+    ),
+]
 AsJson = Annotated[
     bool, typer.Option("--json", help="Print machine-readable JSON instead of a table.")
 ]
@@ -101,12 +108,9 @@ def domain_errors() -> Iterator[None]:
 def column_format(
     delimiter: str, token_column: int, label_column: int, has_labels: bool = True
 ) -> ColumnFormat:
-    if delimiter not in ("auto", "tab", "space"):
-        raise typer.BadParameter(
-            f"must be auto, tab or space, not {delimiter!r}", param_hint="--delimiter"
-        )
+    choice = DelimiterChoice(delimiter)
     return ColumnFormat(
-        delimiter=None if delimiter == "auto" else delimiter,
+        delimiter=None if choice is DelimiterChoice.AUTO else choice.value,
         token_column=token_column,
         label_column=label_column,
         has_labels=has_labels,

@@ -24,6 +24,8 @@ from tagger.cli.common import (
     readable_inputs,
     say,
 )
+from tagger.data.scheme_rules import SchemeName
+from tagger.text.lexicon import LexiconCase
 
 
 @app.command()
@@ -47,24 +49,24 @@ def check(
         ),
     ] = None,
     lexicon_case: Annotated[
-        str, typer.Option(help="How lexicon entries meet tokens: ignore, exact or smart.")
-    ] = "ignore",
+        LexiconCase,
+        typer.Option(
+            help="How lexicon entries meet tokens: ignoring case, exactly, or smart (entries "
+            "in lower case ignore case, others must match exactly).",
+            case_sensitive=False,
+        ),
+    ] = LexiconCase.IGNORE,
     as_json: AsJson = False,
 ) -> None:
     """Inspect annotated column files: counts, scheme, ill-formed tags, leakage, inconsistencies,
     values of extra columns and lexicon coverage."""
     from tagger.data.check import check_files
     from tagger.reports.check import format_check
-    from tagger.text.lexicon import CASE_MODES, read_lexicon
+    from tagger.text.lexicon import read_lexicon
 
     readable_inputs(("--lexicon", lexicons), ("files", files))
-    if lexicon_case not in CASE_MODES:
-        raise typer.BadParameter(
-            f"must be one of {', '.join(CASE_MODES)}, not {lexicon_case!r}",
-            param_hint="--lexicon-case",
-        )
     with domain_errors():
-        loaded = [read_lexicon(path, lexicon_case) for path in lexicons or []]
+        loaded = [read_lexicon(path, lexicon_case.value) for path in lexicons or []]
         report = check_files(
             files, column_format(delimiter, token_column, label_column), lexicons=loaded
         )
@@ -83,10 +85,16 @@ def convert(
         ),
     ],
     to: Annotated[
-        str, typer.Option("--to", help="Target scheme: IO, IOB1, IOB2, IOE1, IOE2, BIOES, BILOU.")
+        SchemeName,
+        typer.Option("--to", help="Tagging scheme to write (any case).", case_sensitive=False),
     ],
     source_scheme: Annotated[
-        str | None, typer.Option("--from", help="Scheme of SOURCE (detected when omitted).")
+        SchemeName | None,
+        typer.Option(
+            "--from",
+            help="Tagging scheme of SOURCE (found from the file when omitted).",
+            case_sensitive=False,
+        ),
     ] = None,
     token_column: TokenColumn = 0,
     label_column: LabelColumn = -1,

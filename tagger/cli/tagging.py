@@ -17,6 +17,7 @@ from tagger.cli.common import (
     say,
 )
 from tagger.cli.progress import TaggingProgress
+from tagger.data.scheme_rules import SchemeName
 from tagger.errors import TaggerError
 
 
@@ -45,8 +46,11 @@ def tag(
         ),
     ] = "jsonl",
     scheme: Annotated[
-        str | None,
-        typer.Option(help="Label scheme of columns output (default: that of the training files)."),
+        SchemeName | None,
+        typer.Option(
+            help="Tagging scheme of columns output (default: that of the training files).",
+            case_sensitive=False,
+        ),
     ] = None,
     token_column: TokenColumn = 0,
     min_score: Annotated[float, typer.Option(help="Drop spans scoring below this (0 to 1).")] = 0.0,

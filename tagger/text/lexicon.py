@@ -33,6 +33,7 @@ from __future__ import annotations
 
 from collections.abc import Iterable, Sequence
 from dataclasses import dataclass
+from enum import StrEnum
 from pathlib import Path
 from typing import Any
 
@@ -41,7 +42,16 @@ from tagger.data.schemes import OUTSIDE, SCHEMES, Span, span_prefixes
 from tagger.errors import ConfigError, DataError
 from tagger.text.tokenizer import TokenizerSettings, tokenize
 
-CASE_MODES = ("ignore", "exact", "smart")
+
+class LexiconCase(StrEnum):
+    """How lexicon entries meet tokens (see the module docstring)."""
+
+    IGNORE = "ignore"
+    EXACT = "exact"
+    SMART = "smart"
+
+
+CASE_MODES: tuple[str, ...] = tuple(mode.value for mode in LexiconCase)
 
 # Tag ids of a category, as the model reads them: 0 is padding, 1 "no match".
 PAD_ID, NO_MATCH, BEGIN, INSIDE, END, SINGLE = 0, 1, 2, 3, 4, 5

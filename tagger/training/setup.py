@@ -64,7 +64,7 @@ def setup_training(config: Config, data: PreparedData) -> TrainingSetup:
         config.model.min_word_count,
         extra_words=vectors[0] if vectors else (),
     )
-    settings = TokenizerSettings()
+    settings = config.tokenizer  # stored in the model, so that tagging cuts text as training did
     features, value_counts = build_features(config.model, data.train, data.train_source, settings)
     if features is not None:
         check_columns(features, data.dev, data.dev_source)
