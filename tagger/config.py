@@ -84,6 +84,7 @@ class DataConfig:
     token_column: int = 0
     label_column: int = -1
     delimiter: DelimiterChoice = DelimiterChoice.AUTO
+    encoding: str = "utf-8"  # of the train and dev files (latin-1, cp1252... for older files)
 
 
 @dataclass(frozen=True)
@@ -252,6 +253,13 @@ def _validate(section: str, name: str, value: Any) -> None:
             raise ConfigError(f"{key} lists a column twice: {list(value)}")
     if (section, name) == ("model", "lexicons") and not all(v.strip() for v in value):
         raise ConfigError(f"{key} must hold file paths, not empty strings; got {list(value)}")
+    if (section, name) == ("data", "encoding"):
+        from tagger.data.io import checked_encoding
+
+        try:
+            checked_encoding(value)
+        except ConfigError as error:
+            raise ConfigError(f"{key}: {error}") from None
 
 
 def _section(section: str, values: dict[str, Any], base: Any) -> Any:

@@ -20,6 +20,10 @@ class DataError(TaggerError):
         super().__init__(f"{where}: {message}" if where else message)
 
 
+class NotDecodableError(DataError):
+    """Input bytes that are not text in the encoding they were read in (UTF-8 unless named)."""
+
+
 class ConfigError(TaggerError):
     """An invalid configuration key, value or override."""
 

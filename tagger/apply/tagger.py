@@ -18,6 +18,7 @@ from typing import TYPE_CHECKING, Any
 from tagger.apply.documents import Document, Skipped
 from tagger.apply.engine import CHUNK_CHARS, Engine, TaggedSpan, chunks
 from tagger.config import Config, config_from_dict
+from tagger.data.corpus import ColumnFormat
 from tagger.data.schemes import Span, read_spans, spans_to_tags, split_tag
 from tagger.errors import DataError, ModelFileError, TaggerError
 from tagger.text.features import FeatureSpec
@@ -29,6 +30,8 @@ if TYPE_CHECKING:
     from tagger.network.batching import EncodedSentence
     from tagger.network.net import TaggerNet
 
+# The metadata key training stores the column layout of its files under (see `column_layout`).
+COLUMN_LAYOUT_KEY = "column_layout"
 PREDICT_BATCH = 64  # sentences per batch when predicting (PERFORMANCE.md: 64-128 on 2 threads)
 
 ScoredSpan = tuple[str, int, int, float]  # (type, start, end, score), end exclusive
@@ -135,6 +138,27 @@ class Tagger:
     def needs_columns(self) -> bool:
         """Does the model read extra input columns (so that it can tag column files only)?"""
         return self.features is not None and self.features.needs_columns
+
+    @property
+    def column_layout(self) -> ColumnFormat | None:
+        """How the training files' columns were read (token column, label column, delimiter),
+        for reading gold files of the same layout; None for a model trained on sentences in
+        memory, or saved before models kept their layout. The encoding is not kept: a file in
+        another encoding than the one named would read as wrong text, not fail."""
+        stored = self.meta.get(COLUMN_LAYOUT_KEY)
+        if stored is None:
+            return None
+        try:
+            delimiter = stored["delimiter"]
+            return ColumnFormat(
+                delimiter=None if delimiter == "auto" else delimiter,
+                token_column=stored["token_column"],
+                label_column=stored["label_column"],
+            )
+        except (KeyError, TypeError, TaggerError) as error:
+            raise ModelFileError(
+                f"the model's stored column layout is unreadable ({error})"
+            ) from None
 
     @property
     def tokenizer_settings(self) -> TokenizerSettings:

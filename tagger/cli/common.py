@@ -13,18 +13,20 @@ import typer
 
 from tagger.data.column_lines import DelimiterChoice
 from tagger.data.corpus import ColumnFormat
-from tagger.data.io import is_stdio
-from tagger.errors import TaggerError
+from tagger.data.io import checked_encoding, input_name, is_stdio
+from tagger.errors import NotDecodableError, TaggerError
 from tagger.reports.layout import count
 from tagger.version import package_version
 
 __all__ = [
     "AsJson",
     "Delimiter",
+    "Encoding",
     "LabelColumn",
     "ModelFile",
     "TokenColumn",
     "app",
+    "checked_option_encoding",
     "column_format",
     "count",
     "domain_errors",
@@ -54,6 +56,10 @@ Delimiter = Annotated[
         help="Column separator: found from the first lines, one TAB, or runs of spaces/TABs.",
         case_sensitive=False,
     ),
+]
+Encoding = Annotated[
+    str,
+    typer.Option(help="Encoding of the column files, e.g. latin-1 or cp1252 for older files."),
 ]
 AsJson = Annotated[
     bool, typer.Option("--json", help="Print machine-readable JSON instead of a table.")
@@ -95,18 +101,35 @@ def say(message: str) -> None:
     print(message, file=sys.stderr, flush=True)
 
 
+# Added to the error of a column file that does not decode, by the commands taking --encoding.
+ENCODING_HINT = (
+    "; if the file is in another encoding, name it with --encoding, e.g. --encoding latin-1"
+)
+
+
 @contextmanager
-def domain_errors() -> Iterator[None]:
-    """Library errors become one line on stderr and exit code 1."""
+def domain_errors(column_files: Sequence[str | Path] = ()) -> Iterator[None]:
+    """Library errors become one line on stderr and exit code 1. `column_files` are the files
+    the command reads in the encoding its --encoding option names: bytes of theirs that do not
+    decode get a hint at that option."""
     try:
         yield
     except TaggerError as error:
-        say(f"tagger: error: {error}")
+        message = str(error)
+        if isinstance(error, NotDecodableError) and error.path in {
+            input_name(path) for path in column_files
+        }:
+            message += ENCODING_HINT
+        say(f"tagger: error: {message}")
         raise typer.Exit(1) from None
 
 
 def column_format(
-    delimiter: str, token_column: int, label_column: int, has_labels: bool = True
+    delimiter: str,
+    token_column: int,
+    label_column: int,
+    has_labels: bool = True,
+    encoding: str = "utf-8",
 ) -> ColumnFormat:
     choice = DelimiterChoice(delimiter)
     return ColumnFormat(
@@ -114,7 +137,16 @@ def column_format(
         token_column=token_column,
         label_column=label_column,
         has_labels=has_labels,
+        encoding=checked_option_encoding(encoding),
     )
+
+
+def checked_option_encoding(encoding: str) -> str:
+    """The --encoding value, or a usage error (exit 2) naming the option."""
+    try:
+        return checked_encoding(encoding)
+    except TaggerError as error:
+        raise typer.BadParameter(str(error), param_hint="--encoding") from None
 
 
 def print_json(data: Any) -> None:

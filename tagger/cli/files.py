@@ -13,6 +13,7 @@ import typer
 from tagger.cli.common import (
     AsJson,
     Delimiter,
+    Encoding,
     LabelColumn,
     TokenColumn,
     app,
@@ -40,6 +41,7 @@ def check(
     token_column: TokenColumn = 0,
     label_column: LabelColumn = -1,
     delimiter: Delimiter = "auto",
+    encoding: Encoding = "utf-8",
     lexicons: Annotated[
         list[Path] | None,
         input_option(
@@ -65,12 +67,22 @@ def check(
     from tagger.text.lexicon import read_lexicon
 
     readable_inputs(("--lexicon", lexicons), ("files", files))
-    with domain_errors():
+    with domain_errors(column_files=files):
         loaded = [read_lexicon(path, lexicon_case.value) for path in lexicons or []]
         report = check_files(
-            files, column_format(delimiter, token_column, label_column), lexicons=loaded
+            files,
+            column_format(delimiter, token_column, label_column, encoding=encoding),
+            lexicons=loaded,
         )
     print_json(report) if as_json else print(format_check(report))
+    misread = [entry["file"] for entry in report["files"] if "tag_column_hint" in entry]
+    if misread:
+        # Read with the wrong label column, a file cannot be checked: a pipeline must not go on.
+        say(
+            f"tagger: error: the label column of {', '.join(misread)} holds no span tags but "
+            "another column does; the report says which"
+        )
+        raise typer.Exit(1)
 
 
 @app.command()
@@ -99,15 +111,21 @@ def convert(
     token_column: TokenColumn = 0,
     label_column: LabelColumn = -1,
     delimiter: Delimiter = "auto",
+    encoding: Encoding = "utf-8",
 ) -> None:
-    """Rewrite a column file's labels in another tagging scheme, keeping every other column."""
+    """Rewrite a column file's labels in another tagging scheme, keeping every other column
+    (written as UTF-8)."""
     from tagger.data.convert import convert_file
     from tagger.reports.conversion import format_conversion
 
     readable_inputs(("source", source))
-    with domain_errors():
+    with domain_errors(column_files=[source]):
         summary = convert_file(
-            source, target, to, column_format(delimiter, token_column, label_column), source_scheme
+            source,
+            target,
+            to,
+            column_format(delimiter, token_column, label_column, encoding=encoding),
+            source_scheme,
         )
     say(format_conversion(summary))
 
@@ -130,6 +148,7 @@ def score(
         int | None, typer.Option(help="Label column of PREDICTED if it differs.")
     ] = None,
     delimiter: Delimiter = "auto",
+    encoding: Encoding = "utf-8",
     as_json: AsJson = False,
 ) -> None:
     """Score a predicted column file against a gold one: strict span precision, recall and F1."""
@@ -137,12 +156,13 @@ def score(
     from tagger.scoring.files import score_files
 
     readable_inputs(("gold", gold), ("predicted", predicted))
-    gold_fmt = column_format(delimiter, token_column, label_column)
+    gold_fmt = column_format(delimiter, token_column, label_column, encoding=encoding)
     pred_fmt = column_format(
         delimiter,
         token_column,
         label_column if predicted_label_column is None else predicted_label_column,
+        encoding=encoding,
     )
-    with domain_errors():
+    with domain_errors(column_files=[gold, predicted]):
         result = score_files(gold, predicted, gold_fmt, pred_fmt)
     print_json(result) if as_json else print(format_report(result))

@@ -3,18 +3,18 @@
 from __future__ import annotations
 
 import json
+from dataclasses import replace
 from pathlib import Path
-from typing import Annotated
+from typing import TYPE_CHECKING, Annotated
 
 import typer
 
 from tagger.cli.common import (
     AsJson,
-    Delimiter,
-    LabelColumn,
+    Encoding,
     ModelFile,
-    TokenColumn,
     app,
+    checked_option_encoding,
     column_format,
     domain_errors,
     input_argument,
@@ -23,6 +23,38 @@ from tagger.cli.common import (
     say,
 )
 from tagger.cli.progress import TrainingProgress
+from tagger.data.column_lines import DelimiterChoice
+
+if TYPE_CHECKING:
+    from tagger.data.corpus import ColumnFormat
+
+# Column options that default to what the config (train) or the model (evaluate) says, so that
+# the column layout is given once; given explicitly, they win.
+GivenTokenColumn = Annotated[
+    int | None,
+    typer.Option(
+        "--token-column",
+        help="Column holding the token (0-based; negative counts from the end). "
+        "Default: data.token_column of the config (train), the training files' layout (evaluate).",
+    ),
+]
+GivenLabelColumn = Annotated[
+    int | None,
+    typer.Option(
+        "--label-column",
+        help="Column holding the label (0-based; -1 is the last). "
+        "Default: data.label_column of the config (train), the training files' layout (evaluate).",
+    ),
+]
+GivenDelimiter = Annotated[
+    DelimiterChoice | None,
+    typer.Option(
+        "--delimiter",
+        help="Column separator: found from the first lines, one TAB, or runs of spaces/TABs. "
+        "Default: data.delimiter of the config (train), the training files' layout (evaluate).",
+        case_sensitive=False,
+    ),
+]
 
 
 @app.command()
@@ -60,19 +92,48 @@ def train(
     resume: Annotated[
         bool, typer.Option("--resume", help="Continue from the run folder's last checkpoint.")
     ] = False,
+    token_column: GivenTokenColumn = None,
+    label_column: GivenLabelColumn = None,
+    delimiter: GivenDelimiter = None,
+    encoding: Annotated[
+        str | None,
+        typer.Option(
+            help="Encoding of the train and dev files, e.g. latin-1 (overrides data.encoding)."
+        ),
+    ] = None,
+    threads: Annotated[
+        int | None,
+        typer.Option(
+            min=0, help="torch threads while training (overrides train.threads; 0: torch's)."
+        ),
+    ] = None,
 ) -> None:
-    """Train a tagger; the best model by dev span F1 is written to OUT/model.tagger."""
+    """Train a tagger; the best model by dev span F1 is written to OUT/model.tagger.
+
+    The model keeps the column layout it was trained on, which evaluate reads gold files with."""
     from tagger.config import apply_overrides, load_config
     from tagger.training.loop import train as run_training
 
+    if encoding is not None:
+        checked_option_encoding(encoding)
     with domain_errors():
         config = load_config(config_path)
         extra = list(overrides or [])
-        if train_file:
-            extra.append(f"data.train={json.dumps(str(train_file))}")
-        if dev_file:
-            extra.append(f"data.dev={json.dumps(str(dev_file))}")
+        given = {
+            "data.train": None if train_file is None else str(train_file),
+            "data.dev": None if dev_file is None else str(dev_file),
+            "data.token_column": token_column,
+            "data.label_column": label_column,
+            "data.delimiter": delimiter,
+            "data.encoding": encoding,
+            "train.threads": threads,
+        }
+        # After --set: an option given by name wins over the same key set by --set.
+        extra += [f"{key}={json.dumps(value)}" for key, value in given.items() if value is not None]
         config = apply_overrides(config, extra)
+    with domain_errors(
+        column_files=[name for name in (config.data.train, config.data.dev) if name]
+    ):
         try:
             result = run_training(config, out, resume=resume, progress=TrainingProgress())
         except KeyboardInterrupt:
@@ -98,23 +159,64 @@ def evaluate(
         Path | None,
         typer.Option("--predictions", dir_okay=False, help="Write the predicted column file here."),
     ] = None,
-    token_column: TokenColumn = 0,
-    label_column: LabelColumn = -1,
-    delimiter: Delimiter = "auto",
+    token_column: GivenTokenColumn = None,
+    label_column: GivenLabelColumn = None,
+    delimiter: GivenDelimiter = None,
+    encoding: Encoding = "utf-8",
     as_json: AsJson = False,
 ) -> None:
-    """Tag gold files with a model and report span scores per type, with the error breakdown."""
+    """Tag gold files with a model and report span scores per type, with the error breakdown.
+
+    Gold files are read in the column layout of the model's training files unless the column
+    options say otherwise."""
     from tagger.apply.evaluate import evaluate_files
     from tagger.apply.tagger import Tagger
     from tagger.reports.scores import format_evaluation
 
     readable_inputs(("files", files))
-    with domain_errors():
+    given = column_format(
+        delimiter or "auto",
+        token_column or 0,
+        -1 if label_column is None else label_column,
+        encoding=encoding,
+    )
+    with domain_errors(column_files=files):
         tagger = Tagger.load(model)
-        result = evaluate_files(
-            tagger, files, column_format(delimiter, token_column, label_column), predictions
-        )
+        fmt = _gold_layout(tagger.column_layout, given, token_column, label_column, delimiter)
+        result = evaluate_files(tagger, files, fmt, predictions)
     if as_json:
         print_json(result)
     else:
         print(format_evaluation(result), end="")
+
+
+def _gold_layout(
+    stored: ColumnFormat | None,
+    given: ColumnFormat,
+    token_column: int | None,
+    label_column: int | None,
+    delimiter: str | None,
+) -> ColumnFormat:
+    """How evaluate reads gold files: each column option given wins, the rest come from the
+    layout the model was trained on (the defaults for a model that does not know it). Says so
+    when the stored layout is not the default one."""
+    if stored is None:
+        return given
+    fmt = replace(
+        given,
+        token_column=stored.token_column if token_column is None else given.token_column,
+        label_column=stored.label_column if label_column is None else given.label_column,
+        delimiter=stored.delimiter if delimiter is None else given.delimiter,
+    )
+    taken = [
+        f"{name} {shown}"
+        for name, option, shown, default in (
+            ("token column", token_column, fmt.token_column, 0),
+            ("label column", label_column, fmt.label_column, -1),
+            ("delimiter", delimiter, fmt.delimiter or "auto", "auto"),
+        )
+        if option is None and shown != default
+    ]
+    if taken:
+        say(f"note: gold files read as the model's training files were: {', '.join(taken)}")
+    return fmt

@@ -72,6 +72,9 @@ class _FileScan:
     first_non_tag: tuple[str, int] | None = None  # (label, line)
     values: dict[int, Counter[str]] = field(default_factory=dict)  # extra column -> values
     coverage: list[LexiconCoverage] = field(default_factory=list)
+    # Could the token column be the tag column? (every token a span tag, some not O)
+    tokens_all_tags: bool = True
+    tokens_not_outside: bool = False
 
     def __post_init__(self) -> None:
         self.inconsistent = Examples(self.limit)
@@ -103,9 +106,11 @@ def check_files(
     many it misses; how many matches overlap no gold span), "distinct_labels",
     "labels" (most frequent first, at most MAX_LABELS_SHOWN), "labels_not_shown",
     "not_span_tags", "span_types", "spans", "scheme" {"candidates", "ambiguous", "checked_as",
-    "note"}, "ill_formed" (None when no scheme applies) and "inconsistent_labelling"; later
-    files also "also_in_train". Findings with examples are {"count", "examples": [...]}, the
-    examples giving 1-based file lines. A comparison holds "file", "span_types_not_in_train",
+    "note"}, "ill_formed" (None when no scheme applies) and "inconsistent_labelling", and when
+    the label column holds no span tags but other columns do, "tag_column_hint" {"label_column",
+    "token_column", "tag_columns", "tokens_from"} (see `_tag_column_hint`); later files also "also_in_train".
+    Findings with examples are {"count", "examples": [...]}, the examples giving 1-based file
+    lines. A comparison holds "file", "span_types_not_in_train",
     "labels_not_in_train", "train_labels_absent_here", "sentences_also_in_train",
     "longer_sentences_also_in_train" and "sentences".
     Raises DataError for unreadable files, as the reader does.
@@ -242,9 +247,41 @@ def _check_one(
                 "inconsistent_labelling": scan.inconsistent.as_dict(),
             }
         )
+        hint = _tag_column_hint(scan, stats.columns or 0, source.fmt)
+        if hint is not None:
+            report["tag_column_hint"] = hint
     if train is not None:
         report["also_in_train"] = scan.leaked.as_dict()
     return scan, report
+
+
+def _tag_column_hint(scan: _FileScan, columns: int, fmt: ColumnFormat) -> dict[str, Any] | None:
+    """When the label column holds no span tags but other columns hold nothing else, which ones.
+
+    {"label_column", "token_column": the columns as read, "tag_columns": the columns holding
+    only span tags (some not O), "tokens_from": the column to read the tokens from instead when
+    the tags are in the token column of a two-column file (None when the token column can stay,
+    or when it cannot be told)}; all 0-based."""
+    if scan.tag_sentences or not scan.not_tags.count or not columns:
+        return None
+    token_column = fmt.token_column % columns
+    label_column = fmt.label_column % columns
+    tag_columns = [
+        column
+        for column, values in scan.values.items()
+        if all_tags(list(values)) and any(value != "O" for value in values)
+    ]
+    if scan.tokens_all_tags and scan.tokens_not_outside:
+        tag_columns.append(token_column)
+    if not tag_columns:
+        return None
+    tokens_from = label_column if token_column in tag_columns and columns == 2 else None
+    return {
+        "label_column": label_column,
+        "token_column": token_column,
+        "tag_columns": sorted(tag_columns),
+        "tokens_from": tokens_from,
+    }
 
 
 def _first_pass(
@@ -261,6 +298,9 @@ def _first_pass(
             scan.values = {c: Counter() for c in extra}
         for column in extra or ():
             scan.values[column].update(row[column] for row in sentence.rows)
+        if scan.tokens_all_tags:
+            scan.tokens_all_tags = all_tags(tokens)
+            scan.tokens_not_outside = scan.tokens_not_outside or any(t != "O" for t in tokens)
         first_line = sentence.line_numbers[0]
         length = len(tokens)
         scan.sentences += 1

@@ -9,8 +9,11 @@ The rules:
 * Lines end at LF. A CR directly before the LF belongs to the line ending; any other CR, and
   every other Unicode line separator, stays in the text.
 * Only a byte-order mark at the very start of the input is removed.
-* Bytes that are not UTF-8 raise DataError naming the file and line, with the bytes, their byte
-  offset in the input and the bytes around them, shortened.
+* Bytes that are not UTF-8 raise NotDecodableError (a DataError) naming the file and line,
+  with the bytes, their byte offset in the input and the bytes around them, shortened. Readers
+  that let the user name another encoding (column files: `ColumnFormat.encoding`) pass it down;
+  it must write ASCII as ASCII (latin-1, cp1252...), since lines are split at LF bytes before
+  they are decoded.
 * A file that cannot be opened raises DataError naming the file.
 
 Input is read line by line, never held whole. Writing is `tagger.data.atomic`.
@@ -18,6 +21,7 @@ Input is read line by line, never held whole. Writing is `tagger.data.atomic`.
 
 from __future__ import annotations
 
+import codecs
 import contextlib
 import io
 import sys
@@ -26,11 +30,12 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import BinaryIO
 
-from tagger.errors import DataError
+from tagger.errors import ConfigError, DataError, NotDecodableError
 
 STDIO = "-"
 STDIN_NAME = "<stdin>"
 UTF8_BOM = b"\xef\xbb\xbf"
+UTF8 = "utf-8"
 
 # How much of an offending line an error message shows.
 SHOWN_CHARS = 60
@@ -88,22 +93,43 @@ def raw_lines(stream: Iterable[bytes]) -> Iterator[RawLine]:
         yield RawLine(number, raw, start)
 
 
-def decode_line(line: RawLine, name: str) -> str:
-    """The text of a line; raises DataError (file, line, bytes and offset) if it is not UTF-8."""
+def checked_encoding(encoding: str) -> str:
+    """`encoding` if the readers can use it (a known codec that writes ASCII as ASCII, so that
+    lines split at LF bytes decode one by one); raises ConfigError otherwise."""
     try:
-        return line.data.decode("utf-8")
+        codecs.lookup(encoding)
+    except (LookupError, TypeError):
+        raise ConfigError(f"unknown encoding {encoding!r} (e.g. utf-8, latin-1, cp1252)") from None
+    if "\t\n -~".encode(encoding, errors="replace") != b"\t\n -~":
+        raise ConfigError(
+            f"encoding {encoding!r} does not write ASCII as ASCII, so its lines cannot be "
+            "read one by one; convert the file to UTF-8 first"
+        )
+    return encoding
+
+
+def decode_line(line: RawLine, name: str, encoding: str = UTF8) -> str:
+    """The text of a line; raises NotDecodableError (file, line, bytes and offset) if it is not
+    in `encoding`."""
+    try:
+        return line.data.decode(encoding)
     except UnicodeDecodeError as error:
-        message = undecodable(line.data, error.start, error.end, error.reason, line.offset)
-        raise DataError(message, name, line.number) from None
+        message = undecodable(
+            line.data, error.start, error.end, error.reason, line.offset, encoding
+        )
+        raise NotDecodableError(message, name, line.number) from None
 
 
-def decoded_lines(stream: Iterable[bytes], name: str) -> Iterator[tuple[int, str]]:
+def decoded_lines(
+    stream: Iterable[bytes], name: str, encoding: str = UTF8
+) -> Iterator[tuple[int, str]]:
     """(1-based line number, text without its line ending) for each line of a byte stream.
 
-    Raises DataError at the first line that is not UTF-8; the lines before it arrive first.
+    Raises NotDecodableError at the first line that is not in `encoding`; the lines before it
+    arrive first.
     """
     for line in raw_lines(stream):
-        yield line.number, decode_line(line, name)
+        yield line.number, decode_line(line, name, encoding)
 
 
 def read_lines(path: str | Path) -> Iterator[tuple[int, str]]:
@@ -131,17 +157,21 @@ def decode_text(data: bytes, name: str) -> str:
         raise
 
 
-def undecodable(data: bytes, start: int, end: int, reason: str, offset: int) -> str:
-    """What is wrong with a line whose bytes data[start:end] are not UTF-8: the bytes, their
-    offset in the input (`offset` is that of data[0]) and the bytes around them, shortened."""
+def undecodable(
+    data: bytes, start: int, end: int, reason: str, offset: int, encoding: str = UTF8
+) -> str:
+    """What is wrong with a line whose bytes data[start:end] are not in `encoding`: the bytes,
+    their offset in the input (`offset` is that of data[0]) and the bytes around them, shortened."""
     bad = data[start:end]
     shown = repr(bad[:SHOWN_BYTES]) + ("..." if len(bad) > SHOWN_BYTES else "")
     before = max(0, start - CONTEXT_BYTES)
     after = min(len(data), end + CONTEXT_BYTES)
     around = ("..." if before else "") + repr(data[before:after])
     around += "..." if after < len(data) else ""
+    known = "UTF-8" if codecs.lookup(encoding).name == UTF8 else encoding
     return (
-        f"bytes {shown} at byte offset {offset + start} are not valid UTF-8 ({reason}) in {around}"
+        f"bytes {shown} at byte offset {offset + start} are not valid {known} ({reason}) "
+        f"in {around}"
     )
 
 

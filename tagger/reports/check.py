@@ -20,7 +20,13 @@ def format_check(report: dict[str, Any]) -> str:
     if report["against_train"]:
         out.append("")
         out.append(f"Against the training file {report['train']}")
+        train_misread = "tag_column_hint" in report["files"][0]
         for comparison, entry in zip(report["against_train"], report["files"][1:], strict=True):
+            if train_misread or "tag_column_hint" in entry:
+                # Words read as labels make every label "new": a long list that says nothing.
+                out += ["", comparison["file"]]
+                out += labelled("", "not compared: its labels or those of train are not span tags")
+                continue
             out.extend(_format_comparison(comparison, entry))
     return "\n".join(out)
 
@@ -43,6 +49,9 @@ def _format_file(entry: dict[str, Any]) -> list[str]:
     if entry["columns"]:
         size += f"; {count(entry['columns'], 'column')}, {entry['delimiter']}-separated"
     out += labelled("size", size)
+    if "tag_column_hint" in entry:
+        # The rest of the report would describe words as labels: say which column to read.
+        return out + labelled("columns", _tag_column_advice(entry))
     longest = entry["longest_sentence"]
     if longest["line"] is not None:
         out += labelled(
@@ -86,6 +95,28 @@ def _format_file(entry: dict[str, Any]) -> list[str]:
     verb = "repeats" if repeated == 1 else "repeat"
     out += labelled("repeats", f"{count(repeated, 'sentence')} {verb} an earlier one of this file")
     return out
+
+
+def _tag_column_advice(entry: dict[str, Any]) -> str:
+    """Which column holds the tags when the label column does not, and the options to read it."""
+    hint = entry["tag_column_hint"]
+    tag_columns = hint["tag_columns"]
+    examples = entry["not_span_tags"]["examples"]
+    example = f" (e.g. {examples[0]['label']!r} on line {examples[0]['line']})" if examples else ""
+    if len(tag_columns) == 1:
+        where = f"column {tag_columns[0]} holds"
+    else:
+        where = f"columns {', '.join(map(str, tag_columns[:-1]))} and {tag_columns[-1]} hold"
+    options = " or ".join(f"--label-column {column}" for column in tag_columns)
+    if hint["tokens_from"] is not None:
+        options += f" --token-column {hint['tokens_from']}"
+    elif hint["token_column"] in tag_columns:
+        options += " and the column of the tokens with --token-column"
+    return (
+        f"the labels (column {hint['label_column']}) are not span tags{example}, but {where} "
+        f"only span tags: read the file with {options} (check, train, evaluate, score and convert all take "
+        "these options)"
+    )
 
 
 def _format_labels(entry: dict[str, Any]) -> list[str]:

@@ -33,13 +33,17 @@ class PreparedData:
     notes: list[str]
     train_source: str  # the training file, or TRAIN_IN_MEMORY: where messages point
     dev_source: str  # the dev file, the training source when dev was held out, or DEV_IN_MEMORY
+    dev_held_out: bool = False  # was dev held out of train (no dev set given)?
 
 
 def column_format(config: Config) -> ColumnFormat:
     data = config.data
     delimiter = None if data.delimiter == "auto" else data.delimiter
     return ColumnFormat(
-        delimiter=delimiter, token_column=data.token_column, label_column=data.label_column
+        delimiter=delimiter,
+        token_column=data.token_column,
+        label_column=data.label_column,
+        encoding=data.encoding,
     )
 
 
@@ -96,6 +100,7 @@ def prepare_sentences(
         notes,
         train_source,
         dev_source,
+        dev_held_out=dev is None,
     )
 
 

@@ -25,7 +25,7 @@ from typing import Any
 import torch
 from torch.optim.lr_scheduler import LRScheduler
 
-from tagger.apply.tagger import Tagger
+from tagger.apply.tagger import COLUMN_LAYOUT_KEY, Tagger
 from tagger.config import Config
 from tagger.data.atomic import exclusive_folder
 from tagger.data.corpus import Sentence
@@ -40,7 +40,13 @@ from tagger.training.checkpoint import (
     restore_checkpoint,
     save_checkpoint,
 )
-from tagger.training.data import PreparedData, prepare_sentences, read_training_files
+from tagger.training.data import (
+    TRAIN_IN_MEMORY,
+    PreparedData,
+    prepare_sentences,
+    read_training_files,
+)
+from tagger.training.overview import data_warnings, earliest_stop, run_overview
 from tagger.training.records import write_config, write_history, write_metrics
 from tagger.training.schedule import end_epoch, learning_rate, new_schedule
 from tagger.training.setup import TrainingSetup, new_network, setup_training, step_tools
@@ -115,8 +121,6 @@ def _train(
     random.seed(config.train.seed)
 
     setup = setup_training(config, data)
-    for message in data.notes:
-        report(events.note(message))
     net, vectors_note = new_network(config, setup)
     if vectors_note:
         report(events.note(vectors_note))
@@ -124,6 +128,13 @@ def _train(
     schedule = new_schedule(config, tools.optimizer)
     state = _resume(run_dir, config, data, tools, schedule, report) if resume else RunState()
     write_config(run_dir, config)
+    parameters = sum(p.numel() for p in net.parameters())
+    report(events.start(run_overview(config, data, parameters, run_dir, state.epoch + 1)))
+    for message in data.notes:
+        report(events.note(message))
+    warnings = data_warnings(data)
+    for message in warnings:
+        report(events.warning(message))
 
     clock = RunClock(config.train.max_minutes, state.seconds_used)
     # With weight averaging on, the averaged copy is the model: dev scores it and it is saved.
@@ -171,6 +182,7 @@ def _train(
             "diverged": diverged,
             "input_scheme": data.input_scheme,
             "notes": data.notes,
+            "warnings": warnings,
         },
     )
     return TrainResult(
@@ -223,6 +235,7 @@ def _train_epoch(
         epoch_left, run_left = seconds_left(
             state.history, elapsed, number, len(batches), config.train.epochs - epoch
         )
+        stop_at = earliest_stop(epoch, config.train.epochs, config.train.patience, state.bad_epochs)
         report(
             events.batch(
                 epoch,
@@ -233,6 +246,7 @@ def _train_epoch(
                 totals.tokens / max(elapsed, 1e-9),
                 (epoch_left, clock.capped(run_left)),
                 state.best_f1,
+                may_stop_early=bool(clock.budget) or stop_at < config.train.epochs,
             )
         )
     return totals
@@ -271,7 +285,17 @@ def _resume(
 
 def _model_meta(config: Config, setup: TrainingSetup) -> dict[str, Any]:
     """What the model file says about the training run, besides the epoch and its dev scores."""
+    layout = {}
+    if setup.data.train_source != TRAIN_IN_MEMORY:
+        # How the files were read, so that evaluate reads gold files alike without the options.
+        data = config.data
+        layout[COLUMN_LAYOUT_KEY] = {
+            "token_column": data.token_column,
+            "label_column": data.label_column,
+            "delimiter": data.delimiter,
+        }
     return {
+        **layout,
         "training_data": {
             "fingerprint": setup.data.fingerprint,
             "train": config.data.train,
