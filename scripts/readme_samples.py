@@ -13,6 +13,7 @@ the blocks. Every block names its command, and those that use the model name the
 
     .venv/bin/python scripts/readme_samples.py             # train, run, rewrite README.md
     .venv/bin/python scripts/readme_samples.py --epochs 3  # the same with a 3-epoch model
+    .venv/bin/python scripts/readme_samples.py --only tokenize check   # just these blocks
     .venv/bin/python scripts/readme_samples.py --list      # the blocks this script writes
 """
 
@@ -32,9 +33,10 @@ ROOT = Path(__file__).resolve().parents[1]
 README = ROOT / "README.md"
 RUN = "runs/readme"  # the model's folder, relative to the project folder; emptied before training
 MODEL = f"{RUN}/model.tagger"
+TRAINED_BY = ROOT / RUN / "trained-by.txt"  # the training command, read by later --only runs
 PREDICTED = f"{RUN}/test.predicted.txt"
 TRAIN_ARGS = ["train", "--config", "configs/default.toml", "--out", RUN, "--set", "train.threads=1"]
-TOKENIZE_TEXT = "Yaw drive motor overheating again on T-3; reading 92°C at 1,450 rpm."
+TOKENIZE_TEXT = "Yaw drive motor overheating on T-3; reading 92°C at 1,450 rpm. Fan replaced."
 
 BEGIN = re.compile(r"^<!-- sample ([a-z0-9-]+): written by scripts/readme_samples\.py -->$")
 END = re.compile(r"^<!-- end sample ([a-z0-9-]+) -->$")
@@ -74,7 +76,7 @@ SAMPLES = [
         uses_model=True,
         align_tabs=True,
     ),
-    Sample("tokenize", ["tokenize"], stdin=TOKENIZE_TEXT + "\n"),
+    Sample("tokenize", ["tokenize"], stdin=TOKENIZE_TEXT + "\n", align_tabs=True),
 ]
 
 
@@ -207,6 +209,12 @@ def run_sample(sample: Sample) -> str:
 def main() -> int:
     parser = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
     parser.add_argument("--epochs", type=int, help="train at most this many epochs (a quick look)")
+    parser.add_argument(
+        "--only",
+        nargs="+",
+        choices=[s.name for s in SAMPLES],
+        help="rewrite only these blocks; without train among them the model of the last run is used",
+    )
     parser.add_argument("--list", action="store_true", help="list the blocks and stop")
     args = parser.parse_args()
     if args.list:
@@ -223,10 +231,23 @@ def main() -> int:
         if s.name == "train" and args.epochs
         else s
         for s in SAMPLES
+        if not args.only or s.name in args.only
     ]
-    training = shown_command(next(s for s in samples if s.name == "train"))
-    shutil.rmtree(ROOT / RUN, ignore_errors=True)  # a fresh model, never a resumed one
-    contents = {s.name: render_block(s, run_sample(s), training) for s in samples}
+    trains = any(s.name == "train" for s in samples)
+    if trains:
+        training = shown_command(next(s for s in samples if s.name == "train"))
+        shutil.rmtree(ROOT / RUN, ignore_errors=True)  # a fresh model, never a resumed one
+    elif TRAINED_BY.exists():
+        training = TRAINED_BY.read_text(encoding="utf-8").strip()
+    elif any(s.uses_model for s in samples):
+        sys.exit(f"no model from an earlier run in {RUN}: include train in --only")
+    else:
+        training = ""
+    contents = {}
+    for sample in samples:
+        contents[sample.name] = render_block(sample, run_sample(sample), training)
+        if sample.name == "train":  # which command made the model, for later --only runs
+            TRAINED_BY.write_text(training + "\n", encoding="utf-8")
     README.write_text(replace_blocks(text, contents), encoding="utf-8")
     print(f"rewrote {len(contents)} blocks in README.md", file=sys.stderr)
     return 0
