@@ -27,7 +27,7 @@ ROOT = Path(__file__).resolve().parents[1]
 sys.path.insert(0, str(ROOT))
 sys.path.insert(0, str(ROOT / "scripts"))
 
-from benchlib import machine, matmul_gflops  # noqa: E402
+from benchlib import machine, matmul_gflops, portable_path  # noqa: E402
 
 from tagger.apply.evaluate import evaluate_files  # noqa: E402
 from tagger.apply.tagger import Tagger  # noqa: E402
@@ -191,7 +191,7 @@ def accuracy_entry(
         "machine": started_on,
         "config": str(config_path.relative_to(ROOT)),
         "overrides": overrides,
-        "test_file": str(test_file),
+        "test_file": portable_path(test_file),
         "runs": runs,
         "threads": runs[0]["threads"],
         "test_f1_median": median(f1s),

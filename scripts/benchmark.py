@@ -74,7 +74,7 @@ sys.path.insert(0, str(ROOT / "scripts"))
 
 import bench_tagging  # noqa: E402
 from bench_training import accuracy_entry, run_speed, speed_table, train_seed  # noqa: E402
-from benchlib import machine, matmul_gflops  # noqa: E402
+from benchlib import machine, matmul_gflops, portable_command, portable_path  # noqa: E402
 
 from tagger.apply.tagger import Tagger  # noqa: E402
 from tagger.config import apply_overrides, load_config  # noqa: E402
@@ -465,7 +465,7 @@ class Benchmark:
         _, test = self.files(corpus)
         runs = [future.result() for future in futures]
         entry = accuracy_entry(label, corpus.config, overrides, test, runs, self.started)
-        entry["test_file"] = str(corpus.test)
+        entry["test_file"] = portable_path(corpus.test)
         if self.mode.eval_sentences:
             entry["test_file"] += f" (first {self.mode.eval_sentences} sentences)"
         entry["model_paths"] = [
@@ -590,7 +590,7 @@ class Benchmark:
             "config": str(CONLL2000.config.relative_to(ROOT)),
             "base": BASE,
             "overrides": self.overrides(CONLL2000, self.variant_overrides([])),
-            "test_file": str(CONLL2000.test)
+            "test_file": portable_path(CONLL2000.test)
             + (
                 f" (first {self.mode.eval_sentences} sentences)" if self.mode.eval_sentences else ""
             ),
@@ -642,7 +642,7 @@ class Benchmark:
                 "epochs": trained["runs"][0]["epochs"],
                 "demo_test_f1_seeds": self.summarise_runs(trained)["test_f1"],
             },
-            "bench_tagging_command": " ".join(argv),
+            "bench_tagging_command": portable_command(argv),
             **tagging,
             "workers_against_processes": self.workers_against_processes(model),
         }
