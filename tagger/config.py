@@ -9,11 +9,19 @@ A config file has three tables, each optional, each key optional:
 Unknown keys, wrong types and values outside the allowed set are rejected with the key's name.
 List-valued keys (e.g. `feature_columns = [1]`) are TOML arrays, held as tuples so that a config
 stays immutable; `Config.to_dict` gives them back as lists.
+
+File paths in a config file (data.train, data.dev, model.pretrained_vectors, model.lexicons) are
+relative to the config file's folder, so a config works from any directory; `load_config` makes
+them absolute. Paths given as overrides are the caller's to resolve (`resolve_paths`).
+
+A run resumed from its checkpoint may change only the keys of `RESUMABLE_KEYS`
+(`config_changes` lists what differs).
 """
 
 from __future__ import annotations
 
 import dataclasses
+import os
 import tomllib
 import typing
 from dataclasses import dataclass, field, fields, replace
@@ -22,7 +30,8 @@ from typing import Any
 
 import tomli_w
 
-from tagger.errors import ConfigError
+from tagger.data.guards import MAX_SENTENCE_TOKENS
+from tagger.errors import QUOTED_CHARS, ConfigError, quoted
 
 CELLS = ("rnn", "minimal", "gru", "lstm")
 OUTPUTS = ("crf", "softmax")
@@ -45,6 +54,8 @@ class DataConfig:
     token_column: int = 0
     label_column: int = -1
     delimiter: str = "auto"
+    # Longer sentences in train, dev or evaluation files are refused (memory grows with length).
+    max_sentence_tokens: int = MAX_SENTENCE_TOKENS
 
 
 @dataclass(frozen=True)
@@ -140,6 +151,7 @@ _POSITIVE = {
     ("model", "feature_dim"),
     ("model", "lexicon_dim"),
     ("model", "shape_dim"),
+    ("data", "max_sentence_tokens"),
 }
 _FRACTIONS = {
     ("model", "dropout"),
@@ -147,6 +159,11 @@ _FRACTIONS = {
     ("train", "weight_average"),
     ("data", "dev_fraction"),
 }
+
+
+def _cut(name: str) -> str:
+    """A key or table name from the file, unquoted, cut as `quoted` cuts what it quotes."""
+    return name if len(name) <= QUOTED_CHARS else name[: QUOTED_CHARS - 3] + "..."
 
 
 def _is_int(value: Any) -> bool:
@@ -160,7 +177,7 @@ def _coerce(section: str, name: str, expected: Any, value: Any) -> Any:
         item = typing.get_args(expected)[0]
         check = _is_int if item is int else lambda v: isinstance(v, item)
         if not isinstance(value, list | tuple) or not all(check(v) for v in value):
-            raise ConfigError(f"{key} must be a list of {item.__name__}, got {value!r}")
+            raise ConfigError(f"{key} must be a list of {item.__name__}, got {quoted(value)}")
         return tuple(value)
     if expected is bool:
         ok = isinstance(value, bool)
@@ -172,7 +189,7 @@ def _coerce(section: str, name: str, expected: Any, value: Any) -> Any:
     else:
         ok = isinstance(value, expected)
     if not ok:
-        raise ConfigError(f"{key} must be {expected.__name__}, got {value!r}")
+        raise ConfigError(f"{key} must be {expected.__name__}, got {quoted(value)}")
     return value
 
 
@@ -180,7 +197,7 @@ def _validate(section: str, name: str, value: Any) -> None:
     key = f"{section}.{name}"
     choices = _CHOICES.get((section, name))
     if choices and value not in choices:
-        raise ConfigError(f"{key} must be one of {', '.join(choices)}; got {value!r}")
+        raise ConfigError(f"{key} must be one of {', '.join(choices)}; got {quoted(value)}")
     if (section, name) in _POSITIVE and value < 1:
         raise ConfigError(f"{key} must be at least 1; got {value!r}")
     if (section, name) in _FRACTIONS and not 0.0 <= value < 1.0:
@@ -213,7 +230,7 @@ def _section(section: str, values: dict[str, Any], base: Any) -> Any:
     for name, value in values.items():
         if name not in known:
             raise ConfigError(
-                f"unknown key {section}.{name}; known keys: {', '.join(sorted(known))}"
+                f"unknown key {section}.{_cut(name)}; known keys: {', '.join(sorted(known))}"
             )
         value = _coerce(section, name, hints[name], value)
         _validate(section, name, value)
@@ -226,11 +243,51 @@ def config_from_dict(raw: dict[str, Any], base: Config | None = None) -> Config:
     config = base or Config()
     for section, values in raw.items():
         if section not in SECTIONS:
-            raise ConfigError(f"unknown table [{section}]; known tables: data, model, train")
+            raise ConfigError(f"unknown table [{_cut(section)}]; known tables: data, model, train")
         if not isinstance(values, dict):
             raise ConfigError(f"[{section}] must be a table of keys")
         config = replace(config, **{section: _section(section, values, getattr(config, section))})
     return config
+
+
+# Keys a resumed run may change: they decide when the run stops and how many threads it uses,
+# never what the network is or what it learns from.
+RESUMABLE_KEYS = ("train.epochs", "train.patience", "train.max_minutes", "train.threads")
+
+
+@dataclass(frozen=True)
+class Change:
+    """One key whose value differs between a saved config and the current one."""
+
+    key: str  # "section.name"
+    saved: Any
+    current: Any
+
+    def __str__(self) -> str:
+        return f"{self.key} {_shown(self.saved)} -> {_shown(self.current)}"
+
+
+def _shown(value: Any) -> str:
+    if isinstance(value, str | list):
+        return quoted(value)
+    return str(value)
+
+
+def config_changes(saved: dict[str, Any] | None, config: Config) -> list[Change]:
+    """The keys whose values differ between a config saved as a dict (in a checkpoint) and
+    `config`, in table order; keys added since it was saved count as their defaults.
+
+    Raises ConfigError when the saved config is missing or no longer valid."""
+    if saved is None:
+        raise ConfigError("no config was saved with it")
+    before = config_from_dict(saved).to_dict()
+    now = config.to_dict()
+    return [
+        Change(f"{section}.{name}", before[section][name], value)
+        for section, values in now.items()
+        for name, value in values.items()
+        if before[section][name] != value
+    ]
 
 
 def same_config(saved: dict[str, Any] | None, config: Config) -> bool:
@@ -242,8 +299,31 @@ def same_config(saved: dict[str, Any] | None, config: Config) -> bool:
         return False
 
 
+def resolve_paths(config: Config, folder: str | Path) -> Config:
+    """The config with every relative file path (data.train, data.dev, model.pretrained_vectors,
+    model.lexicons) taken as relative to `folder` and made absolute; empty values and "-"
+    (standard input) stay as they are."""
+
+    def resolve(value: str) -> str:
+        if not value or value == "-" or os.path.isabs(value):
+            return value
+        return os.path.abspath(os.path.join(folder, value))
+
+    data, model = config.data, config.model
+    return replace(
+        config,
+        data=replace(data, train=resolve(data.train), dev=resolve(data.dev)),
+        model=replace(
+            model,
+            pretrained_vectors=resolve(model.pretrained_vectors),
+            lexicons=tuple(resolve(path) for path in model.lexicons),
+        ),
+    )
+
+
 def load_config(path: str | Path | None) -> Config:
-    """Read a TOML config file; None gives the defaults."""
+    """Read a TOML config file; None gives the defaults. Relative file paths in it are taken
+    from the config file's folder (`resolve_paths`)."""
     if path is None:
         return Config()
     try:
@@ -254,9 +334,10 @@ def load_config(path: str | Path | None) -> Config:
     except tomllib.TOMLDecodeError as error:
         raise ConfigError(f"{path}: not valid TOML ({error})") from None
     try:
-        return config_from_dict(raw)
+        config = config_from_dict(raw)
     except ConfigError as error:
         raise ConfigError(f"{path}: {error}") from None
+    return resolve_paths(config, Path(path).parent)
 
 
 def parse_override(text: str) -> tuple[str, str, Any]:
@@ -265,7 +346,7 @@ def parse_override(text: str) -> tuple[str, str, Any]:
     section, dot, name = key.strip().partition(".")
     if not sep or not dot:
         raise ConfigError(
-            f"override {text!r} must look like section.key=value, e.g. model.cell=gru"
+            f"override {quoted(text)} must look like section.key=value, e.g. model.cell=gru"
         )
     try:
         value = tomllib.loads(f"v = {value_text.strip()}")["v"]

@@ -62,7 +62,7 @@ def train(
     ] = False,
 ) -> None:
     """Train a tagger; the best model by dev span F1 is written to OUT/model.tagger."""
-    from tagger.config import apply_overrides, load_config
+    from tagger.config import apply_overrides, load_config, resolve_paths
     from tagger.training.loop import train as run_training
 
     with domain_errors():
@@ -72,7 +72,9 @@ def train(
             extra.append(f"data.train={json.dumps(str(train_file))}")
         if dev_file:
             extra.append(f"data.dev={json.dumps(str(dev_file))}")
-        config = apply_overrides(config, extra)
+        # Paths in the config file are read from its folder; those given here, from the current
+        # one. Made absolute, so that the run folder's config.toml reads back from anywhere.
+        config = resolve_paths(apply_overrides(config, extra), Path.cwd())
         try:
             result = run_training(config, out, resume=resume, progress=TrainingProgress())
         except KeyboardInterrupt:

@@ -26,7 +26,7 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import BinaryIO
 
-from tagger.errors import DataError
+from tagger.errors import DataError, quoted
 
 STDIO = "-"
 STDIN_NAME = "<stdin>"
@@ -146,7 +146,5 @@ def undecodable(data: bytes, start: int, end: int, reason: str, offset: int) -> 
 
 
 def shortened(text: str, limit: int = SHOWN_CHARS) -> str:
-    """repr() of an offending piece of input, cut to a readable length."""
-    if len(text) > limit:
-        return repr(text[: limit - 3]) + "..."
-    return repr(text)
+    """repr() of an offending piece of input, cut to a readable length (`tagger.errors.quoted`)."""
+    return quoted(text, limit)

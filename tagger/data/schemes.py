@@ -40,7 +40,7 @@ from dataclasses import dataclass, field
 from functools import lru_cache
 from types import MappingProxyType
 
-from tagger.errors import ConfigError, DataError
+from tagger.errors import ConfigError, DataError, quoted
 
 Span = tuple[str, int, int]  # (type, start, end) half-open token indices
 
@@ -271,10 +271,11 @@ def _split(tag: str) -> tuple[str, str]:
     prefix, hyphen, type_ = tag.partition("-")
     if not hyphen or prefix not in _PREFIXES:
         raise DataError(
-            f"tag {tag!r} is neither O nor PREFIX-TYPE with PREFIX one of {', '.join(_PREFIXES)}"
+            f"tag {quoted(tag)} is neither O nor PREFIX-TYPE with PREFIX one of "
+            f"{', '.join(_PREFIXES)}"
         )
     if not type_:
-        raise DataError(f"tag {tag!r} has no type after its prefix")
+        raise DataError(f"tag {quoted(tag)} has no type after its prefix")
     return (prefix, type_)
 
 
@@ -284,7 +285,7 @@ def split_tag(tag: str) -> tuple[str, str]:
     Raises DataError for anything else (an unknown prefix, a missing type, a typed ``O``).
     """
     if not isinstance(tag, str):
-        raise DataError(f"tag {tag!r} is not a string")
+        raise DataError(f"tag {quoted(tag)} is not a string")
     return _split(tag)
 
 

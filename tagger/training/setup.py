@@ -64,7 +64,9 @@ def setup_training(config: Config, data: PreparedData) -> TrainingSetup:
         config.model.min_word_count,
         extra_words=vectors[0] if vectors else (),
     )
-    settings = TokenizerSettings()
+    # One sentence limit: the longest annotated sentence training accepts is also where tagging
+    # cuts raw text (the model stores its tokenizer settings).
+    settings = TokenizerSettings(max_sentence_tokens=config.data.max_sentence_tokens)
     features, value_counts = build_features(config.model, data.train, data.train_source, settings)
     if features is not None:
         check_columns(features, data.dev, data.dev_source)
