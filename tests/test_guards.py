@@ -286,3 +286,14 @@ def test_check_warns_of_sentences_over_the_limit(tmp_path: Path) -> None:
     assert "1 sentence of more than 300 tokens" in text and "line 311: 301 tokens" in text
     assert check_files([path], max_sentence_tokens=301)["files"][0]["too_long"]["count"] == 0
     assert "too long" not in format_check(check_files([write_text(tmp_path / "b.txt", GOOD)]))
+
+
+def test_a_lexicon_entry_without_tokens_is_quoted_short(tmp_path: Path) -> None:
+    from tagger.text.lexicon import read_lexicon
+
+    path = write_text(tmp_path / "lex.tsv", "pump\n" + "\u00a0" * 100_000 + "\tPART\n")
+    with pytest.raises(DataError) as error:
+        read_lexicon(path)
+    message = str(error.value)
+    assert message.startswith(f"{path}:2: the entry '\\xa0") and message.endswith("holds no token")
+    assert len(message) < 400  # each cut character may show as a 4-character escape
