@@ -164,6 +164,7 @@ WNUT17 = Corpus(
             "from memory, approximate",
         ),
     ),
+    full_overrides=("train.max_minutes=20",),  # the config has no time budget
 )
 BC5CDR = Corpus(
     "bc5cdr",
@@ -183,6 +184,7 @@ BC5CDR = Corpus(
         )
         for entity_type, figure in (("Chemical", "about 93"), ("Disease", "about 84"))
     ),
+    full_overrides=("train.max_minutes=30",),  # the config has no time budget
 )
 CORPUS_RUNS = {c.name: c for c in (CONLL2000_POS, CONLL2000, WNUT17, BC5CDR)}
 DEMO = Corpus(
@@ -408,9 +410,13 @@ class Benchmark:
     # files ---------------------------------------------------------------------------------------
 
     def files(self, corpus: Corpus) -> tuple[list[str], Path]:
-        """Overrides naming the train/dev files of this mode, and the test file."""
+        """Overrides naming the train/dev files of this mode, and the test file (the shipped
+        configs name no data files)."""
         if not self.mode.train_sentences:
-            return [], corpus.test
+            overrides = [f"data.train={quoted(corpus.train)}"]
+            if corpus.dev is not None:
+                overrides.append(f"data.dev={quoted(corpus.dev)}")
+            return overrides, corpus.test
         folder = self.scratch / corpus.name
         if folder.exists():  # cut already
             overrides = [f"data.train={quoted(folder / 'train.txt')}"]

@@ -14,11 +14,19 @@ value is one edit.
 Unknown keys, wrong types and values outside the allowed set are rejected with the key's name.
 List-valued keys (e.g. `feature_columns = [1]`) are TOML arrays, held as tuples so that a config
 stays immutable; `Config.to_dict` gives them back as lists.
+
+File paths in a config file (data.train, data.dev, model.pretrained_vectors, model.lexicons) are
+relative to the config file's folder, so a config works from any directory; `load_config` makes
+them absolute. Paths given as overrides are the caller's to resolve (`resolve_paths`).
+
+A run resumed from its checkpoint may change only the keys of `RESUMABLE_KEYS`
+(`config_changes` lists what differs).
 """
 
 from __future__ import annotations
 
 import dataclasses
+import os
 import tomllib
 import typing
 from dataclasses import dataclass, field, fields, replace
@@ -29,8 +37,9 @@ from typing import Any
 import tomli_w
 
 from tagger.data.column_lines import DelimiterChoice
+from tagger.data.guards import MAX_SENTENCE_TOKENS
 from tagger.data.scheme_rules import SchemeName, normalise_scheme_name
-from tagger.errors import ConfigError
+from tagger.errors import QUOTED_CHARS, ConfigError, quoted
 from tagger.text.lexicon import LexiconCase
 from tagger.text.tokenizer import TokenizerSettings
 
@@ -85,6 +94,8 @@ class DataConfig:
     label_column: int = -1
     delimiter: DelimiterChoice = DelimiterChoice.AUTO
     encoding: str = "utf-8"  # of the train and dev files (latin-1, cp1252... for older files)
+    # Longer sentences in train, dev or evaluation files are refused (memory grows with length).
+    max_sentence_tokens: int = MAX_SENTENCE_TOKENS
 
 
 @dataclass(frozen=True)
@@ -144,10 +155,12 @@ class Config:
 
     def to_dict(self) -> dict[str, dict[str, Any]]:
         """Plain JSON-ready tables: list-valued keys come back as lists, choices as strings."""
-        return {
+        tables = {
             section: {k: _plain(v) for k, v in values.items()}
             for section, values in dataclasses.asdict(self).items()
         }
+        del tables["tokenizer"][_ONE_LIMIT]  # data.max_sentence_tokens holds it
+        return tables
 
     def to_toml(self) -> str:
         """The config as a TOML document that `load_config` reads back to an equal Config.
@@ -181,6 +194,7 @@ _POSITIVE = {
     ("model", "feature_dim"),
     ("model", "lexicon_dim"),
     ("model", "shape_dim"),
+    ("data", "max_sentence_tokens"),
 }
 _FRACTIONS = {
     ("model", "dropout"),
@@ -188,6 +202,11 @@ _FRACTIONS = {
     ("train", "weight_average"),
     ("data", "dev_fraction"),
 }
+
+
+def _cut(name: str) -> str:
+    """A key or table name from the file, unquoted, cut as `quoted` cuts what it quotes."""
+    return name if len(name) <= QUOTED_CHARS else name[: QUOTED_CHARS - 3] + "..."
 
 
 def _is_int(value: Any) -> bool:
@@ -201,7 +220,7 @@ def _coerce(section: str, name: str, expected: Any, value: Any) -> Any:
         item = typing.get_args(expected)[0]
         check = _is_int if item is int else lambda v: isinstance(v, item)
         if not isinstance(value, list | tuple) or not all(check(v) for v in value):
-            raise ConfigError(f"{key} must be a list of {item.__name__}, got {value!r}")
+            raise ConfigError(f"{key} must be a list of {item.__name__}, got {quoted(value)}")
         return tuple(value)
     if expected is bool:
         ok = isinstance(value, bool)
@@ -215,7 +234,7 @@ def _coerce(section: str, name: str, expected: Any, value: Any) -> Any:
     else:
         ok = isinstance(value, expected)
     if not ok:
-        raise ConfigError(f"{key} must be {expected.__name__}, got {value!r}")
+        raise ConfigError(f"{key} must be {expected.__name__}, got {quoted(value)}")
     return value
 
 
@@ -230,7 +249,7 @@ def _choice(key: str, kind: type[Enum], value: Any) -> Enum:
         return kind(value)
     except ValueError:
         allowed = ", ".join(str(member.value) for member in kind)  # type: ignore[attr-defined]
-        raise ConfigError(f"{key} must be one of {allowed}; got {value!r}") from None
+        raise ConfigError(f"{key} must be one of {allowed}; got {quoted(value)}") from None
 
 
 def _validate(section: str, name: str, value: Any) -> None:
@@ -262,15 +281,25 @@ def _validate(section: str, name: str, value: Any) -> None:
             raise ConfigError(f"{key}: {error}") from None
 
 
+# One sentence limit: the tokenizer's is data.max_sentence_tokens, which also bounds the annotated
+# sentences training and evaluation read (tagger.training.setup puts it into the model).
+_ONE_LIMIT = "max_sentence_tokens"
+
+
 def _section(section: str, values: dict[str, Any], base: Any) -> Any:
     cls = SECTIONS[section]
+    if section == "tokenizer" and _ONE_LIMIT in values:
+        raise ConfigError(
+            f"tokenizer.{_ONE_LIMIT}: the sentence limit is data.{_ONE_LIMIT}, which bounds "
+            "annotated sentences and where tagging cuts raw text alike"
+        )
     hints = typing.get_type_hints(cls)
     known = {f.name for f in fields(cls)}
     changes = {}
     for name, value in values.items():
         if name not in known:
             raise ConfigError(
-                f"unknown key {section}.{name}; known keys: {', '.join(sorted(known))}"
+                f"unknown key {section}.{_cut(name)}; known keys: {', '.join(sorted(known))}"
             )
         value = _coerce(section, name, hints[name], value)
         _validate(section, name, value)
@@ -283,11 +312,53 @@ def config_from_dict(raw: dict[str, Any], base: Config | None = None) -> Config:
     config = base or Config()
     for section, values in raw.items():
         if section not in SECTIONS:
-            raise ConfigError(f"unknown table [{section}]; known tables: {', '.join(SECTIONS)}")
+            raise ConfigError(
+                f"unknown table [{_cut(section)}]; known tables: {', '.join(SECTIONS)}"
+            )
         if not isinstance(values, dict):
             raise ConfigError(f"[{section}] must be a table of keys")
         config = replace(config, **{section: _section(section, values, getattr(config, section))})
     return config
+
+
+# Keys a resumed run may change: they decide when the run stops and how many threads it uses,
+# never what the network is or what it learns from.
+RESUMABLE_KEYS = ("train.epochs", "train.patience", "train.max_minutes", "train.threads")
+
+
+@dataclass(frozen=True)
+class Change:
+    """One key whose value differs between a saved config and the current one."""
+
+    key: str  # "section.name"
+    saved: Any
+    current: Any
+
+    def __str__(self) -> str:
+        return f"{self.key} {_shown(self.saved)} -> {_shown(self.current)}"
+
+
+def _shown(value: Any) -> str:
+    if isinstance(value, str | list):
+        return quoted(value)
+    return str(value)
+
+
+def config_changes(saved: dict[str, Any] | None, config: Config) -> list[Change]:
+    """The keys whose values differ between a config saved as a dict (in a checkpoint) and
+    `config`, in table order; keys added since it was saved count as their defaults.
+
+    Raises ConfigError when the saved config is missing or no longer valid."""
+    if saved is None:
+        raise ConfigError("no config was saved with it")
+    before = config_from_dict(saved).to_dict()
+    now = config.to_dict()
+    return [
+        Change(f"{section}.{name}", before[section][name], value)
+        for section, values in now.items()
+        for name, value in values.items()
+        if before[section][name] != value
+    ]
 
 
 def same_config(saved: dict[str, Any] | None, config: Config) -> bool:
@@ -299,8 +370,31 @@ def same_config(saved: dict[str, Any] | None, config: Config) -> bool:
         return False
 
 
+def resolve_paths(config: Config, folder: str | Path) -> Config:
+    """The config with every relative file path (data.train, data.dev, model.pretrained_vectors,
+    model.lexicons) taken as relative to `folder` and made absolute; empty values and "-"
+    (standard input) stay as they are."""
+
+    def resolve(value: str) -> str:
+        if not value or value == "-" or os.path.isabs(value):
+            return value
+        return os.path.abspath(os.path.join(folder, value))
+
+    data, model = config.data, config.model
+    return replace(
+        config,
+        data=replace(data, train=resolve(data.train), dev=resolve(data.dev)),
+        model=replace(
+            model,
+            pretrained_vectors=resolve(model.pretrained_vectors),
+            lexicons=tuple(resolve(path) for path in model.lexicons),
+        ),
+    )
+
+
 def load_config(path: str | Path | None) -> Config:
-    """Read a TOML config file; None gives the defaults."""
+    """Read a TOML config file; None gives the defaults. Relative file paths in it are taken
+    from the config file's folder (`resolve_paths`)."""
     if path is None:
         return Config()
     try:
@@ -311,9 +405,10 @@ def load_config(path: str | Path | None) -> Config:
     except tomllib.TOMLDecodeError as error:
         raise ConfigError(f"{path}: not valid TOML ({error})") from None
     try:
-        return config_from_dict(raw)
+        config = config_from_dict(raw)
     except ConfigError as error:
         raise ConfigError(f"{path}: {error}") from None
+    return resolve_paths(config, Path(path).parent)
 
 
 def parse_override(text: str) -> tuple[str, str, Any]:
@@ -322,7 +417,7 @@ def parse_override(text: str) -> tuple[str, str, Any]:
     section, dot, name = key.strip().partition(".")
     if not sep or not dot:
         raise ConfigError(
-            f"override {text!r} must look like section.key=value, e.g. model.cell=gru"
+            f"override {quoted(text)} must look like section.key=value, e.g. model.cell=gru"
         )
     try:
         value = tomllib.loads(f"v = {value_text.strip()}")["v"]

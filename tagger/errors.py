@@ -1,6 +1,21 @@
-"""The exception types the library raises; the CLI turns them into exit code 1."""
+"""The exception types the library raises (the CLI turns them into exit code 1), and `quoted`,
+how a message quotes a piece of the user's input.
+"""
 
 from __future__ import annotations
+
+# Characters of a token, label or line an error message shows: one bad 5 MB token must not
+# print 5 MB to the terminal.
+QUOTED_CHARS = 60
+
+
+def quoted(value: object, limit: int = QUOTED_CHARS) -> str:
+    """A piece of input as a message quotes it: repr() of at most `limit` characters, cut with
+    "..." after the closing quote when longer. Anything but a string is quoted by its repr()."""
+    if isinstance(value, str):
+        return repr(value[: limit - 3]) + "..." if len(value) > limit else repr(value)
+    text = repr(value)
+    return text[: limit - 3] + "..." if len(text) > limit else text
 
 
 class TaggerError(Exception):

@@ -14,6 +14,7 @@ from tagger.apply.tagger import Tagger
 from tagger.cli.progress import TrainingProgress, batch_line, run_header, stopping_rule
 from tagger.config import Config, config_from_dict
 from tagger.data.corpus import Sentence
+from tagger.errors import DataError
 from tagger.training.data import prepare_sentences
 from tagger.training.loop import train_on_sentences
 from tagger.training.overview import (
@@ -99,13 +100,15 @@ def test_the_threshold_of_a_small_dev_set() -> None:
     assert data_warnings(enough) == []
 
 
-def test_training_data_without_spans_and_dev_without_spans_are_warned_about() -> None:
+def test_training_data_without_spans_and_dev_without_spans_are_refused() -> None:
+    # Once warnings; refused before any work since training on nothing was made an error.
     outside = [Sentence.from_tokens(["no", "fault"], ["O", "O"])] * 3
-    data = prepare_sentences(Config(), outside, outside, "train.txt", "dev.txt")
-    train_warning, dev_warning = data_warnings(data)
-    assert "training data (train.txt) holds no spans" in train_warning
-    assert "dev (dev.txt) holds no spans" in dev_warning
-    assert "first epoch's model is kept" in dev_warning
+    with pytest.raises(
+        DataError, match=r"train.txt: the training labels hold no spans.*label column"
+    ):
+        prepare_sentences(Config(), outside, outside, "train.txt", "dev.txt")
+    with pytest.raises(DataError, match="dev.txt: the dev labels hold no spans"):
+        prepare_sentences(Config(), TRAIN, outside, "train.txt", "dev.txt")
 
 
 def test_a_held_out_dev_set_is_named_as_such() -> None:

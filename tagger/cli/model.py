@@ -111,7 +111,7 @@ def train(
     """Train a tagger; the best model by dev span F1 is written to OUT/model.tagger.
 
     The model keeps the column layout it was trained on, which evaluate reads gold files with."""
-    from tagger.config import apply_overrides, load_config
+    from tagger.config import apply_overrides, load_config, resolve_paths
     from tagger.training.loop import train as run_training
 
     if encoding is not None:
@@ -130,7 +130,9 @@ def train(
         }
         # After --set: an option given by name wins over the same key set by --set.
         extra += [f"{key}={json.dumps(value)}" for key, value in given.items() if value is not None]
-        config = apply_overrides(config, extra)
+        # Paths in the config file are read from its folder; those given here, from the current
+        # one. Made absolute, so that the run folder's config.toml reads back from anywhere.
+        config = resolve_paths(apply_overrides(config, extra), Path.cwd())
     with domain_errors(
         column_files=[name for name in (config.data.train, config.data.dev) if name]
     ):

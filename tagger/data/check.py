@@ -2,11 +2,11 @@
 with them.
 
 `check_files` reads annotated column files and describes them: counts, the tagging scheme they
-fit, ill-formed transitions, characters one cannot see, sentences labelled two ways, the value
-sets of columns other than token and label, how well given lexicons cover the annotated spans
-(`tagger.data.coverage`), and, across files, what dev/test hold that train does not and which
-sentences they share with train. It returns a plain JSON-ready dict; `tagger.reports.check` lays
-it out as text.
+fit, ill-formed transitions, sentences too long to train on, characters one cannot see, sentences
+labelled two ways, the value sets of columns other than token and label, how well given lexicons
+cover the annotated spans (`tagger.data.coverage`), and, across files, what dev/test hold that
+train does not and which sentences they share with train. It returns a plain JSON-ready dict;
+`tagger.reports.check` lays it out as text.
 
 Memory stays proportional to the number of distinct sentences, not to the file: sentences are
 remembered by the hash of their token tuple, and each file is read twice (once to count and to
@@ -31,6 +31,7 @@ from tagger.data.findings import (
     invisible_example,
     sentence_text,
 )
+from tagger.data.guards import LIMIT_KEY, MAX_SENTENCE_TOKENS
 from tagger.data.schemes import detect_scheme, ill_formed_transitions, spans_lenient
 
 if TYPE_CHECKING:
@@ -54,6 +55,7 @@ class _FileScan:
 
     name: str
     limit: int
+    max_tokens: int = MAX_SENTENCE_TOKENS  # longer sentences are refused by train and evaluate
     sentences: int = 0
     tokens: int = 0
     longest: tuple[int, int | None] = (0, None)  # (tokens, first line)
@@ -67,6 +69,7 @@ class _FileScan:
     invisible: Examples = field(init=False)
     not_tags: Examples = field(init=False)
     leaked: Examples = field(init=False)
+    too_long: Examples = field(init=False)
     leaked_long: int = 0
     tag_sentences: int = 0  # sentences whose labels are all span tags
     first_non_tag: tuple[str, int] | None = None  # (label, line)
@@ -81,6 +84,7 @@ class _FileScan:
         self.invisible = Examples(self.limit)
         self.not_tags = Examples(self.limit)
         self.leaked = Examples(self.limit)
+        self.too_long = Examples(self.limit)
 
 
 def check_files(
@@ -88,6 +92,7 @@ def check_files(
     fmt: ColumnFormat = _ANY_FORMAT,
     max_examples: int = 5,
     lexicons: Sequence[Lexicon] = (),
+    max_sentence_tokens: int = MAX_SENTENCE_TOKENS,
 ) -> dict[str, Any]:
     """Describe annotated column files; the first is taken as train, any others as dev/test.
 
@@ -98,6 +103,8 @@ def check_files(
     A file's report holds "file", "delimiter", "columns", "lines", "sentences", "tokens",
     "documents", "docstart_lines", "comment_lines", "whitespace_only_lines" (blank lines holding
     spaces or TABs), "trailing_lines", "longest_sentence" {"tokens", "line"},
+    "too_long" (sentences of more than `max_sentence_tokens` tokens, which train and evaluate
+    refuse: {"limit", "key", "count", "examples": [{"line", "tokens"}, ...]}),
     "repeated_sentences", "invisible_characters" and "extra_columns" (per column other than
     token and label: {"column", "distinct", "most_frequent": [{"value", "count"}, ...]});
     with labels also "lexicon_coverage" (per lexicon: {"lexicon", "entries", "spans", "exact",
@@ -123,7 +130,9 @@ def check_files(
     comparisons: list[dict[str, Any]] = []
     train: _FileScan | None = None
     for index, path in enumerate(paths):
-        scan, report = _check_one(ColumnSource(path, fmt), fmt, max_examples, train, lexicons)
+        scan, report = _check_one(
+            ColumnSource(path, fmt), fmt, max_examples, train, lexicons, max_sentence_tokens
+        )
         files.append(report)
         if index == 0:
             train = scan
@@ -149,8 +158,9 @@ def _check_one(
     limit: int,
     train: _FileScan | None,
     lexicons: Sequence[Lexicon] = (),
+    max_tokens: int = MAX_SENTENCE_TOKENS,
 ) -> tuple[_FileScan, dict[str, Any]]:
-    scan = _FileScan(name=str(source.path), limit=limit)
+    scan = _FileScan(name=str(source.path), limit=limit, max_tokens=max_tokens)
     scan.coverage = [LexiconCoverage(lexicon) for lexicon in lexicons]
     # First pass: counts, hashes and the scheme. detect_scheme pulls the label sequences through
     # _first_pass, which does the rest of the counting on the way.
@@ -215,6 +225,7 @@ def _check_one(
         "whitespace_only_lines": stats.whitespace_only_lines,
         "trailing_lines": stats.trailing_lines,
         "longest_sentence": {"tokens": scan.longest[0], "line": scan.longest[1]},
+        "too_long": {"limit": scan.max_tokens, "key": LIMIT_KEY, **scan.too_long.as_dict()},
         "repeated_sentences": scan.repeated,
         "invisible_characters": scan.invisible.as_dict(),
         "extra_columns": [
@@ -307,6 +318,10 @@ def _first_pass(
         scan.tokens += length
         if length > scan.longest[0]:
             scan.longest = (length, first_line)
+        if length > scan.max_tokens:
+            scan.too_long.add(
+                lambda line=first_line, length=length: {"line": line, "tokens": length}
+            )
         for index, token in enumerate(tokens):
             if not token.isprintable():
                 line = sentence.line_numbers[index]

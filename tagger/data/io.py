@@ -30,7 +30,7 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import BinaryIO
 
-from tagger.errors import ConfigError, DataError, NotDecodableError
+from tagger.errors import ConfigError, DataError, NotDecodableError, quoted
 
 STDIO = "-"
 STDIN_NAME = "<stdin>"
@@ -176,7 +176,5 @@ def undecodable(
 
 
 def shortened(text: str, limit: int = SHOWN_CHARS) -> str:
-    """repr() of an offending piece of input, cut to a readable length."""
-    if len(text) > limit:
-        return repr(text[: limit - 3]) + "..."
-    return repr(text)
+    """repr() of an offending piece of input, cut to a readable length (`tagger.errors.quoted`)."""
+    return quoted(text, limit)

@@ -38,7 +38,7 @@ from tagger.data.scheme_rules import (
     normalise_scheme_name,
     rules_for,
 )
-from tagger.errors import DataError
+from tagger.errors import DataError, quoted
 
 __all__ = [
     "OUTSIDE",
@@ -72,10 +72,11 @@ def _split(tag: str) -> tuple[str, str]:
     prefix, hyphen, type_ = tag.partition("-")
     if not hyphen or prefix not in PREFIXES:
         raise DataError(
-            f"tag {tag!r} is neither O nor PREFIX-TYPE with PREFIX one of {', '.join(PREFIXES)}"
+            f"tag {quoted(tag)} is neither O nor PREFIX-TYPE with PREFIX one of "
+            f"{', '.join(PREFIXES)}"
         )
     if not type_:
-        raise DataError(f"tag {tag!r} has no type after its prefix")
+        raise DataError(f"tag {quoted(tag)} has no type after its prefix")
     return (prefix, type_)
 
 
@@ -85,7 +86,7 @@ def split_tag(tag: str) -> tuple[str, str]:
     Raises DataError for anything else (an unknown prefix, a missing type, a typed ``O``).
     """
     if not isinstance(tag, str):
-        raise DataError(f"tag {tag!r} is not a string")
+        raise DataError(f"tag {quoted(tag)} is not a string")
     return _split(tag)
 
 

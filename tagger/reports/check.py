@@ -57,6 +57,14 @@ def _format_file(entry: dict[str, Any]) -> list[str]:
         out += labelled(
             "longest", f"{count(longest['tokens'], 'token')}, from line {longest['line']}"
         )
+    found = entry["too_long"]
+    if found["count"]:
+        out += labelled(
+            "too long",
+            f"{count(found['count'], 'sentence')} of more than {count(found['limit'], 'token')}, "
+            f"which train and evaluate refuse ({found['key']}); sentences end at blank lines:",
+        )
+        out += _examples(found, lambda e: f"line {e['line']}: {count(e['tokens'], 'token')}")
     if entry["whitespace_only_lines"]:
         out += labelled(
             "blank lines",

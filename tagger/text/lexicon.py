@@ -39,7 +39,7 @@ from typing import Any
 
 from tagger.data.io import input_name, is_stdio, read_lines
 from tagger.data.schemes import OUTSIDE, SCHEMES, Span, span_prefixes
-from tagger.errors import ConfigError, DataError
+from tagger.errors import ConfigError, DataError, quoted
 from tagger.text.tokenizer import TokenizerSettings, tokenize
 
 
@@ -253,7 +253,7 @@ def read_lexicon(
             raise DataError("empty type after the TAB", where, number)
         tokens = [t.text for t in tokenize(fields[0], settings)]
         if not tokens:
-            raise DataError(f"the entry {fields[0]!r} holds no token", where, number)
+            raise DataError(f"the entry {quoted(fields[0])} holds no token", where, number)
         entries.append((tokens, type_))
     if not entries:
         raise DataError("the lexicon holds no entries", where)

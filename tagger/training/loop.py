@@ -137,6 +137,8 @@ def _train(
         report(events.warning(message))
 
     clock = RunClock(config.train.max_minutes, state.seconds_used)
+    if resume and state.history:  # resumed with a new epoch limit, patience or budget: ask again
+        state.history[-1]["stop"] = _stop_reason(state, config, clock, state.epoch)
     # With weight averaging on, the averaged copy is the model: dev scores it and it is saved.
     scored = Tagger(
         tools.average.module if tools.average is not None else net,
@@ -163,7 +165,7 @@ def _train(
         seconds = (train_seconds, now() - started)
         row = _history_row(epoch, totals, dev, learning_rate(tools.optimizer), seconds, improved)
         end_epoch(schedule, dev["micro"]["f1"])
-        row["stop"] = _stop_reason(state, config, clock)
+        row["stop"] = _stop_reason(state, config, clock, epoch)
         state.history.append(row)
         state.epoch, state.seconds_used = epoch, clock.used()
         write_history(run_dir, state.history)
@@ -272,7 +274,14 @@ def _resume(
     if not checkpoint.exists():
         report(events.note(f"no checkpoint in {run_dir}: starting from the beginning"))
         return RunState()
-    state = restore_checkpoint(checkpoint, config, data.fingerprint, tools, schedule)
+    state = restore_checkpoint(
+        checkpoint,
+        config,
+        data.fingerprint,
+        tools,
+        schedule,
+        note=lambda message: report(events.note(message)),
+    )
     budget = ""
     if config.train.max_minutes:
         budget = (
@@ -333,13 +342,19 @@ def _history_row(
     }
 
 
-def _stop_reason(state: RunState, config: Config, clock: RunClock) -> str:
-    """Why the run stops after this epoch, or "" to go on (the epoch count aside)."""
+def _stop_reason(state: RunState, config: Config, clock: RunClock, epoch: int) -> str:
+    """Why the run stops after `epoch`, or "" to go on (the epoch count aside)."""
     patience = config.train.patience
     if state.bad_epochs >= patience:
         return f"no better dev F1 for {state.bad_epochs} epochs (train.patience={patience})"
     if clock.spent():
-        return f"time budget of train.max_minutes={config.train.max_minutes} used"
+        reason = f"time budget of train.max_minutes={config.train.max_minutes} used"
+        if state.best_epoch == epoch:
+            reason += (
+                f"; dev F1 was still improving (best at the last epoch, {state.best_epoch}), so "
+                "more epochs may do better: raise or remove train.max_minutes"
+            )
+        return reason
     return ""
 
 

@@ -66,23 +66,12 @@ def run_overview(
 def data_warnings(data: PreparedData) -> list[str]:
     """What in the data makes the run pointless or its choice of the best epoch a toss-up."""
     warnings: list[str] = []
-    train_spans = sum(len(found) for found in data.train_spans)
+    # Data without spans in train or dev is refused before this (tagger.training.data).
     dev_spans = sum(len(found) for found in data.dev_spans)
-    if not train_spans:
-        warnings.append(
-            f"the training data ({data.train_source}) holds no spans, every label is O: the "
-            "model can only learn to tag nothing. Is the label column the right one "
-            "(tagger check shows what each column holds)?"
-        )
     dev = (
         "the held-out dev sentences hold" if data.dev_held_out else f"dev ({data.dev_source}) holds"
     )
-    if not dev_spans:
-        warnings.append(
-            f"{dev} no spans: every epoch scores dev F1 0.00, so the first epoch's model "
-            "is kept and patience ends the run"
-        )
-    elif dev_spans < SMALL_DEV_SPANS:
+    if 0 < dev_spans < SMALL_DEV_SPANS:
         low, high = span_weight(dev_spans)
         warnings.append(
             f"{dev} only {dev_spans} spans to choose the best epoch by: one span more "
