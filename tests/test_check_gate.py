@@ -121,4 +121,5 @@ def test_the_tokenizer_of_a_model_is_the_one_compared(tmp_path: Path) -> None:
 def test_help_says_what_the_exit_codes_mean() -> None:
     shown = " ".join(runner.invoke(app, ["check", "--help"], env={"COLUMNS": "200"}).stdout.split())
     assert "Exit code 3 when a file holds ill-formed tags" in shown
+    assert f"shares a sentence of {LONG_SENTENCE} tokens or more with train" in shown
     assert "--report-only" in shown

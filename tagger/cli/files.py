@@ -25,6 +25,7 @@ from tagger.cli.common import (
     readable_inputs,
     say,
 )
+from tagger.data.check import LONG_SENTENCE
 from tagger.data.convert import REPAIR_OPTION  # the option its refusal names
 
 if TYPE_CHECKING:
@@ -35,7 +36,16 @@ PROBLEMS_FOUND = 3
 REPORT_ONLY = "--report-only"
 
 
-@app.command()
+@app.command(
+    help="Inspect annotated column files: counts, scheme, ill-formed tags, leakage, sentences "
+    "and token sequences labelled two ways, likely label typos, tokens the tagging tokenizer "
+    "would cut differently, values of extra columns and lexicon coverage.\n\n"
+    f"Exit code {PROBLEMS_FOUND} when a file holds ill-formed tags (transitions its scheme "
+    "forbids, or labels that are neither O nor PREFIX-TYPE) or a dev/test file shares a sentence "
+    f"of {LONG_SENTENCE} tokens or more with train, so that check can stop a pipeline; "
+    f"{REPORT_ONLY} reports them and exits 0. Exit code 1 when a file cannot be read. The last "
+    "line of the report says why."
+)
 def check(
     files: Annotated[
         list[Path],
@@ -78,15 +88,6 @@ def check(
     ] = False,
     as_json: AsJson = False,
 ) -> None:
-    """Inspect annotated column files: counts, scheme, ill-formed tags, leakage, sentences and
-    token sequences labelled two ways, likely label typos, tokens the tagging tokenizer would cut
-    differently, values of extra columns and lexicon coverage.
-
-    Exit code 3 when a file holds ill-formed tags (transitions its scheme forbids, or labels that
-    are neither O nor PREFIX-TYPE) or a dev/test file shares a sentence of 5 tokens or more with
-    train, so that check can stop a pipeline; --report-only reports them and exits 0. Exit code 1
-    when a file cannot be read. The last line of the report says why.
-    """
     from tagger.data.check import check_files
     from tagger.reports.check import format_check, format_verdict
     from tagger.text.lexicon import CASE_MODES, read_lexicon
