@@ -318,8 +318,10 @@ def test_no_hint_when_no_column_holds_span_tags(tmp_path: Path) -> None:
     (entry,) = check_files([path])["files"]
     assert "tag_column_hint" not in entry
     result = runner.invoke(app, ["check", str(path)])
-    assert result.exit_code == 0, result.stderr
+    # Labels that are not span tags fail the gate (exit 3), not the column reading (exit 1).
+    assert result.exit_code == 3, result.stderr
     assert "not span tags" in result.stdout
+    assert runner.invoke(app, ["check", str(path), "--report-only"]).exit_code == 0
 
 
 def test_a_column_of_o_alone_is_not_taken_for_a_tag_column(tmp_path: Path) -> None:

@@ -2,7 +2,9 @@
 
 from __future__ import annotations
 
+import io
 import json
+import os
 import sys
 from collections.abc import Iterator, Sequence
 from contextlib import contextmanager
@@ -10,6 +12,7 @@ from pathlib import Path
 from typing import Annotated, Any
 
 import typer
+from typer.core import TyperGroup
 
 from tagger.data.column_lines import DelimiterChoice
 from tagger.data.corpus import ColumnFormat
@@ -38,7 +41,38 @@ __all__ = [
     "say",
 ]
 
+# The exit code of a command whose reader closed standard output early (`tagger convert IN - |
+# head -1`): that of a filter ended by SIGPIPE (128 + 13), as a shell reports it.
+CLOSED_PIPE = 141
+
+
+class _Commands(TyperGroup):
+    """The app's commands, each of which ends quietly with CLOSED_PIPE when the reader of its
+    standard output stops reading: no traceback, no error line."""
+
+    def invoke(self, ctx: Any) -> Any:
+        try:
+            result = super().invoke(ctx)
+            sys.stdout.flush()  # so that output still buffered fails here rather than at exit
+            return result
+        except BrokenPipeError:
+            _discard_stdout()
+            raise typer.Exit(CLOSED_PIPE) from None
+
+
+def _discard_stdout() -> None:
+    """Point standard output at the null device, so that Python's own flush at exit, of what is
+    still buffered, does not fail a second time."""
+    try:
+        null = os.open(os.devnull, os.O_WRONLY)
+        os.dup2(null, sys.stdout.fileno())
+        os.close(null)
+    except (OSError, ValueError, io.UnsupportedOperation):
+        pass  # not a real file (a test runner's capture): nothing will flush to a closed pipe
+
+
 app = typer.Typer(
+    cls=_Commands,
     add_completion=True,  # choices are enums, so shells can offer them
     no_args_is_help=True,
     help="Train, evaluate and run sequence taggers on annotated column files, on CPUs.",
