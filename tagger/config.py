@@ -14,6 +14,7 @@ stays immutable; `Config.to_dict` gives them back as lists.
 from __future__ import annotations
 
 import dataclasses
+import math
 import tomllib
 import typing
 from dataclasses import dataclass, field, fields, replace
@@ -178,6 +179,11 @@ def _coerce(section: str, name: str, expected: Any, value: Any) -> Any:
 
 def _validate(section: str, name: str, value: Any) -> None:
     key = f"{section}.{name}"
+    # NaN passes every comparison below; only a time budget may be infinite (no budget).
+    if isinstance(value, float) and not (
+        math.isfinite(value) or (name == "max_minutes" and value == math.inf)
+    ):
+        raise ConfigError(f"{key} must be a finite number; got {value!r}")
     choices = _CHOICES.get((section, name))
     if choices and value not in choices:
         raise ConfigError(f"{key} must be one of {', '.join(choices)}; got {value!r}")

@@ -23,6 +23,7 @@ from tagger.cli.common import (
     print_json,
     readable_inputs,
     say,
+    usable_output,
 )
 
 
@@ -97,6 +98,7 @@ def convert(
     from tagger.reports.conversion import format_conversion
 
     readable_inputs(("source", source))
+    usable_output(target, [source])
     with domain_errors():
         summary = convert_file(
             source, target, to, column_format(delimiter, token_column, label_column), source_scheme

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import json
+import sys
 from pathlib import Path
 from typing import Annotated
 
@@ -21,6 +22,8 @@ from tagger.cli.common import (
     print_json,
     readable_inputs,
     say,
+    stopped_words,
+    usable_output,
 )
 from tagger.cli.progress import TrainingProgress
 
@@ -60,11 +63,24 @@ def train(
     resume: Annotated[
         bool, typer.Option("--resume", help="Continue from the run folder's last checkpoint.")
     ] = False,
+    overwrite: Annotated[
+        bool,
+        typer.Option(
+            "--overwrite",
+            help="Replace the run OUT holds (its model, checkpoint and records); without it a "
+            "folder holding a run is refused.",
+        ),
+    ] = False,
 ) -> None:
     """Train a tagger; the best model by dev span F1 is written to OUT/model.tagger."""
     from tagger.config import apply_overrides, load_config
     from tagger.training.loop import train as run_training
 
+    if resume and overwrite:
+        raise typer.BadParameter(
+            "--resume continues the run in OUT and --overwrite replaces it: give one of them",
+            param_hint="'--overwrite'",
+        )
     with domain_errors():
         config = load_config(config_path)
         extra = list(overrides or [])
@@ -74,10 +90,17 @@ def train(
             extra.append(f"data.dev={json.dumps(str(dev_file))}")
         config = apply_overrides(config, extra)
         try:
-            result = run_training(config, out, resume=resume, progress=TrainingProgress())
-        except KeyboardInterrupt:
-            say(f"\ninterrupted: continue with the same command and --resume (run folder {out})")
-            raise typer.Exit(130) from None
+            result = run_training(
+                config, out, resume=resume, progress=TrainingProgress(), overwrite=overwrite
+            )
+        except KeyboardInterrupt as stop:
+            words, code = stopped_words(stop)
+            ending = "\n" if sys.stderr.isatty() else ""  # off the progress bar's line
+            say(
+                f"{ending}tagger: {words}: continue with the same command and --resume "
+                f"(run folder {out})"
+            )
+            raise typer.Exit(code) from None
     if result.diverged:
         say(f"tagger: error: {result.stop_reason}")
         raise typer.Exit(1)
@@ -109,6 +132,7 @@ def evaluate(
     from tagger.reports.scores import format_evaluation
 
     readable_inputs(("files", files))
+    usable_output(predictions, [model, *files])
     with domain_errors():
         tagger = Tagger.load(model)
         result = evaluate_files(

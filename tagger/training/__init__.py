@@ -9,6 +9,7 @@
     checkpoint.py  saving and restoring a run after its last finished epoch
     events.py      the progress events the command line reads
     records.py     config.toml, history.json/.csv and metrics.json in the run folder
+    run_folder.py  starting a run: named files readable, the folder made, held and checked
     loop.py        `train` (files) and `train_on_sentences` (memory): the epochs
 
 May import `tagger.apply` (to score dev and save the model) and everything below it.
