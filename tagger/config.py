@@ -26,6 +26,7 @@ A run resumed from its checkpoint may change only the keys of `RESUMABLE_KEYS`
 from __future__ import annotations
 
 import dataclasses
+import math
 import os
 import tomllib
 import typing
@@ -254,6 +255,11 @@ def _choice(key: str, kind: type[Enum], value: Any) -> Enum:
 
 def _validate(section: str, name: str, value: Any) -> None:
     key = f"{section}.{name}"
+    # NaN passes every comparison below; only a time budget may be infinite (no budget).
+    if isinstance(value, float) and not (
+        math.isfinite(value) or (name == "max_minutes" and value == math.inf)
+    ):
+        raise ConfigError(f"{key} must be a finite number; got {value!r}")
     if (section, name) in _POSITIVE and value < 1:
         raise ConfigError(f"{key} must be at least 1; got {value!r}")
     if (section, name) in _FRACTIONS and not 0.0 <= value < 1.0:

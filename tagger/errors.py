@@ -49,3 +49,8 @@ class ModelFileError(TaggerError):
 
 class FolderBusyError(TaggerError):
     """A run folder that another process is writing to."""
+
+
+class OutputError(TaggerError):
+    """An output that cannot or must not be written: a missing or read-only folder, a full disk, a
+    file that is also one of the command's inputs, a run folder that holds a run."""

@@ -1,19 +1,29 @@
-"""What every command shares: the typer app, common options, error handling and output."""
+"""What every command shares: the typer app, common options, error handling, signals and output.
+
+Errors: a library error (TaggerError) or an operating-system one (a missing folder, a full disk)
+is one line on stderr and exit code 1 (`domain_errors`). Signals: Ctrl-C and SIGTERM both unwind
+the command (temporary files removed, the run folder's lock released) and end it with one line,
+exit code 130 or 143 (128 + the signal's number, as shells report it).
+"""
 
 from __future__ import annotations
 
 import io
 import json
 import os
+import signal
 import sys
+import threading
 from collections.abc import Iterator, Sequence
 from contextlib import contextmanager
 from pathlib import Path
+from types import FrameType
 from typing import Annotated, Any
 
 import typer
 from typer.core import TyperGroup
 
+from tagger.data.atomic import check_output, refuse_input_as_output
 from tagger.data.column_lines import DelimiterChoice
 from tagger.data.corpus import ColumnFormat
 from tagger.data.io import checked_encoding, input_name, is_stdio
@@ -27,6 +37,7 @@ __all__ = [
     "Encoding",
     "LabelColumn",
     "ModelFile",
+    "Terminated",
     "TokenColumn",
     "app",
     "checked_option_encoding",
@@ -39,6 +50,8 @@ __all__ = [
     "print_json",
     "readable_inputs",
     "say",
+    "stopped_words",
+    "usable_output",
 ]
 
 # The exit code of a command whose reader closed standard output early (`tagger convert IN - |
@@ -46,18 +59,53 @@ __all__ = [
 CLOSED_PIPE = 141
 
 
-class _Commands(TyperGroup):
-    """The app's commands, each of which ends quietly with CLOSED_PIPE when the reader of its
-    standard output stops reading: no traceback, no error line."""
+class Terminated(KeyboardInterrupt):
+    """SIGTERM, raised in the main thread so that the command unwinds exactly as on Ctrl-C."""
 
-    def invoke(self, ctx: Any) -> Any:
-        try:
-            result = super().invoke(ctx)
-            sys.stdout.flush()  # so that output still buffered fails here rather than at exit
-            return result
-        except BrokenPipeError:
-            _discard_stdout()
-            raise typer.Exit(CLOSED_PIPE) from None
+
+def stopped_words(stop: KeyboardInterrupt) -> tuple[str, int]:
+    """What to say when a command was stopped by a signal, and its exit code."""
+    if isinstance(stop, Terminated):
+        return "terminated (SIGTERM)", 128 + signal.SIGTERM
+    return "interrupted", 128 + signal.SIGINT
+
+
+@contextmanager
+def _sigterm_unwinds() -> Iterator[None]:
+    """While the block runs, SIGTERM raises Terminated; a second SIGTERM kills as usual."""
+    if threading.current_thread() is not threading.main_thread():
+        yield  # only the main thread may set handlers (and only it receives signals)
+        return
+
+    def terminate(signum: int, frame: FrameType | None) -> None:
+        signal.signal(signal.SIGTERM, signal.SIG_DFL)
+        raise Terminated
+
+    previous = signal.signal(signal.SIGTERM, terminate)
+    try:
+        yield
+    finally:
+        signal.signal(signal.SIGTERM, previous)
+
+
+class _Commands(TyperGroup):
+    """The command group: every command runs with SIGTERM handled; a command stopped by a signal
+    ends with one line instead of a traceback, and one whose reader stops reading its standard
+    output ends quietly with CLOSED_PIPE (no traceback, no error line)."""
+
+    def invoke(self, ctx: typer.Context) -> Any:
+        with _sigterm_unwinds():
+            try:
+                result = super().invoke(ctx)
+                sys.stdout.flush()  # so that output still buffered fails here rather than at exit
+                return result
+            except BrokenPipeError:
+                _discard_stdout()
+                raise typer.Exit(CLOSED_PIPE) from None
+            except KeyboardInterrupt as stop:
+                words, code = stopped_words(stop)
+                say(f"tagger: {words}; unfinished output files were removed")
+                raise typer.Exit(code) from None
 
 
 def _discard_stdout() -> None:
@@ -143,9 +191,10 @@ ENCODING_HINT = (
 
 @contextmanager
 def domain_errors(column_files: Sequence[str | Path] = ()) -> Iterator[None]:
-    """Library errors become one line on stderr and exit code 1. `column_files` are the files
-    the command reads in the encoding its --encoding option names: bytes of theirs that do not
-    decode get a hint at that option."""
+    """Library errors, and operating-system errors (no permission, a full disk, a file gone),
+    become one line on stderr naming the file, and exit code 1. `column_files` are the files the
+    command reads in the encoding its --encoding option names: bytes of theirs that do not decode
+    get a hint at that option. A closed pipe is left to the command group (the reader stopped)."""
     try:
         yield
     except TaggerError as error:
@@ -156,6 +205,32 @@ def domain_errors(column_files: Sequence[str | Path] = ()) -> Iterator[None]:
             message += ENCODING_HINT
         say(f"tagger: error: {message}")
         raise typer.Exit(1) from None
+    except BrokenPipeError:
+        raise
+    except OSError as error:
+        say(f"tagger: error: {_os_error_words(error)}")
+        raise typer.Exit(1) from None
+
+
+def _os_error_words(error: OSError) -> str:
+    """'PATH: reason' (both paths for a rename), or the reason alone when no file is named."""
+    reason = error.strerror or str(error)
+    if error.filename is None:
+        return reason
+    if error.filename2 is not None:
+        return f"{error.filename} -> {error.filename2}: {reason}"
+    return f"{error.filename}: {reason}"
+
+
+def usable_output(path: Path | str | None, inputs: Sequence[Path | str | None]) -> None:
+    """Before any work: an output that cannot be written (its folder missing or read-only, a
+    folder) or that is one of the command's inputs (which writing would replace) ends the
+    command with one line and exit code 1. None (no output asked for) passes."""
+    if path is None:
+        return
+    with domain_errors():
+        check_output(path)
+        refuse_input_as_output(path, [source for source in inputs if source is not None])
 
 
 def column_format(

@@ -25,6 +25,7 @@ from tagger.cli.common import (
     print_json,
     readable_inputs,
     say,
+    usable_output,
 )
 from tagger.data.check import LONG_SENTENCE
 from tagger.data.convert import REPAIR_OPTION  # the option its refusal names
@@ -198,6 +199,7 @@ def convert(
     from tagger.reports.conversion import format_conversion
 
     readable_inputs(("source", source))
+    usable_output(target, [source])
     with domain_errors(column_files=[source]):
         summary = convert_file(
             source,

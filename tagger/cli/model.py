@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import json
+import sys
 from dataclasses import replace
 from pathlib import Path
 from typing import TYPE_CHECKING, Annotated
@@ -21,6 +22,8 @@ from tagger.cli.common import (
     print_json,
     readable_inputs,
     say,
+    stopped_words,
+    usable_output,
 )
 from tagger.cli.progress import TrainingProgress
 from tagger.data.column_lines import DelimiterChoice
@@ -107,6 +110,14 @@ def train(
             min=0, help="torch threads while training (overrides train.threads; 0: torch's)."
         ),
     ] = None,
+    overwrite: Annotated[
+        bool,
+        typer.Option(
+            "--overwrite",
+            help="Replace the run OUT holds (its model, checkpoint and records); without it a "
+            "folder holding a run is refused.",
+        ),
+    ] = False,
 ) -> None:
     """Train a tagger; the best model by dev span F1 is written to OUT/model.tagger.
 
@@ -116,6 +127,11 @@ def train(
 
     if encoding is not None:
         checked_option_encoding(encoding)
+    if resume and overwrite:
+        raise typer.BadParameter(
+            "--resume continues the run in OUT and --overwrite replaces it: give one of them",
+            param_hint="'--overwrite'",
+        )
     with domain_errors():
         config = load_config(config_path)
         extra = list(overrides or [])
@@ -137,10 +153,17 @@ def train(
         column_files=[name for name in (config.data.train, config.data.dev) if name]
     ):
         try:
-            result = run_training(config, out, resume=resume, progress=TrainingProgress())
-        except KeyboardInterrupt:
-            say(f"\ninterrupted: continue with the same command and --resume (run folder {out})")
-            raise typer.Exit(130) from None
+            result = run_training(
+                config, out, resume=resume, progress=TrainingProgress(), overwrite=overwrite
+            )
+        except KeyboardInterrupt as stop:
+            words, code = stopped_words(stop)
+            ending = "\n" if sys.stderr.isatty() else ""  # off the progress bar's line
+            say(
+                f"{ending}tagger: {words}: continue with the same command and --resume "
+                f"(run folder {out})"
+            )
+            raise typer.Exit(code) from None
     if result.diverged:
         say(f"tagger: error: {result.stop_reason}")
         raise typer.Exit(1)
@@ -182,6 +205,7 @@ def evaluate(
         -1 if label_column is None else label_column,
         encoding=encoding,
     )
+    usable_output(predictions, [model, *files])
     with domain_errors(column_files=files):
         tagger = Tagger.load(model)
         fmt = _gold_layout(tagger.column_layout, given, token_column, label_column, delimiter)

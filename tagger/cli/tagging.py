@@ -15,6 +15,7 @@ from tagger.cli.common import (
     domain_errors,
     input_names,
     say,
+    usable_output,
 )
 from tagger.cli.progress import TaggingProgress
 from tagger.data.scheme_rules import SchemeName
@@ -100,6 +101,7 @@ def tag(
         )
     except TaggerError as error:
         raise typer.BadParameter(str(error)) from None
+    usable_output(out, [model, *(names or ["-"])])
     progress = TaggingProgress()
     try:
         with domain_errors():
@@ -146,6 +148,7 @@ def tokenize(
         raise typer.BadParameter(
             f"must be auto, text or jsonl, not {input_format!r}", param_hint="--input-format"
         )
+    usable_output(out, [model, *(names or ["-"])])
     with domain_errors():
         settings = TokenizerSettings()
         if model is not None:

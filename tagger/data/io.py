@@ -14,7 +14,8 @@ The rules:
   that let the user name another encoding (column files: `ColumnFormat.encoding`) pass it down;
   it must write ASCII as ASCII (latin-1, cp1252...), since lines are split at LF bytes before
   they are decoded.
-* A file that cannot be opened raises DataError naming the file.
+* A file that cannot be opened raises DataError naming the file; `check_readable` finds that out
+  before any work starts.
 
 Input is read line by line, never held whole. Writing is `tagger.data.atomic`.
 """
@@ -24,6 +25,8 @@ from __future__ import annotations
 import codecs
 import contextlib
 import io
+import os
+import stat
 import sys
 from collections.abc import Iterable, Iterator
 from dataclasses import dataclass
@@ -68,6 +71,23 @@ def open_input(path: str | Path) -> Iterator[BinaryIO]:
         raise DataError(f"cannot open the file: {error.strerror}", str(path)) from None
     with stream:
         yield stream
+
+
+def check_readable(path: str | Path, what: str = "file") -> None:
+    """Raise DataError naming `path` unless it can be opened for reading; `what` says what the
+    file is for ("lexicon"). Standard input, and what is not a regular file (a FIFO, which
+    opening would block on), pass: reading them tells."""
+    if is_stdio(path):
+        return
+    try:
+        mode = os.stat(path).st_mode
+        if stat.S_ISDIR(mode):
+            raise DataError(f"cannot open the {what}: it is a folder", str(path))
+        if stat.S_ISREG(mode):
+            with open(path, "rb"):
+                pass
+    except OSError as error:
+        raise DataError(f"cannot open the {what}: {error.strerror}", str(path)) from None
 
 
 @dataclass(frozen=True, slots=True)

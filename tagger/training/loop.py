@@ -10,8 +10,10 @@ A run folder holds everything a run leaves behind:
     metrics.json         the best epoch's dev scores and how the run ended
 
 `train` reads the files the config names; `train_on_sentences` takes sentences from memory. Both
-run the same loop: epochs of `train_step` over seeded batches, each epoch scored on dev, then the
-schedule, the stopping rules and the checkpoint.
+start in a run folder made, held and checked as `run_folder` says (a finished run is replaced only
+with overwrite, a failed start leaves nothing behind), then run the same loop: epochs of
+`train_step` over seeded batches, each epoch scored on dev, then the schedule, the stopping rules
+and the checkpoint.
 """
 
 from __future__ import annotations
@@ -27,7 +29,6 @@ from torch.optim.lr_scheduler import LRScheduler
 
 from tagger.apply.tagger import COLUMN_LAYOUT_KEY, Tagger
 from tagger.config import Config
-from tagger.data.atomic import exclusive_folder
 from tagger.data.corpus import Sentence
 from tagger.data.schemes import Span
 from tagger.network.batching import EncodedSentence, bucketed_batches, collate
@@ -48,12 +49,12 @@ from tagger.training.data import (
 )
 from tagger.training.overview import data_warnings, earliest_stop, run_overview
 from tagger.training.records import write_config, write_history, write_metrics
+from tagger.training.run_folder import MODEL_NAME, RunFolder, check_named_files, run_folder
 from tagger.training.schedule import end_epoch, learning_rate, new_schedule
 from tagger.training.setup import TrainingSetup, new_network, setup_training, step_tools
 from tagger.training.step import LossNotFinite, StepTools, train_step
 
 Progress = Callable[[dict[str, Any]], None]
-MODEL_NAME = "model.tagger"
 
 
 @dataclass
@@ -76,16 +77,20 @@ def train(
     run_dir: str | Path,
     resume: bool = False,
     progress: Progress | None = None,
+    overwrite: bool = False,
 ) -> TrainResult:
     """Train a tagger on the files data.train (and data.dev) name; the best model is at
     ``run_dir/model.tagger``. Returns the per-epoch history.
 
-    One run at a time in a folder: a second one is refused (FolderBusyError)."""
-    train_sentences, dev_sentences = read_training_files(config)
-    data = prepare_sentences(
-        config, train_sentences, dev_sentences, config.data.train, config.data.dev or None
-    )
-    return _train_in_folder(config, data, Path(run_dir), resume, progress)
+    One run at a time in a folder: a second one is refused (FolderBusyError). A folder holding
+    a run is refused (OutputError) unless `resume` continues it or `overwrite` replaces it."""
+    check_named_files(config)
+    with run_folder(Path(run_dir), resume, overwrite) as folder:
+        train_sentences, dev_sentences = read_training_files(config)
+        data = prepare_sentences(
+            config, train_sentences, dev_sentences, config.data.train, config.data.dev or None
+        )
+        return _train(config, data, folder, resume, progress or (lambda event: None))
 
 
 def train_on_sentences(
@@ -95,25 +100,21 @@ def train_on_sentences(
     run_dir: str | Path,
     resume: bool = False,
     progress: Progress | None = None,
+    overwrite: bool = False,
 ) -> TrainResult:
     """Train a tagger on sentences in memory (e.g. `Sentence.from_tokens(tokens, labels)`), as
     `train` does on files. Without dev sentences, dev is held out of train as data.dev_fraction
     and data.dev_holdout say. data.train and data.dev are not read, only recorded in the model."""
-    data = prepare_sentences(config, train_sentences, dev_sentences)
-    return _train_in_folder(config, data, Path(run_dir), resume, progress)
-
-
-def _train_in_folder(
-    config: Config, data: PreparedData, run_dir: Path, resume: bool, progress: Progress | None
-) -> TrainResult:
-    run_dir.mkdir(parents=True, exist_ok=True)
-    with exclusive_folder(run_dir):
-        return _train(config, data, run_dir, resume, progress or (lambda event: None))
+    check_named_files(config, data_files=False)
+    with run_folder(Path(run_dir), resume, overwrite) as folder:
+        data = prepare_sentences(config, train_sentences, dev_sentences)
+        return _train(config, data, folder, resume, progress or (lambda event: None))
 
 
 def _train(
-    config: Config, data: PreparedData, run_dir: Path, resume: bool, report: Progress
+    config: Config, data: PreparedData, folder: RunFolder, resume: bool, report: Progress
 ) -> TrainResult:
+    run_dir = folder.path
     epochs = config.train.epochs
     if config.train.threads:
         torch.set_num_threads(config.train.threads)
@@ -127,6 +128,7 @@ def _train(
     tools = step_tools(config, setup, net)
     schedule = new_schedule(config, tools.optimizer)
     state = _resume(run_dir, config, data, tools, schedule, report) if resume else RunState()
+    folder.begin()
     write_config(run_dir, config)
     parameters = sum(p.numel() for p in net.parameters())
     report(events.start(run_overview(config, data, parameters, run_dir, state.epoch + 1)))
