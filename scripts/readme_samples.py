@@ -35,7 +35,10 @@ RUN = "runs/readme"  # the model's folder, relative to the project folder; empti
 MODEL = f"{RUN}/model.tagger"
 TRAINED_BY = ROOT / RUN / "trained-by.txt"  # the training command, read by later --only runs
 PREDICTED = f"{RUN}/test.predicted.txt"
-TRAIN_ARGS = ["train", "--config", "configs/default.toml", "--out", RUN, "--set", "train.threads=1"]
+TRAIN_ARGS = [
+    "train", "--config", "configs/default.toml", "--train", "data/demo/train.txt",
+    "--dev", "data/demo/dev.txt", "--out", RUN, "--overwrite", "--set", "train.threads=1",
+]  # fmt: skip
 TOKENIZE_TEXT = "Yaw drive motor overheating on T-3; reading 92°C at 1,450 rpm. Fan replaced."
 
 BEGIN = re.compile(r"^<!-- sample ([a-z0-9-]+): written by scripts/readme_samples\.py -->$")
