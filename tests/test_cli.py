@@ -216,9 +216,9 @@ def test_check_reads_a_lexicon_from_stdin(tmp_path: Path) -> None:
 @pytest.mark.parametrize(
     ("args", "second"),
     [
-        (["score", "-", "-"], "'predicted'"),
-        (["check", "-", "-"], "'files'"),
-        (["check", "-", "--lexicon", "-"], "'files'"),
+        (["score", "-", "-"], "'PREDICTED'"),
+        (["check", "-", "-"], "'FILES'"),
+        (["check", "-", "--lexicon", "-"], "'FILES'"),
     ],
 )
 def test_stdin_can_be_named_only_once(args: list[str], second: str) -> None:
@@ -230,11 +230,11 @@ def test_stdin_can_be_named_only_once(args: list[str], second: str) -> None:
 @pytest.mark.parametrize(
     ("command", "argument"),
     [
-        (["score", "{}", "{gold}"], "'gold'"),
-        (["score", "{gold}", "{}"], "'predicted'"),
-        (["check", "{gold}", "{}"], "'files'"),
+        (["score", "{}", "{gold}"], "'GOLD'"),
+        (["score", "{gold}", "{}"], "'PREDICTED'"),
+        (["check", "{gold}", "{}"], "'FILES'"),
         (["check", "{gold}", "--lexicon", "{}"], "'--lexicon'"),
-        (["convert", "{}", "out.txt", "--to", "IOB2"], "'source'"),
+        (["convert", "{}", "out.txt", "--to", "IOB2"], "'SOURCE'"),
     ],
 )
 @pytest.mark.parametrize("kind", ["missing", "folder"])
@@ -255,7 +255,7 @@ def test_evaluate_refuses_a_missing_gold_file_before_loading_the_model(tmp_path:
     model = _write(tmp_path / "m.tagger", "not a model")
     result = runner.invoke(app, ["evaluate", str(model), str(tmp_path / "absent.txt")])
     assert result.exit_code == 2
-    assert "'files'" in result.stderr and "does not exist" in result.stderr
+    assert "'FILES'" in result.stderr and "does not exist" in result.stderr
 
 
 # --- version and help ----------------------------------------------------------------------------
@@ -286,7 +286,8 @@ def test_every_positional_argument_has_a_description_in_help() -> None:
                 continue
             text = _words(param.help or "")
             assert text, f"{name} {param.name}: no help text"
-            assert re.search(rf"\b{param.name}\b", shown), f"{name} help lacks {param.name}"
+            shown_name = param.name.upper()  # as the usage line and the errors name it
+            assert re.search(rf"\b{shown_name}\b", shown), f"{name} help lacks {shown_name}"
             assert text in shown, f"{name} help lacks the description of {param.name}"
             described.append(f"{name} {param.name}")
     assert {"score gold", "score predicted", "convert source", "convert target"} <= set(described)
@@ -511,3 +512,14 @@ def test_train_checks_values_and_named_files_before_making_the_folder(
     assert result.exit_code == 1
     assert message.format(missing=missing) in _one_error_line(result.stderr)
     assert not (tmp_path / "runs").exists()
+
+
+@pytest.mark.parametrize(
+    "command", ["check", "convert", "score", "train", "evaluate", "tag", "tokenize"]
+)
+def test_help_shows_placeholders_a_person_reads(command: str) -> None:
+    # No Python types (<bool>, <list[Path]>, <str>, <int range>) and no {REQUIRED} braces.
+    result = runner.invoke(app, [command, "--help"], terminal_width=120)
+    assert result.exit_code == 0
+    for python_type in ("<bool>", "<list[", "<str>", "<int", "<float>", "<path>", "<file>", "{"):
+        assert python_type not in result.stdout, python_type

@@ -23,6 +23,7 @@ from typing import Annotated, Any
 import typer
 from typer.core import TyperGroup
 
+from tagger.cli.help import readable_placeholders
 from tagger.data.atomic import check_output, refuse_input_as_output
 from tagger.data.column_lines import DelimiterChoice
 from tagger.data.corpus import ColumnFormat
@@ -92,6 +93,12 @@ class _Commands(TyperGroup):
     """The command group: every command runs with SIGTERM handled; a command stopped by a signal
     ends with one line instead of a traceback, and one whose reader stops reading its standard
     output ends quietly with CLOSED_PIPE (no traceback, no error line)."""
+
+    def get_command(self, ctx: typer.Context, name: str) -> Any:
+        command = super().get_command(ctx, name)
+        if command is not None:
+            readable_placeholders(command, ctx)
+        return command
 
     def invoke(self, ctx: typer.Context) -> Any:
         with _sigterm_unwinds():
@@ -267,7 +274,7 @@ def input_names(paths: list[Path] | None) -> list[str]:
     names = [str(p) for p in paths or []]
     for name in names:
         if not is_stdio(name):
-            _must_be_a_file(name, "inputs")
+            _must_be_a_file(name, "INPUTS")
     return names
 
 

@@ -102,7 +102,7 @@ def check(
     from tagger.reports.check import format_check, format_verdict
     from tagger.text.lexicon import read_lexicon
 
-    readable_inputs(("--lexicon", lexicons), ("files", files))
+    readable_inputs(("--lexicon", lexicons), ("FILES", files))
     with domain_errors(column_files=files):
         loaded = [read_lexicon(path, lexicon_case.value) for path in lexicons or []]
         tokenizer, settings = _tagging_tokenizer(model)
@@ -198,7 +198,7 @@ def convert(
     from tagger.data.convert import convert_file
     from tagger.reports.conversion import format_conversion
 
-    readable_inputs(("source", source))
+    readable_inputs(("SOURCE", source))
     usable_output(target, [source])
     with domain_errors(column_files=[source]):
         summary = convert_file(
@@ -237,7 +237,7 @@ def score(
     from tagger.reports.scores import format_report
     from tagger.scoring.files import score_files
 
-    readable_inputs(("gold", gold), ("predicted", predicted))
+    readable_inputs(("GOLD", gold), ("PREDICTED", predicted))
     gold_fmt = column_format(delimiter, token_column, label_column, encoding=encoding)
     pred_fmt = column_format(
         delimiter,

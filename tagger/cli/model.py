@@ -198,7 +198,7 @@ def evaluate(
     from tagger.apply.tagger import Tagger
     from tagger.reports.scores import format_evaluation
 
-    readable_inputs(("files", files))
+    readable_inputs(("FILES", files))
     given = column_format(
         delimiter or "auto",
         token_column or 0,
