@@ -85,6 +85,12 @@ def train(
     say(
         f"best dev F1 {100 * result.best_dev['micro']['f1']:.2f} at epoch {result.best_epoch}; model: {result.model_path}"
     )
+    if result.model_path.exists():
+        from tagger.network.modelfile import load_model_file
+        from tagger.reports.notes import stored_text_note
+
+        with domain_errors():
+            say(stored_text_note(load_model_file(result.model_path)[1]))
 
 
 @app.command()
@@ -98,23 +104,61 @@ def evaluate(
         Path | None,
         typer.Option("--predictions", dir_okay=False, help="Write the predicted column file here."),
     ] = None,
+    side_by_side: Annotated[
+        Path | None,
+        typer.Option(
+            "--side-by-side",
+            dir_okay=False,
+            help="Write token, gold label, tagged label and same/DIFF here, one token a line.",
+        ),
+    ] = None,
+    examples: Annotated[
+        int,
+        typer.Option(min=0, help="Example sentences shown per kind of error (0: none)."),
+    ] = 3,
+    resamples: Annotated[
+        int,
+        typer.Option(
+            min=0,
+            help="Seeded draws of the sentences for the interval printed beside F1 (0: none).",
+        ),
+    ] = 1000,
+    review_below: Annotated[
+        float,
+        typer.Option(
+            min=0.0,
+            max=1.0,
+            help="Count the sentences tag would flag for review at this threshold (0 to 1).",
+        ),
+    ] = 0.8,
     token_column: TokenColumn = 0,
     label_column: LabelColumn = -1,
     delimiter: Delimiter = "auto",
     as_json: AsJson = False,
 ) -> None:
-    """Tag gold files with a model and report span scores per type, with the error breakdown."""
+    """Tag gold files with a model and report span scores per type, with the error breakdown,
+    the types wrong-type spans got, example sentences, an interval for F1, how often scores are
+    right and what the review flag catches."""
     from tagger.apply.evaluate import evaluate_files
     from tagger.apply.tagger import Tagger
+    from tagger.reports.notes import CAUTION
     from tagger.reports.scores import format_evaluation
 
     readable_inputs(("files", files))
     with domain_errors():
         tagger = Tagger.load(model)
         result = evaluate_files(
-            tagger, files, column_format(delimiter, token_column, label_column), predictions
+            tagger,
+            files,
+            column_format(delimiter, token_column, label_column),
+            predictions,
+            side_by_side=side_by_side,
+            examples=examples,
+            resamples=resamples,
+            review_below=review_below,
         )
     if as_json:
         print_json(result)
     else:
         print(format_evaluation(result), end="")
+    say(CAUTION)
