@@ -153,7 +153,9 @@ def test_reliability_hand_worked() -> None:
     assert top["mean_score"] == pytest.approx(0.975) and top["right"] == 0.5
     # ECE = 2/4 * |0.975 - 0.5| + 1/4 * |0.55 - 1| + 1/4 * |0.15 - 0|
     assert result["ece"] == pytest.approx(0.5 * 0.475 + 0.25 * 0.45 + 0.25 * 0.15)
-    assert reliability([], []) == {"spans": 0, "bins": [], "ece": 0.0}
+    # Brier: ((0.95 - 1)^2 + (1 - 0)^2 + (0.55 - 1)^2 + (0.15 - 0)^2) / 4
+    assert result["brier"] == pytest.approx((0.0025 + 1 + 0.2025 + 0.0225) / 4)
+    assert reliability([], []) == {"spans": 0, "bins": [], "ece": 0.0, "brier": 0.0}
     assert reliability([0.7] * 10, [True] * 7 + [False] * 3)["ece"] == pytest.approx(0.0)
     with pytest.raises(ValueError, match="outside"):
         reliability([1.2], [True])
@@ -297,7 +299,7 @@ def test_calibration_and_review_text() -> None:
     assert "  flagged      1 of 3 sentences (33.3%)" in review
     assert any(line.startswith("  caught       1 of the 2 sentences holding an error (50.0%)")
                for line in review)  # fmt: skip
-    assert calibration_lines({"calibration": {"spans": 0, "bins": [], "ece": 0.0}}) == []
+    assert calibration_lines({"calibration": reliability([], [])}) == []
     assert review_lines({}) == []
 
 

@@ -5,7 +5,8 @@ how much of the error the review flag catches.
   bin closed); per bin, the mean score beside the share of exactly right spans. The expected
   calibration error (ECE) is the mean gap between the two, each bin weighted by its share of the
   spans (common practice: ten bins of equal width). A well calibrated model has scores of 0.9
-  right about nine times in ten and an ECE near 0.
+  right about nine times in ten and an ECE near 0. The Brier score, the mean squared gap between
+  each span's score and 1 (right) or 0 (wrong), needs no bins.
 * Review: of the sentences holding an error (a gold span not found exactly, or a tagged span not
   in gold), what share the review flag raises, and what share of all sentences it raises (the
   work it asks of a person).
@@ -20,16 +21,18 @@ BINS = 10
 
 
 def reliability(scores: Sequence[float], right: Sequence[bool], bins: int = BINS) -> dict[str, Any]:
-    """{"spans", "bins": [{"low", "high", "spans", "mean_score", "right"}, ...], "ece"}: the
-    non-empty bins in score order ("right" is the share of exactly right spans)."""
+    """{"spans", "bins": [{"low", "high", "spans", "mean_score", "right"}, ...], "ece", "brier"}:
+    the non-empty bins in score order ("right" is the share of exactly right spans)."""
     if len(scores) != len(right):
         raise ValueError(f"{len(scores)} scores but {len(right)} right/wrong marks")
     if bins < 1:
         raise ValueError(f"bins must be at least 1; got {bins!r}")
     totals = [[0, 0.0, 0] for _ in range(bins)]  # spans, summed score, right spans
+    squared = 0.0
     for score, ok in zip(scores, right, strict=True):
         if not 0.0 <= score <= 1.0:
             raise ValueError(f"a score of {score!r} lies outside [0, 1]")
+        squared += (score - bool(ok)) ** 2
         cell = totals[min(int(score * bins), bins - 1)]
         cell[0] += 1
         cell[1] += score
@@ -51,7 +54,7 @@ def reliability(scores: Sequence[float], right: Sequence[bool], bins: int = BINS
                 "right": share_right,
             }
         )
-    return {"spans": n, "bins": rows, "ece": ece}
+    return {"spans": n, "bins": rows, "ece": ece, "brier": squared / n if n else 0.0}
 
 
 def review_catch(flagged: Sequence[bool], erroneous: Sequence[bool]) -> dict[str, Any]:
