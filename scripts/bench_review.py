@@ -1,7 +1,7 @@
 """Review benchmark: how honest the span scores and the review flag are, and what keeping rare
 words out of the model file costs, on the demo corpus.
 
-    .venv/bin/python scripts/bench_review.py                 # three training runs, ~15 min on 2 cores
+    .venv/bin/python scripts/bench_review.py            # three training runs, ~15 min on 2 cores
     .venv/bin/python scripts/bench_review.py --min-word-counts 1 2
 
 Each run trains configs/default.toml on data/demo (train and dev files, seed 1, one thread, no time

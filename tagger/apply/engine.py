@@ -7,8 +7,8 @@ while memory depends on the chunk size and the longest document, not on the inpu
 
 A span's score is the smallest, over its tokens, of the probability of the label chosen there
 (see `Tagger.predict_sentences`); a document's certainty, which the review flag reads, is the
-smallest over all of its tokens (`tagger.apply.review`). Offsets count characters of the document text, end
-exclusive: `text[start:end]` is the span's text.
+smallest over all of its tokens (`tagger.apply.review`). Offsets count characters of the
+document text, end exclusive: `text[start:end]` is the span's text.
 
 A sentence longer than the tokenizer's `max_sentence_tokens` makes its document a `Skipped` record.
 """
