@@ -116,7 +116,7 @@ class ModelConfig:
     scheme: SchemeName = SchemeName["BIOES"]
     lowercase: bool = False
     digits_to_zero: bool = True
-    min_word_count: int = 1
+    min_word_count: int = 1  # rarer words are not stored in the model file (read as unknown)
     pretrained_vectors: str = ""  # word2vec/GloVe text file; empty for none
     fast_kernels: bool = True  # use torch's fused kernels where a cell has one
     # Extra input features (tagger.text.features); none by default.

@@ -6,8 +6,9 @@ tokenised and tagged in length-sorted batches across its documents, so the batch
 while memory depends on the chunk size and the longest document, not on the input size.
 
 A span's score is the smallest, over its tokens, of the probability of the label chosen there
-(see `Tagger.predict_scored_spans`). Offsets count characters of the document text, end
-exclusive: `text[start:end]` is the span's text.
+(see `Tagger.predict_sentences`); a document's certainty, which the review flag reads, is the
+smallest over all of its tokens (`tagger.apply.review`). Offsets count characters of the
+document text, end exclusive: `text[start:end]` is the span's text.
 
 A sentence longer than the tokenizer's `max_sentence_tokens` makes its document a `Skipped` record.
 """
@@ -19,6 +20,7 @@ from dataclasses import dataclass
 from typing import TYPE_CHECKING, Any
 
 from tagger.apply.documents import Document, Item, Skipped
+from tagger.apply.review import least_certain
 from tagger.text.tokenizer import TextSentence, TokenizerSettings, split_sentences
 
 if TYPE_CHECKING:
@@ -64,6 +66,7 @@ class TaggedDocument:
     spans: list[TaggedSpan]  # every span found, before `min_score` filtering
     token_spans: list[list[ScoredSpan]]  # per sentence, token indices
     analysed: Analysed
+    certainty: float = 1.0  # of its least certain sentence (tagger.apply.review)
 
 
 def chunks(items: Iterable[Item], chunk_chars: int, stop_at_skip: bool) -> Iterator[list[Item]]:
@@ -147,7 +150,7 @@ class Engine:
                 if a.doc.sentence is None:
                     raise self.tagger.features.refusal(a.doc.source)  # type: ignore[union-attr]
             rows = [a.doc.sentence.rows for a in analysed]  # type: ignore[union-attr]
-        scored = iter(self.tagger.predict_scored_spans(token_lists, self.batch_size, rows=rows))
+        scored = iter(self.tagger.predict_sentences(token_lists, self.batch_size, rows=rows))
         results: list[TaggedDocument | Skipped] = []
         for entry in prepared:
             if isinstance(entry, Skipped):
@@ -155,12 +158,13 @@ class Engine:
                 continue
             text = entry.doc.text
             spans: list[TaggedSpan] = []
-            per_sentence = []
-            for starts, ends in zip(entry.starts, entry.ends, strict=True):
-                found = next(scored)
-                per_sentence.append(found)
-                for label, first, last, score in found:
+            sentences = [next(scored) for _ in entry.starts]
+            for starts, ends, found in zip(entry.starts, entry.ends, sentences, strict=True):
+                for label, first, last, score in found.spans:
                     start, end = starts[first], ends[last - 1]
                     spans.append(TaggedSpan(start, end, label, text[start:end], score))
-            results.append(TaggedDocument(entry.doc, spans, per_sentence, entry))
+            per_sentence = [found.spans for found in sentences]
+            results.append(
+                TaggedDocument(entry.doc, spans, per_sentence, entry, least_certain(sentences))
+            )
         return results

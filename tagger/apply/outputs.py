@@ -9,8 +9,9 @@
     table    tab-separated spans with a header row: document, start, end, label, score, text;
              backslash, TAB, CR and LF in a field are written as \\\\ \\t \\r \\n
 
-Spans below `min_score` are left out; a document is flagged for review when any span the model
-found in it, left out or kept, scores below `review_below`.
+Spans below `min_score` are left out; a document is flagged for review when the model is less
+sure than `review_below` of the label it chose at any of its tokens, in a span (left out or kept)
+or outside one (`tagger.apply.review`).
 """
 
 from __future__ import annotations
@@ -21,6 +22,7 @@ from typing import Any
 
 from tagger.apply.documents import Skipped
 from tagger.apply.engine import SCORE_DIGITS, TaggedDocument
+from tagger.apply.review import needs_review
 from tagger.data.corpus import Sentence, format_sentence
 from tagger.data.schemes import spans_to_tags
 from tagger.errors import DataError
@@ -79,7 +81,7 @@ class DocumentFormatter:
             result.sentences += len(entry.analysed.tokens)
             result.tokens += sum(len(t) for t in entry.analysed.tokens)
             result.spans += len(kept)
-            result.review += any(s.score < self.review_below for s in entry.spans)
+            result.review += needs_review(entry.certainty, self.review_below)
         result.text = "".join(parts)
         return result
 
@@ -92,7 +94,7 @@ class DocumentFormatter:
             )
             record.update(doc.record if doc.record is not None else {"text": doc.text})
             record["spans"] = [s.to_dict() for s in kept]
-            record["review"] = any(s.score < self.review_below for s in entry.spans)
+            record["review"] = needs_review(entry.certainty, self.review_below)
             return json.dumps(record, ensure_ascii=False) + "\n"
         if self.output_format == "table":
             name = table_field(doc.id)

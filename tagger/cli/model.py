@@ -171,6 +171,12 @@ def train(
     say(
         f"best dev F1 {100 * result.best_dev['micro']['f1']:.2f} at epoch {result.best_epoch}; model: {result.model_path}"
     )
+    if result.model_path.exists():
+        from tagger.network.modelfile import load_model_file
+        from tagger.reports.notes import stored_text_note
+
+        with domain_errors():
+            say(stored_text_note(load_model_file(result.model_path)[1]))
 
 
 @app.command()
@@ -184,18 +190,48 @@ def evaluate(
         Path | None,
         typer.Option("--predictions", dir_okay=False, help="Write the predicted column file here."),
     ] = None,
+    side_by_side: Annotated[
+        Path | None,
+        typer.Option(
+            "--side-by-side",
+            dir_okay=False,
+            help="Write token, gold label, tagged label and same/DIFF here, one token a line.",
+        ),
+    ] = None,
+    examples: Annotated[
+        int,
+        typer.Option(min=0, help="Example sentences shown per kind of error (0: none)."),
+    ] = 3,
+    resamples: Annotated[
+        int,
+        typer.Option(
+            min=0,
+            help="Seeded draws of the sentences for the interval printed beside F1 (0: none).",
+        ),
+    ] = 1000,
+    review_below: Annotated[
+        float,
+        typer.Option(
+            min=0.0,
+            max=1.0,
+            help="Count the sentences tag would flag for review at this threshold (0 to 1).",
+        ),
+    ] = 0.8,
     token_column: GivenTokenColumn = None,
     label_column: GivenLabelColumn = None,
     delimiter: GivenDelimiter = None,
     encoding: Encoding = "utf-8",
     as_json: AsJson = False,
 ) -> None:
-    """Tag gold files with a model and report span scores per type, with the error breakdown.
+    """Tag gold files with a model and report span scores per type, with the error breakdown,
+    the types wrong-type spans got, example sentences, an interval for F1, how often scores are
+    right and what the review flag catches.
 
     Gold files are read in the column layout of the model's training files unless the column
     options say otherwise."""
     from tagger.apply.evaluate import evaluate_files
     from tagger.apply.tagger import Tagger
+    from tagger.reports.notes import CAUTION
     from tagger.reports.scores import format_evaluation
 
     readable_inputs(("FILES", files))
@@ -209,11 +245,21 @@ def evaluate(
     with domain_errors(column_files=files):
         tagger = Tagger.load(model)
         fmt = _gold_layout(tagger.column_layout, given, token_column, label_column, delimiter)
-        result = evaluate_files(tagger, files, fmt, predictions)
+        result = evaluate_files(
+            tagger,
+            files,
+            fmt,
+            predictions,
+            side_by_side=side_by_side,
+            examples=examples,
+            resamples=resamples,
+            review_below=review_below,
+        )
     if as_json:
         print_json(result)
     else:
         print(format_evaluation(result), end="")
+    say(CAUTION)
 
 
 def _gold_layout(

@@ -20,6 +20,7 @@ from tagger.cli.common import (
 from tagger.cli.progress import TaggingProgress
 from tagger.data.scheme_rules import SchemeName
 from tagger.errors import TaggerError
+from tagger.reports.notes import CAUTION
 
 
 @app.command()
@@ -57,7 +58,10 @@ def tag(
     min_score: Annotated[float, typer.Option(help="Drop spans scoring below this (0 to 1).")] = 0.0,
     review_below: Annotated[
         float,
-        typer.Option(help="Flag documents holding a span that scores below this (0 to 1)."),
+        typer.Option(
+            help="Flag documents where the model gives any token's label (in a span or not) "
+            "a probability below this (0 to 1)."
+        ),
     ] = 0.8,
     on_error: Annotated[
         str,
@@ -118,6 +122,7 @@ def tag(
     )
     for item in summary.skipped:
         say(f"  skipped {item}")
+    say(CAUTION)
 
 
 @app.command()

@@ -7,13 +7,14 @@ A run folder holds everything a run leaves behind:
                          with train.weight_average, the averaged weights
     checkpoint.tagger    the state after the last finished epoch, for --resume (checkpoint.py)
     history.json / .csv  one row per epoch
-    metrics.json         the best epoch's dev scores and how the run ended
+    metrics.json         the best epoch's dev scores, how the run ended and the calibration
 
 `train` reads the files the config names; `train_on_sentences` takes sentences from memory. Both
 start in a run folder made, held and checked as `run_folder` says (a finished run is replaced only
 with overwrite, a failed start leaves nothing behind), then run the same loop: epochs of
 `train_step` over seeded batches, each epoch scored on dev, then the schedule, the stopping rules
-and the checkpoint.
+and the checkpoint. When the epochs end, the saved model's temperature is fitted on dev
+(`tagger.apply.calibration`), so that its scores are calibrated.
 """
 
 from __future__ import annotations
@@ -27,6 +28,7 @@ from typing import Any
 import torch
 from torch.optim.lr_scheduler import LRScheduler
 
+from tagger.apply.calibration import calibrate_model_file
 from tagger.apply.tagger import COLUMN_LAYOUT_KEY, Tagger
 from tagger.config import Config
 from tagger.data.corpus import Sentence
@@ -177,6 +179,15 @@ def _train(
             stop_reason = row["stop"]
             break
 
+    calibration = None
+    if state.best_epoch and (run_dir / MODEL_NAME).exists():
+        calibration = calibrate_model_file(run_dir / MODEL_NAME, data.dev, data.dev_spans)
+        if calibration is not None:
+            report(
+                events.note(
+                    f"span scores calibrated on dev: temperature {calibration.temperature:.2f}"
+                )
+            )
     write_metrics(
         run_dir,
         {
@@ -187,6 +198,7 @@ def _train(
             "input_scheme": data.input_scheme,
             "notes": data.notes,
             "warnings": warnings,
+            "calibration": None if calibration is None else calibration.to_dict(),
         },
     )
     return TrainResult(
