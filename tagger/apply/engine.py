@@ -10,8 +10,8 @@ A span's score is the smallest, over its tokens, of the probability of the label
 exclusive: `text[start:end]` is the span's text.
 
 A sentence longer than the tokenizer's `max_sentence_tokens` makes its document a `Skipped` record
-(for a piece of a plain-text document, its whole document: see `tagger.apply.outputs`). A piece's
-spans are shifted by its offset, so they index the whole document.
+(for a piece of a plain-text document, its whole document: see `tagger.apply.writing`). A
+piece's spans are shifted by its offset, so they index the whole document.
 """
 
 from __future__ import annotations
