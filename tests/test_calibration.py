@@ -198,9 +198,10 @@ def _tagged(certainty: float) -> TaggedDocument:
 def test_a_document_sure_of_its_spans_but_not_of_a_word_outside_them_is_flagged() -> None:
     formatter = DocumentFormatter("jsonl", "IOB2", 0.0, 0.8)
     unsure, sure = _tagged(0.55), _tagged(0.9)
-    assert json.loads(formatter.format(unsure))["review"] is True
-    assert json.loads(formatter.format(sure))["review"] is False
-    assert formatter.chunk([unsure, sure, unsure]).review == 2
+    assert json.loads(formatter.output(unsure).text)["review"] is True
+    assert json.loads(formatter.output(sure).text)["review"] is False
+    outputs = formatter.chunk([unsure, sure, unsure]).entries
+    assert sum(output.review for output in outputs) == 2
 
 
 # --- evaluation for error analysis ----------------------------------------------------------

@@ -18,9 +18,27 @@ from tagger.cli.common import (
     usable_output,
 )
 from tagger.cli.progress import TaggingProgress
+from tagger.data.io import is_stdio
 from tagger.data.scheme_rules import SchemeName
 from tagger.errors import TaggerError
 from tagger.reports.notes import CAUTION
+
+_TEXT_FORMATS = (
+    "text (a file is one document), sentence-lines (as text, and a line break ends a sentence), "
+    "lines (every line is a document, its id FILE:LINE)"
+)
+
+
+def _document_inputs(paths: list[Path] | None) -> list[str]:
+    """The input names, a folder or an unexpanded wildcard refused plainly (exit 2)."""
+    from tagger.apply.documents import unopenable
+
+    for path in paths or []:
+        if not is_stdio(path):
+            problem = unopenable(path, "")
+            if problem:
+                raise typer.BadParameter(f"{str(path)!r}: {problem}", param_hint="'INPUTS'")
+    return input_names(paths)
 
 
 @app.command()
@@ -36,7 +54,7 @@ def tag(
     input_format: Annotated[
         str,
         typer.Option(
-            help="auto, text, jsonl or columns. auto reads .jsonl/.json as jsonl, "
+            help=f"auto, {_TEXT_FORMATS}, jsonl or columns. auto reads .jsonl/.json as jsonl, "
             ".conll/.bio/.iob/.tsv as columns, anything else (and stdin) as text."
         ),
     ] = "auto",
@@ -87,7 +105,7 @@ def tag(
     """Tag new documents with a model; spans point into the original text by character offsets."""
     from tagger.apply.tagging import TagOptions, tag_files
 
-    names = input_names(inputs)
+    names = _document_inputs(inputs)
     try:
         options = TagOptions(
             input_format=input_format,
@@ -125,11 +143,14 @@ def tag(
     say(CAUTION)
 
 
+_TOKENIZE_FORMATS = ("auto", "text", "sentence-lines", "lines", "jsonl")
+
+
 @app.command()
 def tokenize(
     inputs: Annotated[
         list[Path] | None,
-        typer.Argument(help="Text or jsonl files; '-' or none reads standard input."),
+        typer.Argument(help="Text, lines or jsonl files; '-' or none reads standard input."),
     ] = None,
     model: Annotated[
         Path | None,
@@ -138,7 +159,7 @@ def tokenize(
         ),
     ] = None,
     input_format: Annotated[
-        str, typer.Option(help="auto (from the file name), text or jsonl.")
+        str, typer.Option(help=f"auto (from the file name), {_TEXT_FORMATS} or jsonl.")
     ] = "auto",
     out: Annotated[
         Path, typer.Option("--out", "-o", dir_okay=False, help="Output file ('-' for stdout).")
@@ -148,10 +169,11 @@ def tokenize(
     from tagger.apply.tokenizing import tokenize_files
     from tagger.text.tokenizer import TokenizerSettings
 
-    names = input_names(inputs)
-    if input_format not in ("auto", "text", "jsonl"):
+    names = _document_inputs(inputs)
+    if input_format not in _TOKENIZE_FORMATS:
         raise typer.BadParameter(
-            f"must be auto, text or jsonl, not {input_format!r}", param_hint="--input-format"
+            f"must be {', '.join(_TOKENIZE_FORMATS[:-1])} or jsonl, not {input_format!r}",
+            param_hint="--input-format",
         )
     usable_output(out, [model, *(names or ["-"])])
     with domain_errors():

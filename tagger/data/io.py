@@ -17,7 +17,8 @@ The rules:
 * A file that cannot be opened raises DataError naming the file; `check_readable` finds that out
   before any work starts.
 
-Input is read line by line, never held whole. Writing is `tagger.data.atomic`.
+Input is read line by line, never held whole (plain text, whose lines may be of any length, in
+reads of a bounded size: `decoded_blocks`). Writing is `tagger.data.atomic`.
 """
 
 from __future__ import annotations
@@ -44,6 +45,7 @@ UTF8 = "utf-8"
 SHOWN_CHARS = 60
 SHOWN_BYTES = 8  # of the bytes that are not UTF-8
 CONTEXT_BYTES = 16  # on either side of them
+BLOCK_BYTES = 1 << 16  # bytes read at a time by `decoded_blocks`
 
 
 def is_stdio(path: str | Path) -> bool:
@@ -175,6 +177,49 @@ def decode_text(data: bytes, name: str) -> str:
         for _ in decoded_lines(io.BytesIO(data), name):
             pass
         raise
+
+
+def decoded_blocks(
+    stream: BinaryIO, name: str, block_bytes: int = BLOCK_BYTES
+) -> Iterator[tuple[int, str]]:
+    """(line number where it starts, text) for each read of at most `block_bytes` bytes of a
+    byte stream, decoded: joined, the texts are the whole input with its line endings as they
+    are, only the byte-order mark at its very start removed. A multi-byte character cut by a
+    read arrives whole with the next one. Memory stays at one read however long a line is.
+
+    Raises DataError (file, line, the bytes, their byte offset and the bytes around them on their
+    line) at the first bytes that are not UTF-8; the text before them arrives first.
+    """
+    decoder = codecs.getincrementaldecoder("utf-8")()
+    offset = 0  # byte offset of the next read in the input
+    line = 1  # line of the next read's first byte
+    at_start = True
+    while True:
+        # The first read is long enough to hold a whole byte-order mark.
+        data = stream.read(max(block_bytes, len(UTF8_BOM)) if at_start else block_bytes)
+        finished = not data
+        if at_start:
+            at_start = False
+            if data.startswith(UTF8_BOM):
+                data, offset = data[len(UTF8_BOM) :], len(UTF8_BOM)
+        pending = decoder.getstate()[0]  # the start of a character cut by the previous read
+        try:
+            text = decoder.decode(data, final=finished)
+        except UnicodeDecodeError as error:
+            held = pending + data
+            start = offset - len(pending)
+            first = held.rfind(b"\n", 0, error.start) + 1
+            last = held.find(b"\n", error.end)
+            text_line = held[first : last if last >= 0 else len(held)].removesuffix(b"\r")
+            message = undecodable(
+                text_line, error.start - first, error.end - first, error.reason, start + first
+            )
+            raise DataError(message, name, line + held.count(b"\n", 0, error.start)) from None
+        if finished:
+            return
+        yield line, text
+        offset += len(data)
+        line += data.count(b"\n")
 
 
 def undecodable(
