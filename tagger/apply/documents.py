@@ -34,6 +34,7 @@ import json
 from collections import deque
 from collections.abc import Iterator, Sequence
 from dataclasses import dataclass
+from enum import StrEnum
 from pathlib import Path
 from typing import Any, BinaryIO
 
@@ -45,7 +46,19 @@ from tagger.data.io import STDIO, decode_line, input_name, is_stdio, open_input,
 from tagger.errors import ConfigError, DataError
 from tagger.text.tokenizer import TokenizerSettings
 
-INPUT_FORMATS = ("text", "sentence-lines", "lines", "jsonl", "columns")
+
+class InputFormat(StrEnum):
+    """How an input is read (see the module docstring); auto chooses by the file's name."""
+
+    AUTO = "auto"
+    TEXT = "text"
+    SENTENCE_LINES = "sentence-lines"
+    LINES = "lines"
+    JSONL = "jsonl"
+    COLUMNS = "columns"
+
+
+INPUT_FORMATS: tuple[str, ...] = tuple(f.value for f in InputFormat if f is not InputFormat.AUTO)
 PIECE_CHARS = 200_000  # characters of plain text read at a time
 MAX_JSON_DEPTH = 100  # deepest nesting of arrays and objects a JSON Lines record may have
 

@@ -22,6 +22,7 @@ from __future__ import annotations
 
 import json
 from dataclasses import dataclass, field
+from enum import StrEnum
 from typing import Any
 
 from tagger.apply.documents import Part, Skipped
@@ -31,7 +32,16 @@ from tagger.data.corpus import Sentence, format_sentence
 from tagger.data.schemes import spans_to_tags
 from tagger.errors import DataError
 
-OUTPUT_FORMATS = ("jsonl", "columns", "table")
+
+class OutputFormat(StrEnum):
+    """How tagged documents are written (see the module docstring)."""
+
+    JSONL = "jsonl"
+    COLUMNS = "columns"
+    TABLE = "table"
+
+
+OUTPUT_FORMATS: tuple[str, ...] = tuple(f.value for f in OutputFormat)
 TABLE_HEADER = "document\tstart\tend\tlabel\tscore\ttext\n"
 
 _TABLE_ESCAPES = str.maketrans({"\\": "\\\\", "\t": "\\t", "\n": "\\n", "\r": "\\r"})

@@ -25,6 +25,7 @@ import time
 from collections.abc import Callable, Iterator, Sequence
 from contextlib import closing
 from dataclasses import dataclass, field, replace
+from enum import StrEnum
 from pathlib import Path
 
 from tagger.apply.documents import INPUT_FORMATS, STDIO, Item, detect_input_format, read_documents
@@ -37,7 +38,15 @@ from tagger.data.atomic import atomic_output
 from tagger.data.schemes import normalise_scheme_name
 from tagger.errors import ConfigError
 
-ON_ERROR = ("stop", "skip")
+
+class OnError(StrEnum):
+    """What a bad input item does: stop the run at it, or skip it and go on."""
+
+    STOP = "stop"
+    SKIP = "skip"
+
+
+ON_ERROR: tuple[str, ...] = tuple(f.value for f in OnError)
 
 
 @dataclass(frozen=True)

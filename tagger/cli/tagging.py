@@ -7,6 +7,9 @@ from typing import Annotated
 
 import typer
 
+from tagger.apply.documents import InputFormat
+from tagger.apply.outputs import OutputFormat
+from tagger.apply.tagging import OnError
 from tagger.cli.common import (
     ModelFile,
     TokenColumn,
@@ -52,19 +55,21 @@ def tag(
         Path, typer.Option("--out", "-o", dir_okay=False, help="Output file ('-' for stdout).")
     ] = Path("-"),
     input_format: Annotated[
-        str,
+        InputFormat,
         typer.Option(
-            help=f"auto, {_TEXT_FORMATS}, jsonl or columns. auto reads .jsonl/.json as jsonl, "
-            ".conll/.bio/.iob/.tsv as columns, anything else (and stdin) as text."
+            help=f"auto reads .jsonl/.json as jsonl, .conll/.bio/.iob/.tsv as columns, anything "
+            f"else (and stdin) as text; {_TEXT_FORMATS}.",
+            case_sensitive=False,
         ),
-    ] = "auto",
+    ] = InputFormat.AUTO,
     output_format: Annotated[
-        str,
+        OutputFormat,
         typer.Option(
             help="jsonl (a record per document), columns (token and label per line) or "
-            "table (tab-separated spans with a header)."
+            "table (tab-separated spans with a header).",
+            case_sensitive=False,
         ),
-    ] = "jsonl",
+    ] = OutputFormat.JSONL,
     scheme: Annotated[
         SchemeName | None,
         typer.Option(
@@ -82,11 +87,12 @@ def tag(
         ),
     ] = 0.8,
     on_error: Annotated[
-        str,
+        OnError,
         typer.Option(
-            help="stop: exit 1 at the first bad input item; skip: go on and list each one."
+            help="stop: exit 1 at the first bad input item; skip: go on and list each one.",
+            case_sensitive=False,
         ),
-    ] = "stop",
+    ] = OnError.STOP,
     max_sentence_tokens: Annotated[
         int | None,
         typer.Option(help="Longest sentence accepted (default: the model's tokenizer setting)."),
