@@ -13,7 +13,8 @@ text has a paragraph per line and no blank line at all, so every piece is cut at
 start found by the tokenizer. The command runs in a child process at the lowest priority
 (nice 19); its peak resident memory is VmHWM of the command and its workers, sampled while it
 runs (`bench_tagging.high_water_kib`). The 500 MB run, when still going after `--time-limit`
-minutes, is stopped and recorded as unfinished, with its peak so far and the output written.
+minutes, is stopped and recorded as unfinished, with its peak so far and how much of the input
+it had read (the offset of its open input file).
 
 The machine is shared, so no speed is recorded. Results go to benchmarks/text_memory.json and .md.
 """
@@ -22,8 +23,8 @@ from __future__ import annotations
 
 import argparse
 import json
-import os
 import random
+import shutil
 import subprocess
 import sys
 import tempfile
@@ -67,8 +68,21 @@ def write_text(sentences: list[str], path: Path, target_bytes: int, style: str, 
     return paragraphs
 
 
+def input_read(pid: int, source: Path) -> int:
+    """How many bytes of `source` process `pid` has read: the offset of its open file."""
+    try:
+        for fd in Path(f"/proc/{pid}/fd").iterdir():
+            if fd.resolve() == source.resolve():
+                fdinfo = Path(f"/proc/{pid}/fdinfo/{fd.name}").read_text()
+                return int(fdinfo.split("pos:", 1)[1].split()[0])
+    except (OSError, IndexError, ValueError):
+        pass
+    return 0
+
+
 def run_tag(model: Path, source: Path, limit_seconds: float, options: list[str]) -> dict:
-    """`tagger tag` on `source` at nice 19: peak memory, whether it finished, output written."""
+    """`tagger tag` on `source` at nice 19: peak memory, whether it finished, and how much of
+    the input it had read (a document's output is held until its end, so that shows progress)."""
     out = source.with_suffix(".tagged.jsonl")
     command = ["nice", "-n", "19", sys.executable, "-m", "tagger", "tag", str(model),
                str(source), "--out", str(out), *options]  # fmt: skip
@@ -80,22 +94,21 @@ def run_tag(model: Path, source: Path, limit_seconds: float, options: list[str])
             peak_kib = max(peak_kib, high_water_kib(child.pid))
             time.sleep(0.2)
         finished = child.poll() is not None
-        written = 0
+        read = source.stat().st_size
         if not finished:
-            # The output grows in a hidden temporary file beside `out` until the run completes.
-            written = sum(p.stat().st_size for p in out.parent.glob(f".{out.name}.*"))
+            read = input_read(child.pid, source)
             child.terminate()
             child.wait()
         stderr.seek(0)
         summary = stderr.read().decode(errors="replace").strip().splitlines()
     if finished and child.returncode != 0:
         raise RuntimeError(f"tagger tag failed ({child.returncode}): {summary}")
-    if out.exists():
-        written = out.stat().st_size
-        out.unlink()
+    written = out.stat().st_size if out.exists() else 0
+    out.unlink(missing_ok=True)
     return {
         "finished": finished,
         "peak_rss_mb": round(peak_kib / 1024, 1),
+        "input_read_mb": round(read / 1e6, 1),
         "output_mb": round(written / 1e6, 1),
         "summary": summary[-1].split(" in ")[0] if finished and summary else "",
     }
@@ -113,14 +126,15 @@ def render(entry: dict) -> str:
         "- input: demo test sentences as one plain-text file; *paragraphs*: blank lines between "
         "paragraphs of 1-6 sentences; *long lines*: a paragraph per line, no blank line",
         "",
-        "| input | style | paragraphs | finished | peak MB | output MB | summary |",
-        "|---|---|---:|---|---:|---:|---|",
+        "| input | style | paragraphs | finished | input read MB | peak MB | output MB | summary |",
+        "|---|---|---:|---|---:|---:|---:|---|",
     ]
     for run in entry["runs"]:
         finished = "yes" if run["finished"] else f"no, stopped at {entry['time_limit_minutes']} min"
         lines.append(
             f"| {run['megabytes']} MB | {run['style']} | {run['paragraphs']:,} | {finished} | "
-            f"{run['peak_rss_mb']} | {run['output_mb']} | {run['summary']} |"
+            f"{run['input_read_mb']} | {run['peak_rss_mb']} | {run['output_mb']} | "
+            f"{run['summary']} |"
         )
     lines += ["", entry["verdict"], ""]
     return "\n".join(lines)
@@ -166,7 +180,7 @@ def main() -> int:
         source.unlink()
         runs.append(run)
         print(json.dumps(run), flush=True)
-    os.rmdir(folder)
+    shutil.rmtree(folder)  # a stopped run leaves its unfinished output behind
 
     finished = [r for r in runs if r["finished"] and r["style"] == "paragraphs"]
     small, large = finished[0], finished[-1]
