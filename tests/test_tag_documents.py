@@ -9,14 +9,16 @@ import random
 from pathlib import Path
 
 import pytest
-from test_tagging import _detokenised, _sentences, _write_columns
+from test_tagging import (
+    _detokenised,
+    _sentences,
+    model,  # noqa: F401 - a fixture: the same tiny tagger
+)
 from typer.testing import CliRunner
 
 from tagger import Tagger
 from tagger.cli import app
-from tagger.config import config_from_dict
 from tagger.text.tokenizer import TokenizerSettings, split_sentences
-from tagger.training.loop import train
 
 runner = CliRunner()
 GOOD = "Crew A replaced the gearbox on T-9."
@@ -27,23 +29,6 @@ def _summary_lines(stderr: str) -> list[str]:
     lines = stderr.splitlines()
     assert lines and lines[-1].startswith("caution:")
     return lines[:-1]
-
-
-@pytest.fixture(scope="module")
-def model(tmp_path_factory: pytest.TempPathFactory) -> Path:
-    """A tiny CRF tagger trained once for this module (a few seconds)."""
-    folder = tmp_path_factory.mktemp("model")
-    data = _write_columns(folder / "train.txt", _sentences(1, 60))
-    config = config_from_dict(
-        {
-            "data": {"train": str(data), "dev": str(data)},
-            "model": {"hidden_size": 16, "layers": 1, "word_dim": 16, "char_dim": 8,
-                      "char_features": 12, "dropout": 0.0},
-            "train": {"epochs": 6, "batch_size": 8, "learning_rate": 0.02, "threads": 1,
-                      "lr_schedule": "constant", "unknown_replace": 0.0},
-        }
-    )  # fmt: skip
-    return train(config, folder / "run").model_path
 
 
 def _run(*args: str, input: str | bytes | None = None):  # noqa: A002 - CliRunner's name
