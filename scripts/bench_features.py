@@ -261,7 +261,7 @@ def main() -> int:
         for name in args.variants:
             config = variant_config(name, args.threads, args.minutes)
             started = time.monotonic()
-            result = train(config, folder / name)
+            result = train(config, folder / name, overwrite=True)  # a rerun replaces its runs
             seconds = time.monotonic() - started
             tagger = Tagger.load(result.model_path)
             taggers[name] = tagger

@@ -40,7 +40,7 @@ ROOT = Path(__file__).resolve().parents[1]
 sys.path.insert(0, str(ROOT))
 sys.path.insert(0, str(ROOT / "scripts"))
 
-from benchlib import machine, matmul_gflops  # noqa: E402
+from benchlib import machine, matmul_gflops, portable_command, portable_path  # noqa: E402
 
 from tagger.apply.tagger import Tagger  # noqa: E402
 from tagger.data.corpus import read_sentences  # noqa: E402
@@ -313,9 +313,9 @@ def main() -> int:
 
     entry = {
         "machine": info,
-        "command": " ".join([Path(sys.executable).name, *sys.argv]),
+        "command": portable_command([Path(sys.executable).name, *sys.argv]),
         "model": {
-            "path": str(model_path),
+            "path": portable_path(model_path),
             "flops_per_token": flops,
             **{
                 k: getattr(tagger.config.model, k)

@@ -74,7 +74,7 @@ sys.path.insert(0, str(ROOT / "scripts"))
 
 import bench_tagging  # noqa: E402
 from bench_training import accuracy_entry, run_speed, speed_table, train_seed  # noqa: E402
-from benchlib import machine, matmul_gflops  # noqa: E402
+from benchlib import machine, matmul_gflops, portable_command, portable_path  # noqa: E402
 
 from tagger.apply.tagger import Tagger  # noqa: E402
 from tagger.config import apply_overrides, load_config  # noqa: E402
@@ -164,6 +164,7 @@ WNUT17 = Corpus(
             "from memory, approximate",
         ),
     ),
+    full_overrides=("train.max_minutes=20",),  # the config has no time budget
 )
 BC5CDR = Corpus(
     "bc5cdr",
@@ -183,6 +184,7 @@ BC5CDR = Corpus(
         )
         for entity_type, figure in (("Chemical", "about 93"), ("Disease", "about 84"))
     ),
+    full_overrides=("train.max_minutes=30",),  # the config has no time budget
 )
 CORPUS_RUNS = {c.name: c for c in (CONLL2000_POS, CONLL2000, WNUT17, BC5CDR)}
 DEMO = Corpus(
@@ -408,9 +410,13 @@ class Benchmark:
     # files ---------------------------------------------------------------------------------------
 
     def files(self, corpus: Corpus) -> tuple[list[str], Path]:
-        """Overrides naming the train/dev files of this mode, and the test file."""
+        """Overrides naming the train/dev files of this mode, and the test file (the shipped
+        configs name no data files)."""
         if not self.mode.train_sentences:
-            return [], corpus.test
+            overrides = [f"data.train={quoted(corpus.train)}"]
+            if corpus.dev is not None:
+                overrides.append(f"data.dev={quoted(corpus.dev)}")
+            return overrides, corpus.test
         folder = self.scratch / corpus.name
         if folder.exists():  # cut already
             overrides = [f"data.train={quoted(folder / 'train.txt')}"]
@@ -465,7 +471,7 @@ class Benchmark:
         _, test = self.files(corpus)
         runs = [future.result() for future in futures]
         entry = accuracy_entry(label, corpus.config, overrides, test, runs, self.started)
-        entry["test_file"] = str(corpus.test)
+        entry["test_file"] = portable_path(corpus.test)
         if self.mode.eval_sentences:
             entry["test_file"] += f" (first {self.mode.eval_sentences} sentences)"
         entry["model_paths"] = [
@@ -590,7 +596,7 @@ class Benchmark:
             "config": str(CONLL2000.config.relative_to(ROOT)),
             "base": BASE,
             "overrides": self.overrides(CONLL2000, self.variant_overrides([])),
-            "test_file": str(CONLL2000.test)
+            "test_file": portable_path(CONLL2000.test)
             + (
                 f" (first {self.mode.eval_sentences} sentences)" if self.mode.eval_sentences else ""
             ),
@@ -642,7 +648,7 @@ class Benchmark:
                 "epochs": trained["runs"][0]["epochs"],
                 "demo_test_f1_seeds": self.summarise_runs(trained)["test_f1"],
             },
-            "bench_tagging_command": " ".join(argv),
+            "bench_tagging_command": portable_command(argv),
             **tagging,
             "workers_against_processes": self.workers_against_processes(model),
         }

@@ -1,37 +1,88 @@
 """Typed, validated configuration: loaded from TOML, overridden from the command line, saved in model files.
 
-A config file has three tables, each optional, each key optional:
+A config file has four tables, each optional, each key optional:
 
-    [data]   where the annotated files are and how to read them
-    [model]  what network to build (travels inside the model file)
-    [train]  how to fit it
+    [data]       where the annotated files are and how to read them
+    [model]      what network to build (travels inside the model file)
+    [train]      how to fit it
+    [tokenizer]  how raw text is cut into tokens at tagging time (travels inside the model file)
+
+Every key with a fixed set of values is an enum owned here or by the module that owns the
+concept (schemes, delimiters, lexicon case), and the command line offers the same enums, so a new
+value is one edit.
 
 Unknown keys, wrong types and values outside the allowed set are rejected with the key's name.
 List-valued keys (e.g. `feature_columns = [1]`) are TOML arrays, held as tuples so that a config
 stays immutable; `Config.to_dict` gives them back as lists.
+
+File paths in a config file (data.train, data.dev, model.pretrained_vectors, model.lexicons) are
+relative to the config file's folder, so a config works from any directory; `load_config` makes
+them absolute. Paths given as overrides are the caller's to resolve (`resolve_paths`).
+
+A run resumed from its checkpoint may change only the keys of `RESUMABLE_KEYS`
+(`config_changes` lists what differs).
 """
 
 from __future__ import annotations
 
 import dataclasses
+import math
+import os
 import tomllib
 import typing
 from dataclasses import dataclass, field, fields, replace
+from enum import Enum, StrEnum
 from pathlib import Path
 from typing import Any
 
 import tomli_w
 
-from tagger.errors import ConfigError
+from tagger.data.column_lines import DelimiterChoice
+from tagger.data.guards import MAX_SENTENCE_TOKENS
+from tagger.data.scheme_rules import SchemeName, normalise_scheme_name
+from tagger.errors import QUOTED_CHARS, ConfigError, quoted
+from tagger.text.lexicon import LexiconCase
+from tagger.text.tokenizer import TokenizerSettings
 
-CELLS = ("rnn", "minimal", "gru", "lstm")
-OUTPUTS = ("crf", "softmax")
-CHAR_ENCODERS = ("cnn", "rnn", "none")
-OPTIMIZERS = ("adam", "sgd")
-SCHEDULES = ("constant", "exponential", "plateau")
-DELIMITERS = ("auto", "tab", "space")
-HOLDOUTS = ("random", "last")
-LEXICON_CASES = ("ignore", "exact", "smart")  # see tagger.text.lexicon
+
+class CellKind(StrEnum):
+    """The recurrent cells (tagger.network.cells)."""
+
+    RNN = "rnn"  # vanilla tanh
+    MINIMAL = "minimal"  # minimal gated unit
+    GRU = "gru"
+    LSTM = "lstm"
+
+
+class OutputLayer(StrEnum):
+    CRF = "crf"
+    SOFTMAX = "softmax"
+
+
+class CharEncoder(StrEnum):
+    CNN = "cnn"
+    RNN = "rnn"
+    NONE = "none"
+
+
+class OptimizerKind(StrEnum):
+    ADAM = "adam"
+    SGD = "sgd"
+
+
+class Schedule(StrEnum):
+    """How the learning rate moves after each epoch (tagger.training.schedule)."""
+
+    CONSTANT = "constant"
+    EXPONENTIAL = "exponential"
+    PLATEAU = "plateau"
+
+
+class Holdout(StrEnum):
+    """Which training sentences become dev when no dev file is given."""
+
+    RANDOM = "random"
+    LAST = "last"
 
 
 @dataclass(frozen=True)
@@ -39,40 +90,40 @@ class DataConfig:
     train: str = ""
     dev: str = ""
     dev_fraction: float = 0.1  # held out of train when no dev file is given
-    dev_holdout: str = (
-        "random"  # which sentences: a seeded random draw, or the last ones in the file
-    )
+    dev_holdout: Holdout = Holdout.RANDOM  # a seeded random draw, or the last ones in the file
     token_column: int = 0
     label_column: int = -1
-    delimiter: str = "auto"
+    delimiter: DelimiterChoice = DelimiterChoice.AUTO
+    encoding: str = "utf-8"  # of the train and dev files (latin-1, cp1252... for older files)
+    # Longer sentences in train, dev or evaluation files are refused (memory grows with length).
+    max_sentence_tokens: int = MAX_SENTENCE_TOKENS
 
 
 @dataclass(frozen=True)
 class ModelConfig:
-    cell: str = "lstm"
+    cell: CellKind = CellKind.LSTM
     hidden_size: int = 128  # per direction
     layers: int = 2
     bidirectional: bool = True
     word_dim: int = 100
-    char_encoder: str = "cnn"
+    char_encoder: CharEncoder = CharEncoder.CNN
     char_dim: int = 32
     char_features: int = 64  # CNN filters, or hidden units per direction of the character RNN
     char_kernel: int = 3
     dropout: float = 0.5
-    output: str = "crf"
-    scheme: str = (
-        "BIOES"  # the scheme the network learns; predictions are written in the input's scheme
-    )
+    output: OutputLayer = OutputLayer.CRF
+    # the scheme the network learns; predictions are written in the input's scheme
+    scheme: SchemeName = SchemeName["BIOES"]
     lowercase: bool = False
     digits_to_zero: bool = True
-    min_word_count: int = 1
+    min_word_count: int = 1  # rarer words are not stored in the model file (read as unknown)
     pretrained_vectors: str = ""  # word2vec/GloVe text file; empty for none
     fast_kernels: bool = True  # use torch's fused kernels where a cell has one
     # Extra input features (tagger.text.features); none by default.
     feature_columns: tuple[int, ...] = ()  # 0-based columns of the input files read as features
     feature_dim: int = 16  # embedding size of each feature column's values
     lexicons: tuple[str, ...] = ()  # lexicon files: "entry" or "entry<TAB>type" per line
-    lexicon_case: str = "ignore"  # ignore, exact, or smart (lower-case entries ignore case)
+    lexicon_case: LexiconCase = LexiconCase.IGNORE  # smart: lower-case entries ignore case
     lexicon_dim: int = 8  # embedding size of each lexicon category's match tags
     word_shape: bool = False  # read each token's shape (case, digits, punctuation, length)
     shape_dim: int = 8
@@ -82,9 +133,9 @@ class ModelConfig:
 class TrainConfig:
     epochs: int = 30
     batch_size: int = 32
-    optimizer: str = "adam"
+    optimizer: OptimizerKind = OptimizerKind.ADAM
     learning_rate: float = 0.002
-    lr_schedule: str = "exponential"
+    lr_schedule: Schedule = Schedule.EXPONENTIAL
     lr_decay: float = 0.95  # per epoch (exponential) or on each plateau (plateau)
     weight_decay: float = 0.0
     clip_norm: float = 5.0
@@ -101,13 +152,16 @@ class Config:
     data: DataConfig = field(default_factory=DataConfig)
     model: ModelConfig = field(default_factory=ModelConfig)
     train: TrainConfig = field(default_factory=TrainConfig)
+    tokenizer: TokenizerSettings = field(default_factory=TokenizerSettings)
 
     def to_dict(self) -> dict[str, dict[str, Any]]:
-        """Plain JSON-ready tables: list-valued keys come back as lists."""
-        return {
-            section: {k: list(v) if isinstance(v, tuple) else v for k, v in values.items()}
+        """Plain JSON-ready tables: list-valued keys come back as lists, choices as strings."""
+        tables = {
+            section: {k: _plain(v) for k, v in values.items()}
             for section, values in dataclasses.asdict(self).items()
         }
+        del tables["tokenizer"][_ONE_LIMIT]  # data.max_sentence_tokens holds it
+        return tables
 
     def to_toml(self) -> str:
         """The config as a TOML document that `load_config` reads back to an equal Config.
@@ -117,18 +171,19 @@ class Config:
         return tomli_w.dumps(self.to_dict())
 
 
-SECTIONS: dict[str, type] = {"data": DataConfig, "model": ModelConfig, "train": TrainConfig}
+def _plain(value: Any) -> Any:
+    if isinstance(value, tuple):
+        return list(value)
+    return value.value if isinstance(value, Enum) else value
 
-_CHOICES: dict[tuple[str, str], tuple[str, ...]] = {
-    ("model", "cell"): CELLS,
-    ("model", "output"): OUTPUTS,
-    ("model", "char_encoder"): CHAR_ENCODERS,
-    ("train", "optimizer"): OPTIMIZERS,
-    ("train", "lr_schedule"): SCHEDULES,
-    ("data", "delimiter"): DELIMITERS,
-    ("data", "dev_holdout"): HOLDOUTS,
-    ("model", "lexicon_case"): LEXICON_CASES,
+
+SECTIONS: dict[str, type] = {
+    "data": DataConfig,
+    "model": ModelConfig,
+    "train": TrainConfig,
+    "tokenizer": TokenizerSettings,
 }
+
 _POSITIVE = {
     ("model", "hidden_size"),
     ("model", "layers"),
@@ -140,6 +195,7 @@ _POSITIVE = {
     ("model", "feature_dim"),
     ("model", "lexicon_dim"),
     ("model", "shape_dim"),
+    ("data", "max_sentence_tokens"),
 }
 _FRACTIONS = {
     ("model", "dropout"),
@@ -147,6 +203,11 @@ _FRACTIONS = {
     ("train", "weight_average"),
     ("data", "dev_fraction"),
 }
+
+
+def _cut(name: str) -> str:
+    """A key or table name from the file, unquoted, cut as `quoted` cuts what it quotes."""
+    return name if len(name) <= QUOTED_CHARS else name[: QUOTED_CHARS - 3] + "..."
 
 
 def _is_int(value: Any) -> bool:
@@ -160,7 +221,7 @@ def _coerce(section: str, name: str, expected: Any, value: Any) -> Any:
         item = typing.get_args(expected)[0]
         check = _is_int if item is int else lambda v: isinstance(v, item)
         if not isinstance(value, list | tuple) or not all(check(v) for v in value):
-            raise ConfigError(f"{key} must be a list of {item.__name__}, got {value!r}")
+            raise ConfigError(f"{key} must be a list of {item.__name__}, got {quoted(value)}")
         return tuple(value)
     if expected is bool:
         ok = isinstance(value, bool)
@@ -169,18 +230,36 @@ def _coerce(section: str, name: str, expected: Any, value: Any) -> Any:
     elif expected is float:
         ok = isinstance(value, int | float) and not isinstance(value, bool)
         value = float(value) if ok else value
+    elif isinstance(expected, type) and issubclass(expected, Enum):
+        return _choice(key, expected, value)
     else:
         ok = isinstance(value, expected)
     if not ok:
-        raise ConfigError(f"{key} must be {expected.__name__}, got {value!r}")
+        raise ConfigError(f"{key} must be {expected.__name__}, got {quoted(value)}")
     return value
+
+
+def _choice(key: str, kind: type[Enum], value: Any) -> Enum:
+    """A value of a fixed set, read from its string; scheme names also by alias and any case."""
+    if kind is SchemeName and isinstance(value, str):
+        try:
+            return SchemeName(normalise_scheme_name(value))
+        except ConfigError as error:
+            raise ConfigError(f"{key}: {error}") from None
+    try:
+        return kind(value)
+    except ValueError:
+        allowed = ", ".join(str(member.value) for member in kind)  # type: ignore[attr-defined]
+        raise ConfigError(f"{key} must be one of {allowed}; got {quoted(value)}") from None
 
 
 def _validate(section: str, name: str, value: Any) -> None:
     key = f"{section}.{name}"
-    choices = _CHOICES.get((section, name))
-    if choices and value not in choices:
-        raise ConfigError(f"{key} must be one of {', '.join(choices)}; got {value!r}")
+    # NaN passes every comparison below; only a time budget may be infinite (no budget).
+    if isinstance(value, float) and not (
+        math.isfinite(value) or (name == "max_minutes" and value == math.inf)
+    ):
+        raise ConfigError(f"{key} must be a finite number; got {value!r}")
     if (section, name) in _POSITIVE and value < 1:
         raise ConfigError(f"{key} must be at least 1; got {value!r}")
     if (section, name) in _FRACTIONS and not 0.0 <= value < 1.0:
@@ -199,21 +278,34 @@ def _validate(section: str, name: str, value: Any) -> None:
             raise ConfigError(f"{key} lists a column twice: {list(value)}")
     if (section, name) == ("model", "lexicons") and not all(v.strip() for v in value):
         raise ConfigError(f"{key} must hold file paths, not empty strings; got {list(value)}")
-    if (section, name) == ("model", "scheme"):
-        from tagger.data.schemes import normalise_scheme_name
+    if (section, name) == ("data", "encoding"):
+        from tagger.data.io import checked_encoding
 
-        normalise_scheme_name(value)
+        try:
+            checked_encoding(value)
+        except ConfigError as error:
+            raise ConfigError(f"{key}: {error}") from None
+
+
+# One sentence limit: the tokenizer's is data.max_sentence_tokens, which also bounds the annotated
+# sentences training and evaluation read (tagger.training.setup puts it into the model).
+_ONE_LIMIT = "max_sentence_tokens"
 
 
 def _section(section: str, values: dict[str, Any], base: Any) -> Any:
     cls = SECTIONS[section]
+    if section == "tokenizer" and _ONE_LIMIT in values:
+        raise ConfigError(
+            f"tokenizer.{_ONE_LIMIT}: the sentence limit is data.{_ONE_LIMIT}, which bounds "
+            "annotated sentences and where tagging cuts raw text alike"
+        )
     hints = typing.get_type_hints(cls)
     known = {f.name for f in fields(cls)}
     changes = {}
     for name, value in values.items():
         if name not in known:
             raise ConfigError(
-                f"unknown key {section}.{name}; known keys: {', '.join(sorted(known))}"
+                f"unknown key {section}.{_cut(name)}; known keys: {', '.join(sorted(known))}"
             )
         value = _coerce(section, name, hints[name], value)
         _validate(section, name, value)
@@ -226,11 +318,53 @@ def config_from_dict(raw: dict[str, Any], base: Config | None = None) -> Config:
     config = base or Config()
     for section, values in raw.items():
         if section not in SECTIONS:
-            raise ConfigError(f"unknown table [{section}]; known tables: data, model, train")
+            raise ConfigError(
+                f"unknown table [{_cut(section)}]; known tables: {', '.join(SECTIONS)}"
+            )
         if not isinstance(values, dict):
             raise ConfigError(f"[{section}] must be a table of keys")
         config = replace(config, **{section: _section(section, values, getattr(config, section))})
     return config
+
+
+# Keys a resumed run may change: they decide when the run stops and how many threads it uses,
+# never what the network is or what it learns from.
+RESUMABLE_KEYS = ("train.epochs", "train.patience", "train.max_minutes", "train.threads")
+
+
+@dataclass(frozen=True)
+class Change:
+    """One key whose value differs between a saved config and the current one."""
+
+    key: str  # "section.name"
+    saved: Any
+    current: Any
+
+    def __str__(self) -> str:
+        return f"{self.key} {_shown(self.saved)} -> {_shown(self.current)}"
+
+
+def _shown(value: Any) -> str:
+    if isinstance(value, str | list):
+        return quoted(value)
+    return str(value)
+
+
+def config_changes(saved: dict[str, Any] | None, config: Config) -> list[Change]:
+    """The keys whose values differ between a config saved as a dict (in a checkpoint) and
+    `config`, in table order; keys added since it was saved count as their defaults.
+
+    Raises ConfigError when the saved config is missing or no longer valid."""
+    if saved is None:
+        raise ConfigError("no config was saved with it")
+    before = config_from_dict(saved).to_dict()
+    now = config.to_dict()
+    return [
+        Change(f"{section}.{name}", before[section][name], value)
+        for section, values in now.items()
+        for name, value in values.items()
+        if before[section][name] != value
+    ]
 
 
 def same_config(saved: dict[str, Any] | None, config: Config) -> bool:
@@ -242,8 +376,31 @@ def same_config(saved: dict[str, Any] | None, config: Config) -> bool:
         return False
 
 
+def resolve_paths(config: Config, folder: str | Path) -> Config:
+    """The config with every relative file path (data.train, data.dev, model.pretrained_vectors,
+    model.lexicons) taken as relative to `folder` and made absolute; empty values and "-"
+    (standard input) stay as they are."""
+
+    def resolve(value: str) -> str:
+        if not value or value == "-" or os.path.isabs(value):
+            return value
+        return os.path.abspath(os.path.join(folder, value))
+
+    data, model = config.data, config.model
+    return replace(
+        config,
+        data=replace(data, train=resolve(data.train), dev=resolve(data.dev)),
+        model=replace(
+            model,
+            pretrained_vectors=resolve(model.pretrained_vectors),
+            lexicons=tuple(resolve(path) for path in model.lexicons),
+        ),
+    )
+
+
 def load_config(path: str | Path | None) -> Config:
-    """Read a TOML config file; None gives the defaults."""
+    """Read a TOML config file; None gives the defaults. Relative file paths in it are taken
+    from the config file's folder (`resolve_paths`)."""
     if path is None:
         return Config()
     try:
@@ -254,9 +411,10 @@ def load_config(path: str | Path | None) -> Config:
     except tomllib.TOMLDecodeError as error:
         raise ConfigError(f"{path}: not valid TOML ({error})") from None
     try:
-        return config_from_dict(raw)
+        config = config_from_dict(raw)
     except ConfigError as error:
         raise ConfigError(f"{path}: {error}") from None
+    return resolve_paths(config, Path(path).parent)
 
 
 def parse_override(text: str) -> tuple[str, str, Any]:
@@ -265,7 +423,7 @@ def parse_override(text: str) -> tuple[str, str, Any]:
     section, dot, name = key.strip().partition(".")
     if not sep or not dot:
         raise ConfigError(
-            f"override {text!r} must look like section.key=value, e.g. model.cell=gru"
+            f"override {quoted(text)} must look like section.key=value, e.g. model.cell=gru"
         )
     try:
         value = tomllib.loads(f"v = {value_text.strip()}")["v"]

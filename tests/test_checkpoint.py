@@ -49,7 +49,10 @@ def test_a_resumed_run_counts_the_time_used_before_it_was_interrupted(
     whole = train(config, tmp_path / "whole", progress=progress)
     # 25, 50, 75 seconds: the minute is used up after epoch 3.
     assert [row["epoch"] for row in whole.history] == [1, 2, 3]
-    assert whole.stop_reason == "time budget of train.max_minutes=1.0 used"
+    assert whole.stop_reason == (
+        "time budget of train.max_minutes=1.0 used; dev F1 was still improving (best at the last "
+        "epoch, 3), so more epochs may do better: raise or remove train.max_minutes"
+    )
 
     with pytest.raises(KeyboardInterrupt):
         train(config, tmp_path / "cut", progress=functools.partial(progress, kill_at=3))

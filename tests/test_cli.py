@@ -216,9 +216,9 @@ def test_check_reads_a_lexicon_from_stdin(tmp_path: Path) -> None:
 @pytest.mark.parametrize(
     ("args", "second"),
     [
-        (["score", "-", "-"], "'predicted'"),
-        (["check", "-", "-"], "'files'"),
-        (["check", "-", "--lexicon", "-"], "'files'"),
+        (["score", "-", "-"], "'PREDICTED'"),
+        (["check", "-", "-"], "'FILES'"),
+        (["check", "-", "--lexicon", "-"], "'FILES'"),
     ],
 )
 def test_stdin_can_be_named_only_once(args: list[str], second: str) -> None:
@@ -230,11 +230,11 @@ def test_stdin_can_be_named_only_once(args: list[str], second: str) -> None:
 @pytest.mark.parametrize(
     ("command", "argument"),
     [
-        (["score", "{}", "{gold}"], "'gold'"),
-        (["score", "{gold}", "{}"], "'predicted'"),
-        (["check", "{gold}", "{}"], "'files'"),
+        (["score", "{}", "{gold}"], "'GOLD'"),
+        (["score", "{gold}", "{}"], "'PREDICTED'"),
+        (["check", "{gold}", "{}"], "'FILES'"),
         (["check", "{gold}", "--lexicon", "{}"], "'--lexicon'"),
-        (["convert", "{}", "out.txt", "--to", "IOB2"], "'source'"),
+        (["convert", "{}", "out.txt", "--to", "IOB2"], "'SOURCE'"),
     ],
 )
 @pytest.mark.parametrize("kind", ["missing", "folder"])
@@ -255,7 +255,7 @@ def test_evaluate_refuses_a_missing_gold_file_before_loading_the_model(tmp_path:
     model = _write(tmp_path / "m.tagger", "not a model")
     result = runner.invoke(app, ["evaluate", str(model), str(tmp_path / "absent.txt")])
     assert result.exit_code == 2
-    assert "'files'" in result.stderr and "does not exist" in result.stderr
+    assert "'FILES'" in result.stderr and "does not exist" in result.stderr
 
 
 # --- version and help ----------------------------------------------------------------------------
@@ -286,8 +286,240 @@ def test_every_positional_argument_has_a_description_in_help() -> None:
                 continue
             text = _words(param.help or "")
             assert text, f"{name} {param.name}: no help text"
-            assert re.search(rf"\b{param.name}\b", shown), f"{name} help lacks {param.name}"
+            shown_name = param.name.upper()  # as the usage line and the errors name it
+            assert re.search(rf"\b{shown_name}\b", shown), f"{name} help lacks {shown_name}"
             assert text in shown, f"{name} help lacks the description of {param.name}"
             described.append(f"{name} {param.name}")
     assert {"score gold", "score predicted", "convert source", "convert target"} <= set(described)
     assert {"evaluate model", "evaluate files", "check files", "tag model"} <= set(described)
+
+
+# --- outputs: never an input, checked before work, one line when writing fails --------------------
+
+TEXT = "Crew swapped the pitch bearing on T-14. Oil leak at T-3.\n"
+
+
+def _output_commands(model: Path, gold: Path, text: Path) -> dict[str, tuple[list[str], Path]]:
+    """Each command that writes a file: its arguments with OUT where the output goes, and the
+    input it reads (besides the model)."""
+    return {
+        "convert": (["convert", str(gold), "OUT", "--to", "BIOES"], gold),
+        "tag": (["tag", str(model), str(text), "--out", "OUT"], text),
+        "tokenize": (["tokenize", str(text), "--out", "OUT"], text),
+        "evaluate": (["evaluate", str(model), str(gold), "--predictions", "OUT"], gold),
+    }
+
+
+def _one_error_line(stderr: str) -> str:
+    assert stderr.count("\n") == 1, stderr  # one line, no traceback
+    assert stderr.startswith("tagger: error: "), stderr
+    return stderr.strip()
+
+
+@pytest.mark.slow
+@pytest.mark.parametrize("command", ["convert", "tag", "tokenize", "evaluate"])
+@pytest.mark.parametrize(
+    "problem", ["the input", "the model", "no folder", "read-only", "disk full"]
+)
+def test_output_problems_are_one_line_and_exit_1(
+    trained: tuple[Path, Path],
+    tmp_path: Path,
+    monkeypatch: pytest.MonkeyPatch,
+    command: str,
+    problem: str,
+) -> None:
+    import errno
+    import os
+
+    model, gold_source = trained
+    gold = _write(tmp_path / "gold.txt", gold_source.read_text(encoding="utf-8"))
+    text = _write(tmp_path / "notes.txt", TEXT)
+    args, source = _output_commands(model, gold, text)[command]
+    if problem == "the model" and command in ("convert", "tokenize"):
+        pytest.skip(f"{command} reads no model")
+    out = {
+        "the input": source,
+        "the model": model,
+        "no folder": tmp_path / "nowhere" / "out.txt",
+    }.get(problem, tmp_path / "out.txt")
+    expected = {
+        "the input": f"it is the input {source}, which writing the output would replace",
+        "the model": f"it is the input {model}, which writing the output would replace",
+        "no folder": f"the folder {tmp_path / 'nowhere'} does not exist",
+        "read-only": f"no permission to write in the folder {tmp_path}",
+        "disk full": os.strerror(errno.ENOSPC),
+    }[problem]
+    if problem == "read-only":  # as a folder without write permission answers, root or not
+        monkeypatch.setattr(os, "access", lambda path, mode: not mode & os.W_OK)
+    if problem == "disk full":
+
+        def full(descriptor: int) -> None:
+            raise OSError(errno.ENOSPC, os.strerror(errno.ENOSPC))
+
+        monkeypatch.setattr(os, "fsync", full)
+    before = {p: p.read_bytes() for p in (gold, text, model)}
+    result = runner.invoke(app, [str(out) if part == "OUT" else part for part in args])
+    assert result.exit_code == 1, result.stderr
+    line = _one_error_line(result.stderr)
+    assert line == f"tagger: error: {out}: cannot write the file: {expected}" + (
+        "; choose another output file" if problem in ("the input", "the model") else ""
+    )
+    assert {p: p.read_bytes() for p in before} == before
+    assert not [p.name for p in tmp_path.iterdir() if p.name.endswith(".tmp")]
+    if problem in ("no folder", "read-only", "disk full"):
+        assert not out.exists()
+
+
+def test_convert_writes_into_a_fifo_and_leaves_it_a_fifo(tmp_path: Path) -> None:
+    import os
+    import stat
+
+    gold = _write(tmp_path / "gold.txt", GOLD)
+    pipe = tmp_path / "pipe"
+    os.mkfifo(pipe)
+    reader = os.open(pipe, os.O_RDONLY | os.O_NONBLOCK)
+    try:
+        result = runner.invoke(app, ["convert", str(gold), str(pipe), "--to", "BIOES"])
+        assert result.exit_code == 0, result.stderr
+        received = os.read(reader, 10_000).decode()
+    finally:
+        os.close(reader)
+    assert "S-ASSET" in received and received.count("\n\n") == 2
+    assert stat.S_ISFIFO(os.lstat(pipe).st_mode)
+
+
+def test_convert_through_a_symlink_replaces_its_target(tmp_path: Path) -> None:
+    gold = _write(tmp_path / "gold.txt", GOLD)
+    target = _write(tmp_path / "old.txt", "old\n")
+    link = tmp_path / "link.txt"
+    link.symlink_to("old.txt")
+    result = runner.invoke(app, ["convert", str(gold), str(link), "--to", "BIOES"])
+    assert result.exit_code == 0, result.stderr
+    assert link.is_symlink() and "S-ASSET" in target.read_text()
+
+
+def test_an_os_error_is_one_line_naming_the_file(
+    tmp_path: Path, monkeypatch: pytest.MonkeyPatch
+) -> None:
+    gold = _write(tmp_path / "gold.txt", GOLD)
+
+    def no_permission(*args: object, **kwargs: object) -> None:
+        raise PermissionError(13, "Permission denied", str(tmp_path / "somewhere.txt"))
+
+    monkeypatch.setattr("tagger.data.convert.convert_file", no_permission)
+    result = runner.invoke(app, ["convert", str(gold), str(tmp_path / "o.txt"), "--to", "IOB2"])
+    assert result.exit_code == 1
+    assert _one_error_line(result.stderr) == (
+        f"tagger: error: {tmp_path / 'somewhere.txt'}: Permission denied"
+    )
+
+
+# --- signals ---------------------------------------------------------------------------------------
+
+
+def test_sigterm_while_writing_removes_the_partial_output_and_exits_143(
+    tmp_path: Path, monkeypatch: pytest.MonkeyPatch
+) -> None:
+    import os
+    import signal
+
+    import tagger.data.convert as converting
+
+    gold = _write(tmp_path / "gold.txt", GOLD * 3)
+    out = tmp_path / "out.txt"
+    real = converting.convert_tags
+    calls = []
+
+    def terminated_midway(*args: object) -> object:
+        calls.append(sorted(p.name for p in tmp_path.iterdir()))
+        if len(calls) == 3:  # the output is open: its temporary file is there
+            os.kill(os.getpid(), signal.SIGTERM)
+        return real(*args)
+
+    monkeypatch.setattr(converting, "convert_tags", terminated_midway)
+    handler = signal.getsignal(signal.SIGTERM)
+    result = runner.invoke(app, ["convert", str(gold), str(out), "--to", "BIOES"])
+    assert any(name.endswith(".tmp") for name in calls[-1])  # it was there when the signal came
+    assert result.exit_code == 143
+    assert result.stderr == "tagger: terminated (SIGTERM); unfinished output files were removed\n"
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["gold.txt"]
+    assert signal.getsignal(signal.SIGTERM) == handler  # the command's handler is gone again
+
+
+def test_ctrl_c_is_one_line_and_exits_130(tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
+    gold = _write(tmp_path / "gold.txt", GOLD)
+
+    def interrupted(*args: object, **kwargs: object) -> None:
+        raise KeyboardInterrupt
+
+    monkeypatch.setattr("tagger.scoring.files.score_files", interrupted)
+    result = runner.invoke(app, ["score", str(gold), str(gold)])
+    assert result.exit_code == 130
+    assert result.stderr == "tagger: interrupted; unfinished output files were removed\n"
+
+
+# --- train: run folders, values and files checked first -------------------------------------------
+
+
+def _train_args(gold: Path, out: Path, *extra: str) -> list[str]:
+    return [
+        "train", "--train", str(gold), "--dev", str(gold), "--out", str(out),
+        "--set", "model.hidden_size=8", "--set", "model.layers=1",
+        "--set", "train.epochs=1", "--set", "train.threads=1", *extra,
+    ]  # fmt: skip
+
+
+def test_train_refuses_a_finished_run_unless_overwrite(
+    trained: tuple[Path, Path], tmp_path: Path
+) -> None:
+    import shutil
+
+    model, gold = trained
+    run = tmp_path / "run"
+    shutil.copytree(model.parent, run)
+    before = (run / "model.tagger").read_bytes()
+    refused = runner.invoke(app, _train_args(gold, run))
+    assert refused.exit_code == 1
+    assert _one_error_line(refused.stderr) == (
+        f"tagger: error: {run} holds a finished run (model.tagger, checkpoint.tagger, "
+        "metrics.json): replace it with --overwrite, or train into another folder with --out"
+    )
+    assert (run / "model.tagger").read_bytes() == before
+    replaced = runner.invoke(app, _train_args(gold, run, "--overwrite"))
+    assert replaced.exit_code == 0, replaced.stderr
+    assert (run / "model.tagger").read_bytes() != before
+    assert len(json.loads((run / "history.json").read_text())) == 1
+    assert not (run / ".lock").exists()
+    both = runner.invoke(app, _train_args(gold, run, "--overwrite", "--resume"))
+    assert both.exit_code == 2 and "give one of them" in _words(both.stderr)
+
+
+@pytest.mark.parametrize(
+    ("setting", "message"),
+    [
+        ("train.learning_rate=nan", "train.learning_rate must be a finite number; got nan"),
+        ('model.lexicons=["{missing}"]', "{missing}: cannot open the lexicon: No such file"),
+        ('model.pretrained_vectors="{missing}"', "{missing}: cannot open the word vectors file"),
+    ],
+)
+def test_train_checks_values_and_named_files_before_making_the_folder(
+    tmp_path: Path, setting: str, message: str
+) -> None:
+    gold = _write(tmp_path / "gold.txt", GOLD)
+    missing = tmp_path / "missing.txt"
+    run = tmp_path / "runs" / "new"
+    result = runner.invoke(app, _train_args(gold, run, "--set", setting.format(missing=missing)))
+    assert result.exit_code == 1
+    assert message.format(missing=missing) in _one_error_line(result.stderr)
+    assert not (tmp_path / "runs").exists()
+
+
+@pytest.mark.parametrize(
+    "command", ["check", "convert", "score", "train", "evaluate", "tag", "tokenize"]
+)
+def test_help_shows_placeholders_a_person_reads(command: str) -> None:
+    # No Python types (<bool>, <list[Path]>, <str>, <int range>) and no {REQUIRED} braces.
+    result = runner.invoke(app, [command, "--help"], terminal_width=120)
+    assert result.exit_code == 0
+    for python_type in ("<bool>", "<list[", "<str>", "<int", "<float>", "<path>", "<file>", "{"):
+        assert python_type not in result.stdout, python_type

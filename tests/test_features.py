@@ -70,7 +70,8 @@ def test_list_valued_keys_are_read_checked_and_written_back(tmp_path: Path) -> N
 
     config = load_config(path)
     assert config.model.feature_columns == (1, 3)
-    assert config.model.lexicons == ("a.tsv", "b.tsv")
+    # relative lexicon paths are read from the config file's folder
+    assert config.model.lexicons == (str(tmp_path / "a.tsv"), str(tmp_path / "b.tsv"))
     assert config.to_dict()["model"]["feature_columns"] == [1, 3]  # JSON-ready lists
     assert config_from_dict(json.loads(json.dumps(config.to_dict()))) == config
     assert apply_overrides(Config(), ["model.feature_columns=[2]"]).model.feature_columns == (2,)
@@ -327,7 +328,7 @@ def test_training_checks_the_feature_columns(column_runs: dict[str, Path], tmp_p
     with pytest.raises(DataError, match="reads column 3 as a feature") as error:
         train(tiny_config(train_path, dev_path, feature_columns=[3]), tmp_path / "b")
     assert error.value.path == str(train_path) and error.value.line == 1
-    short_dev = write_rows(tmp_path / "dev.txt", [[("a", "O")]])
+    short_dev = write_rows(tmp_path / "dev.txt", [[("a", "B-T")]])  # dev needs a span
     with pytest.raises(DataError, match="reads column 1") as error:
         train(tiny_config(train_path, short_dev, feature_columns=[1]), tmp_path / "c")
     assert error.value.path == str(short_dev)

@@ -5,6 +5,7 @@ from __future__ import annotations
 import importlib.util
 import json
 import sys
+import typing
 from pathlib import Path
 
 import pytest
@@ -13,7 +14,7 @@ from hypothesis import strategies as st
 from typer.testing import CliRunner
 
 from tagger.cli import app
-from tagger.config import LEXICON_CASES
+from tagger.config import ModelConfig, config_from_dict
 from tagger.data.check import check_files
 from tagger.data.schemes import spans_to_tags
 from tagger.errors import DataError
@@ -26,6 +27,7 @@ from tagger.text.lexicon import (
     NO_MATCH,
     SINGLE,
     Lexicon,
+    LexiconCase,
     read_lexicon,
 )
 
@@ -93,7 +95,11 @@ def test_bad_lexicon_lines_name_file_and_line(
 
 
 def test_config_and_lexicon_agree_on_case_modes() -> None:
-    assert LEXICON_CASES == CASE_MODES
+    # One source: the config's key takes exactly the lexicon's modes.
+    assert typing.get_type_hints(ModelConfig)["lexicon_case"] is LexiconCase
+    assert tuple(LexiconCase) == CASE_MODES
+    for mode in CASE_MODES:
+        assert config_from_dict({"model": {"lexicon_case": mode}}).model.lexicon_case == mode
 
 
 # --- matching ------------------------------------------------------------------------------------

@@ -9,7 +9,7 @@ from pathlib import Path
 import pytest
 import torch
 
-from tagger.errors import ModelFileError
+from tagger.errors import ModelFileError, OutputError
 from tagger.network.modelfile import FORMAT_VERSION, load_model_file, save_model_file
 
 
@@ -132,8 +132,9 @@ def test_a_failed_save_leaves_the_old_file(tmp_path: Path, monkeypatch: pytest.M
         raise OSError(5, "Input/output error")
 
     monkeypatch.setattr(os, "fsync", failing_fsync)
-    with pytest.raises(OSError, match="Input/output error"):
+    with pytest.raises(OutputError) as failed:  # an OSError named by the file it concerns
         save_model_file(target, {"w": torch.zeros(2)}, {"labels": ["O"]})
+    assert str(failed.value) == f"{target}: cannot write the file: Input/output error"
     assert target.read_bytes() == before
     assert sorted(p.name for p in tmp_path.iterdir()) == ["m.tagger"]
 

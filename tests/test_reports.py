@@ -337,7 +337,7 @@ def test_convert_label_first_tab_file(tmp_path: Path) -> None:
 def test_convert_counts_ill_formed_sentences(tmp_path: Path) -> None:
     src = write(tmp_path, "in.conll", sentences("a B-X\nb I-X", "c O\nd I-X"))
     dst = tmp_path / "out.conll"
-    summary = convert_file(src, dst, "BIOES", source_scheme="IOB2")
+    summary = convert_file(src, dst, "BIOES", source_scheme="IOB2", repair=True)
     assert summary["ill_formed_sentences"] == 1
     # The lenient reading takes the stray I-X as a one-token span.
     assert [s.labels for s in read_sentences(dst)] == [["B-X", "E-X"], ["O", "S-X"]]

@@ -17,6 +17,7 @@ from typer.testing import CliRunner
 from tagger import Tagger
 from tagger.apply.documents import detect_input_format
 from tagger.apply.evaluate import evaluate_files
+from tagger.apply.review import least_certain
 from tagger.apply.tagger import limit_kernel_cache
 from tagger.apply.tagging import TagOptions, tag_files
 from tagger.cli import app
@@ -31,6 +32,7 @@ from tagger.data.schemes import (
 )
 from tagger.network.batching import collate
 from tagger.network.modelfile import load_model_file
+from tagger.reports.notes import CAUTION
 from tagger.scoring.files import score_files
 from tagger.text.tokenizer import TokenizerSettings, split_sentences
 from tagger.text.vocab import Vocab, Vocabularies
@@ -240,7 +242,6 @@ def test_two_workers_keep_input_order(model: Path, documents: list[str], tmp_pat
 def test_span_scores_are_brute_force_marginals(model: Path) -> None:
     tagger = Tagger.load(model)
     tokens = ["gearbox", "on", "T-14", "."]
-    (scored,) = tagger.predict_scored_spans([tokens])
     net, labels = tagger.net, tagger.vocabs.labels.itos
     batch = tagger.encode([tokens])[0]
     with torch.no_grad():
@@ -251,20 +252,31 @@ def test_span_scores_are_brute_force_marginals(model: Path) -> None:
         paths = torch.tensor(list(itertools.product(range(len(labels)), repeat=len(tokens))))
         mask = torch.ones(paths.shape, dtype=torch.bool)
         scores = net.crf.score(emissions.expand(len(paths), -1, -1), paths, mask)
-    probability = torch.softmax(scores, 0)  # (paths,)
     best = paths[scores.argmax()].tolist()
-    marginal = [
-        {j: float(probability[paths[:, t] == j].sum()) for j in range(len(labels))}
-        for t in range(len(tokens))
-    ]
-    expected = [
-        (kind, start, end, min(marginal[t][best[t]] for t in range(start, end)))
-        for kind, start, end in tags_to_spans([labels[j] for j in best], tagger.scheme)
-    ]
-    assert [s[:3] for s in scored] == [s[:3] for s in expected]
-    assert expected, "the sentence should hold at least one span"
-    for got, want in zip(scored, expected, strict=True):
-        assert got[3] == pytest.approx(want[3], abs=1e-4)
+    # Training fitted a temperature on dev; the network's own probabilities are temperature 1.
+    assert tagger.temperature != 1.0
+    for temperature in (1.0, tagger.temperature, 2.5):
+        # At temperature T every path's score is divided by T (tagger.apply.predict).
+        probability = torch.softmax(scores / temperature, 0)  # (paths,)
+        marginal = [
+            {j: float(probability[paths[:, t] == j].sum()) for j in range(len(labels))}
+            for t in range(len(tokens))
+        ]
+        expected = [
+            (kind, start, end, min(marginal[t][best[t]] for t in range(start, end)))
+            for kind, start, end in tags_to_spans([labels[j] for j in best], tagger.scheme)
+        ]
+        given = None if temperature == tagger.temperature else temperature
+        (sentence,) = tagger.predict_sentences([tokens], temperature=given)
+        assert [s[:3] for s in sentence.spans] == [s[:3] for s in expected]
+        assert expected, "the sentence should hold at least one span"
+        for got, want in zip(sentence.spans, expected, strict=True):
+            assert got[3] == pytest.approx(want[3], abs=1e-4)
+        # The certainty reads every token, those outside spans too.
+        least = min(marginal[t][best[t]] for t in range(len(tokens)))
+        assert sentence.certainty == pytest.approx(least, abs=1e-4)
+        assert sentence.certainty <= min(s[3] for s in sentence.spans)
+    assert tagger.predict_scored_spans([tokens]) == [tagger.predict_sentences([tokens])[0].spans]
 
 
 @settings(max_examples=300, deadline=None)
@@ -329,15 +341,26 @@ def test_min_score_drops_low_spans_and_review_flags_documents(
     model: Path, documents: list[str], tmp_path: Path
 ) -> None:
     source = _jsonl(tmp_path / "docs.jsonl", documents)
-    found = Tagger.load(model).tag(documents)
+    tagger = Tagger.load(model)
+    found = tagger.tag(documents)
     scores = sorted(s.score for spans in found for s in spans)
     cut = scores[len(scores) // 2]  # the median: some spans on each side
-    everything = _records(_tag(str(model), str(source), "--review-below", str(cut)).stdout)
+    # A document's certainty: the lowest probability of a chosen label over all of its tokens.
+    certainty = [
+        least_certain(
+            tagger.predict_sentences([[t.text for t in s.tokens] for s in tagger.tokenize(d)])
+        )
+        for d in documents
+    ]
+    review_cut = sorted(certainty)[len(certainty) // 2]  # the median: documents on each side
+    everything = _records(_tag(str(model), str(source), "--review-below", str(review_cut)).stdout)
     filtered = _records(_tag(str(model), str(source), "--min-score", str(cut)).stdout)
-    for spans, full, kept in zip(found, everything, filtered, strict=True):
+    for spans, full, kept, sure in zip(found, everything, filtered, certainty, strict=True):
         assert [s["start"] for s in kept["spans"]] == [s.start for s in spans if s.score >= cut]
         assert len(full["spans"]) == len(spans)
-        assert full["review"] == any(s.score < cut for s in spans)
+        assert full["review"] == (sure < review_cut)
+        # every span below the threshold flags its document, as before the flag read all tokens
+        assert full["review"] or not any(s.score < review_cut for s in spans)
     assert any(r["review"] for r in everything) and not all(r["review"] for r in everything)
     table = _tag(str(model), str(source), "--min-score", str(cut), "--output-format", "table")
     rows = table.stdout.splitlines()
@@ -372,7 +395,9 @@ def test_stdin_to_stdout(model: Path, documents: list[str]) -> None:
     jsonl = "".join(json.dumps({"text": d}) + "\n" for d in documents[:3])
     piped = _tag(str(model), "--input-format", "jsonl", input=jsonl)
     assert [r["id"] for r in _records(piped.stdout)] == ["<stdin>:1", "<stdin>:2", "<stdin>:3"]
-    assert piped.stderr.startswith("tagged 3 documents") and piped.stderr.count("\n") == 1
+    # the summary, then the caution: nothing else
+    assert piped.stderr.startswith("tagged 3 documents") and piped.stderr.count("\n") == 2
+    assert piped.stderr.splitlines()[-1] == CAUTION
 
 
 def test_empty_documents_pass_through(model: Path, tmp_path: Path) -> None:
@@ -592,8 +617,8 @@ def test_bad_input_stops_or_is_skipped(model: Path, tmp_path: Path, make) -> Non
         str(model), str(source), str(good), "--out", str(out), "--on-error", "skip", *extra
     )
     assert skipped.exit_code == 0, skipped.stderr
-    summary, *listed = skipped.stderr.splitlines()
-    assert summary.endswith("; 1 skipped") and len(listed) == 1
+    summary, *listed, caution = skipped.stderr.splitlines()
+    assert summary.endswith("; 1 skipped") and len(listed) == 1 and caution == CAUTION
     assert listed[0].startswith(f"  skipped {source}:{line}: ") and message in listed[0]
     ids = [str(r["id"]) for r in _records(out.read_text())]
     assert ids[-1] == "doc0"  # the run went on to the next input
@@ -605,7 +630,8 @@ def test_skip_lists_every_bad_item_in_order(model: Path, tmp_path: Path) -> None
     good = json.dumps({"text": GOOD})
     path.write_text("\n".join([good, "{", good, "[]", '{"text": 3}', good]) + "\n")
     result = _tag(str(model), str(path), "--on-error", "skip", "--chunk-chars", "10")
-    listed = result.stderr.splitlines()[1:]
+    *listed, caution = result.stderr.splitlines()[1:]
+    assert caution == CAUTION
     assert [entry.split(": ")[0] for entry in listed] == [
         f"  skipped {path}:{n}" for n in (2, 4, 5)
     ]

@@ -63,7 +63,7 @@ def small_config(train_path: Path, dev_path: Path | None, **sections: dict) -> C
         },
     }
     for name, values in sections.items():
-        raw[name] = {**raw[name], **values}
+        raw[name] = {**raw.get(name, {}), **values}
     return config_from_dict(raw)
 
 
@@ -341,3 +341,151 @@ def test_a_checkpoint_from_before_a_new_config_key_still_resumes(
 
     with pytest.raises(ModelFileError, match="another config"):
         train(config, tmp_path / "run", resume=True)
+
+
+def test_the_configs_tokenizer_table_travels_in_the_model(tiny_files: Path, tmp_path: Path) -> None:
+    data = tiny_files / "train.txt"
+    config = small_config(data, data, train={"epochs": 1}, tokenizer={"split_hyphens": True})
+    tagger = Tagger.load(train(config, tmp_path / "run").model_path)
+    assert tagger.tokenizer_settings.split_hyphens
+    # the stored settings are the ones tagging uses: "T-14" is cut at its hyphen
+    words = [t.text for s in tagger.tokenize("Crew checked T-14 today.") for t in s.tokens]
+    assert words[:5] == ["Crew", "checked", "T", "-", "14"]
+
+
+# --- resuming with a changed config --------------------------------------------------------------
+
+
+def _notes(into: list[str]):
+    def progress(event: dict) -> None:
+        if event["event"] == "note":
+            into.append(event["message"])
+
+    return progress
+
+
+def _losses(history: list[dict]) -> list[float]:
+    return [row["train_loss_per_token"] for row in history]
+
+
+def test_resume_names_every_changed_key_it_refuses(tiny_files: Path, tmp_path: Path) -> None:
+    from tagger.errors import ModelFileError
+
+    data = tiny_files / "train.txt"
+    train(small_config(data, data, train={"epochs": 1}), tmp_path / "run")
+    changed = small_config(
+        data, data, model={"hidden_size": 30}, train={"epochs": 3, "learning_rate": 0.5}
+    )
+    with pytest.raises(ModelFileError) as error:
+        train(changed, tmp_path / "run", resume=True)
+    message = str(error.value)
+    assert "model.hidden_size 24 -> 30; train.learning_rate 0.02 -> 0.5." in message
+    assert "train.epochs" not in message.split("Only")[0]  # allowed, so not among the refused
+    assert (
+        "Only train.epochs, train.patience, train.max_minutes, train.threads may change" in message
+    )
+
+
+def test_resume_with_more_epochs_goes_on_as_one_longer_run(
+    tiny_files: Path, tmp_path: Path
+) -> None:
+    data = tiny_files / "train.txt"
+    config = small_config(data, data, model={"dropout": 0.3}, train={"epochs": 4})
+    whole = train(config, tmp_path / "whole")
+    train(small_config(data, data, model={"dropout": 0.3}, train={"epochs": 2}), tmp_path / "cut")
+    notes: list[str] = []
+    resumed = train(config, tmp_path / "cut", resume=True, progress=_notes(notes))
+    assert [row["epoch"] for row in resumed.history] == [1, 2, 3, 4]
+    assert _losses(resumed.history) == _losses(whole.history)
+    assert "resuming with train.epochs 2 -> 4" in notes
+    from tagger.config import load_config
+
+    assert load_config(tmp_path / "cut" / "config.toml").train.epochs == 4
+
+
+def test_resume_with_more_patience_continues_a_run_patience_stopped(
+    tiny_files: Path, tmp_path: Path
+) -> None:
+    data = tiny_files / "train.txt"
+    # Nothing is learnt at learning rate 0, so dev F1 never improves after epoch 1.
+    frozen = {"epochs": 10, "learning_rate": 0.0, "patience": 1, "threads": 1}
+    stopped = train(small_config(data, data, train=frozen), tmp_path / "run")
+    assert [row["epoch"] for row in stopped.history] == [1, 2]
+    assert stopped.stop_reason == "no better dev F1 for 1 epochs (train.patience=1)"
+    again = train(small_config(data, data, train=frozen), tmp_path / "run", resume=True)
+    assert [row["epoch"] for row in again.history] == [1, 2]  # the same patience: still stopped
+    patient = {**frozen, "patience": 3, "threads": 2}
+    notes: list[str] = []
+    resumed = train(
+        small_config(data, data, train=patient),
+        tmp_path / "run",
+        resume=True,
+        progress=_notes(notes),
+    )
+    assert [row["epoch"] for row in resumed.history] == [1, 2, 3, 4]
+    assert resumed.stop_reason == "no better dev F1 for 3 epochs (train.patience=3)"
+    assert "resuming with train.patience 1 -> 3; train.threads 1 -> 2" in notes
+
+
+def test_resume_without_the_time_budget_continues_a_run_it_stopped(
+    tiny_files: Path, tmp_path: Path, monkeypatch: pytest.MonkeyPatch
+) -> None:
+    from tagger.training import budget
+
+    clock = {"now": 500.0}
+
+    def tick(event: dict) -> None:  # every epoch takes 40 seconds of the fake clock
+        if event["event"] == "batch" and event["batch"] == 1:
+            clock["now"] += 40.0
+
+    monkeypatch.setattr(budget, "now", lambda: clock["now"])
+    data = tiny_files / "train.txt"
+    frozen = {"epochs": 4, "learning_rate": 0.0, "max_minutes": 1.0}
+    stopped = train(small_config(data, data, train=frozen), tmp_path / "run", progress=tick)
+    # 40, 80 seconds: the minute is used after epoch 2; epoch 1 was the best (nothing is learnt),
+    # so the reason does not say dev F1 was still improving.
+    assert [row["epoch"] for row in stopped.history] == [1, 2]
+    assert stopped.stop_reason == "time budget of train.max_minutes=1.0 used"
+    unbounded = {**frozen, "max_minutes": 0.0}
+    resumed = train(
+        small_config(data, data, train=unbounded), tmp_path / "run", resume=True, progress=tick
+    )
+    assert [row["epoch"] for row in resumed.history] == [1, 2, 3, 4]
+    assert resumed.stop_reason == "reached train.epochs=4"
+
+
+def test_a_config_with_relative_paths_trains_from_any_folder(
+    tmp_path: Path, monkeypatch: pytest.MonkeyPatch
+) -> None:
+    from typer.testing import CliRunner
+
+    from tagger.cli import app
+    from tagger.config import load_config
+
+    project = tmp_path / "project"
+    for folder in ("data", "configs"):
+        (project / folder).mkdir(parents=True)
+    write_columns_file(project / "data" / "t.txt", TINY)
+    (project / "configs" / "c.toml").write_text(
+        '[data]\ntrain = "../data/t.txt"\ndev = "../data/t.txt"\n'
+        "[model]\nhidden_size = 8\nlayers = 1\nword_dim = 8\nchar_encoder = 'none'\n"
+        "[train]\nepochs = 1\nthreads = 1\n"
+    )
+    elsewhere = tmp_path / "elsewhere"
+    elsewhere.mkdir()
+    monkeypatch.chdir(elsewhere)
+    runner = CliRunner()
+    result = runner.invoke(app, ["train", "--config", "../project/configs/c.toml", "--out", "run"])
+    assert result.exit_code == 0, result.stderr
+    # A file named on the command line is read from the current folder; the run folder's
+    # config.toml names every file absolutely, so it reads back from anywhere too.
+    write_columns_file(elsewhere / "mine.txt", TINY)
+    result = runner.invoke(
+        app,
+        ["train", "--config", "../project/configs/c.toml", "--train", "mine.txt", "--out", "r2"],
+    )
+    assert result.exit_code == 0, result.stderr
+    monkeypatch.chdir(tmp_path)
+    saved = load_config(elsewhere / "r2" / "config.toml")
+    assert saved.data.train == str(elsewhere / "mine.txt")
+    assert saved.data.dev == str(project / "data" / "t.txt")

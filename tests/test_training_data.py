@@ -3,6 +3,7 @@ held out of train, and the data fingerprint that guards --resume."""
 
 from __future__ import annotations
 
+import json
 import random
 from pathlib import Path
 
@@ -144,3 +145,52 @@ def test_an_infinite_time_budget_round_trips_through_config_toml(tmp_path: Path)
     result = train(config, tmp_path / "run")
     assert result.stop_reason == "reached train.epochs=1"
     assert load_config(tmp_path / "run" / "config.toml") == config
+
+
+def test_the_shipped_default_config_holds_a_tenth_of_train_out(tmp_path: Path) -> None:
+    # The README's promise: without a dev file a tenth of train is held out. The shipped config
+    # names no dev file of its own that could take that place.
+    data = write_columns_file(tmp_path / "train.txt", TINY * 10)
+    config = apply_overrides(
+        load_config(Path(__file__).resolve().parents[1] / "configs" / "default.toml"),
+        [
+            f"data.train={json.dumps(str(data))}",
+            *("model.hidden_size=8", "model.layers=1", "model.word_dim=8", "model.char_dim=4"),
+            *("model.char_features=4", "train.epochs=1", "train.threads=1"),
+        ],
+    )
+    result = train(config, tmp_path / "run")
+    assert any("held out" in note and "6 of 60 training sentences" in note for note in result.notes)
+    assert "no dev file" in result.notes[0]
+
+
+def test_train_and_dev_without_a_shared_entity_type_are_noted(tmp_path: Path) -> None:
+    data = write_columns_file(tmp_path / "train.txt", TINY)
+    dev = write_columns_file(tmp_path / "dev.txt", [[("wind", "B-WEATHER"), ("gust", "O")]])
+    result = train(small_config(data, dev, train={"epochs": 1}), tmp_path / "run")
+    shared = [note for note in result.notes if "share no entity type" in note]
+    assert shared == [
+        "train and dev share no entity type (train: ASSET, COMP, DEF, READ; dev: WEATHER): dev F1 "
+        "will be 0 and cannot tell epochs apart; is the dev file the one meant for this training "
+        "file?"
+    ]
+    sharing = write_columns_file(tmp_path / "dev2.txt", [[("T-7", "B-ASSET"), ("wind", "B-W")]])
+    result = train(small_config(data, sharing, train={"epochs": 1}), tmp_path / "run2")
+    assert not any("share no entity type" in note for note in result.notes)
+
+
+def test_a_held_out_dev_set_without_spans_is_refused(tmp_path: Path) -> None:
+    from tagger.errors import DataError
+
+    data = write_columns_file(tmp_path / "train.txt", TINY)  # its last sentence is all O
+    config = small_config(data, None, data={"dev_holdout": "last", "dev_fraction": 0.1})
+    with pytest.raises(DataError) as error:
+        train(config, tmp_path / "run")
+    assert str(error.value) == (
+        f"{data}: the dev set held out of it (1 sentence) holds no spans (every label is O), so "
+        "dev F1 would be 0 every epoch and choose nothing; give a dev file (--dev) or raise "
+        "data.dev_fraction"
+    )
+    assert not (tmp_path / "run").exists()
+    config = small_config(data, None, data={"dev_holdout": "last", "dev_fraction": 0.3})
+    assert train(config, tmp_path / "run").best_epoch >= 1  # two held out, one with spans

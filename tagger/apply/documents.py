@@ -4,36 +4,63 @@ Input formats (chosen per input from its name unless `input_format` says otherwi
 in .jsonl or .json read as jsonl, .conll .bio .iob .tsv as columns, anything else, and standard
 input, as text):
 
-    text     a UTF-8 file is one document; `tagger.text.tokenizer` finds its sentences and tokens
-    jsonl    one JSON object per line with a "text" string and optionally an "id"; every other
-             key is carried through to jsonl output untouched; blank lines are ignored
-    columns  a pre-tokenised column file (`tagger.data.corpus`); each sentence is one document whose
-             text is its tokens joined by single spaces; all its columns are kept, and a model
-             trained with extra feature columns (model.feature_columns) reads them from it
+    text            a file is one document; `tagger.text.tokenizer` finds its sentences and
+                    tokens. It is read in bounded pieces cut where the whole text has a sentence
+                    boundary (`tagger.apply.plaintext`), never held whole
+    sentence-lines  as text, but a line break also ends a sentence (a sentence never crosses
+                    a line): text with a sentence per line
+    lines           every line holding more than whitespace is a document of its own, with the
+                    id "SOURCE:LINE" (its line number): logs and other line-per-record text
+    jsonl           one JSON object per line with a "text" string and optionally an "id"; every
+                    other key is carried through to jsonl output untouched; blank lines are ignored
+    columns         a pre-tokenised column file (`tagger.data.corpus`); each sentence is one
+                    document whose text is its tokens joined by single spaces; all its columns are
+                    kept, and a model trained with extra feature columns reads them from it
 
-A document's text is as decoded, a byte-order mark excluded: offsets into it count characters
-(Unicode code points).
+Every input is read through `tagger.data.io` (the byte-order mark, line endings, UTF-8 errors
+with file and line). A document's text is as decoded: offsets into it count characters (Unicode
+code points); a piece of a text document carries its offset into the whole.
 
-Bad input never vanishes: an undecodable line, a line that is not a JSON object with a "text"
-string, or a column file that breaks the format becomes a `Skipped` record naming file and line,
-in input order, in place of the document it would have been.
+Bad input never vanishes: a file that cannot be opened, an undecodable line, a line that is not a
+JSON object with a "text" string, or a column-file sentence that breaks the format becomes a
+`Skipped` record naming file and line, in input order, in place of the document it would have
+been; for a text document read in pieces, in place of the whole document.
 """
 
 from __future__ import annotations
 
+import contextlib
 import json
-import sys
 from collections import deque
 from collections.abc import Iterator, Sequence
 from dataclasses import dataclass
+from enum import StrEnum
 from pathlib import Path
-from typing import IO, Any
+from typing import Any, BinaryIO
 
+from tagger.apply.column_input import CheckedColumnLines
+from tagger.apply.plaintext import text_pieces
+from tagger.data.column_lines import writing_delimiter
 from tagger.data.corpus import ColumnFormat, ColumnReader, Sentence
+from tagger.data.io import STDIO, decode_line, input_name, is_stdio, open_input, raw_lines
 from tagger.errors import ConfigError, DataError
+from tagger.text.tokenizer import TokenizerSettings
 
-INPUT_FORMATS = ("text", "jsonl", "columns")
-STDIO = "-"
+
+class InputFormat(StrEnum):
+    """How an input is read (see the module docstring); auto chooses by the file's name."""
+
+    AUTO = "auto"
+    TEXT = "text"
+    SENTENCE_LINES = "sentence-lines"
+    LINES = "lines"
+    JSONL = "jsonl"
+    COLUMNS = "columns"
+
+
+INPUT_FORMATS: tuple[str, ...] = tuple(f.value for f in InputFormat if f is not InputFormat.AUTO)
+PIECE_CHARS = 200_000  # characters of plain text read at a time
+MAX_JSON_DEPTH = 100  # deepest nesting of arrays and objects a JSON Lines record may have
 
 _SUFFIX_FORMATS = {
     ".jsonl": "jsonl",
@@ -43,7 +70,18 @@ _SUFFIX_FORMATS = {
     ".iob": "columns",
     ".tsv": "columns",
 }
-_BOM = b"\xef\xbb\xbf"
+_WILDCARDS = frozenset("*?[")
+
+__all__ = [
+    "INPUT_FORMATS",
+    "STDIO",
+    "Document",
+    "Item",
+    "Part",
+    "Skipped",
+    "detect_input_format",
+    "read_documents",
+]
 
 
 @dataclass(frozen=True)
@@ -53,6 +91,7 @@ class Skipped:
     source: str
     line: int | None
     message: str
+    document: int | None = None  # the `Part.document` of a document read in pieces it ends
 
     def __str__(self) -> str:
         where = self.source if self.line is None else f"{self.source}:{self.line}"
@@ -63,15 +102,47 @@ class Skipped:
 
 
 @dataclass(frozen=True)
+class Part:
+    """Where a piece of a plain-text document read in pieces lies in the document."""
+
+    document: int  # which input of the run it comes from: the pieces of a document share it
+    index: int  # 0 for the first piece
+    offset: int  # characters of the document before the piece
+    last: bool
+
+
+@dataclass(frozen=True)
 class Document:
-    """One document as read: `text` is what offsets point into."""
+    """One document as read, or a piece of one: `text` is what offsets point into (plus `offset`)."""
 
     id: Any
     text: str
     source: str
-    line: int  # the input line where the document starts (1-based)
+    line: int  # the input line where the document (or piece) starts (1-based)
     record: dict[str, Any] | None = None  # the JSON object of a jsonl line
     sentence: Sentence | None = None  # the column-file sentence of a columns document
+    input_format: str | None = None  # how it was read; None: handed over whole (the Python API)
+    part: Part | None = None  # set on plain text, which is read in pieces
+    separator: str = "\t"  # columns: the input's column separator, which columns output keeps
+
+    @property
+    def offset(self) -> int:
+        """Characters of the whole document before `text`."""
+        return 0 if self.part is None else self.part.offset
+
+    @property
+    def first(self) -> bool:
+        """Is this the document's first (or only) piece?"""
+        return self.part is None or self.part.index == 0
+
+    @property
+    def whole(self) -> bool:
+        """Is this the whole document (not one piece of several)?"""
+        return self.part is None or (self.part.index == 0 and self.part.last)
+
+    @property
+    def line_breaks_end_sentences(self) -> bool:
+        return self.input_format == "sentence-lines"
 
 
 Item = Document | Skipped
@@ -79,7 +150,7 @@ Item = Document | Skipped
 
 def detect_input_format(name: str | Path) -> str:
     """The input format a file name implies: .jsonl/.json, .conll/.bio/.iob/.tsv, else text."""
-    if str(name) == STDIO:
+    if is_stdio(name):
         return "text"
     return _SUFFIX_FORMATS.get(Path(name).suffix.lower(), "text")
 
@@ -89,63 +160,87 @@ def read_documents(
     input_format: str = "auto",
     token_column: int = 0,
     notes: list[str] | None = None,
+    piece_chars: int = PIECE_CHARS,
+    settings: TokenizerSettings | None = None,
 ) -> Iterator[Item]:
     """The documents of every input in order, with a `Skipped` in place of each bad item.
 
-    Inputs are paths or "-" (standard input, at most once). A file that cannot be opened, and
-    the rest of a column file after a line that breaks its format, become `Skipped` records.
+    Inputs are paths or "-" (standard input, at most once). Plain text comes in pieces of about
+    `piece_chars` characters, cut where `settings` (the tokenizer's) finds a sentence boundary.
     Remarks for people (a text input that looks like a column file) are appended to `notes`.
     """
-    if sum(str(path) == STDIO for path in inputs) > 1:
+    if sum(is_stdio(path) for path in inputs) > 1:
         raise ConfigError("standard input ('-') can be read only once")
-    for path in inputs or [STDIO]:
+    settings = settings or TokenizerSettings()
+    for number, path in enumerate(inputs or [STDIO]):
         kind = detect_input_format(path) if input_format == "auto" else input_format
         if kind not in INPUT_FORMATS:
             raise ConfigError(f"input format must be one of {', '.join(INPUT_FORMATS)}")
-        name = "<stdin>" if str(path) == STDIO else str(path)
-        if kind == "columns":
-            yield from _column_items(path, name, token_column)
-            continue
-        try:
-            stream = sys.stdin.buffer if str(path) == STDIO else open(path, "rb")  # noqa: SIM115
-        except OSError as error:
-            yield Skipped(name, None, f"cannot open the file: {error.strerror}")
-            continue
-        try:
-            if kind == "text":
-                item = _text_item(stream.read(), name)
-                if (
-                    notes is not None
-                    and isinstance(item, Document)
-                    and _looks_like_columns(item.text)
-                ):
-                    notes.append(
-                        f"{name} was read as plain text but looks like a column file; "
-                        "pass --input-format columns to tag its tokens as they are"
-                    )
-                yield item
-            else:
+        name = input_name(path)
+        with contextlib.ExitStack() as stack:
+            try:
+                stream = stack.enter_context(open_input(path))
+            except DataError as error:
+                yield Skipped(name, None, unopenable(path, error.message))
+                continue
+            if kind == "columns":
+                yield from _column_items(stream, path, token_column)
+            elif kind == "jsonl":
                 yield from _jsonl_items(stream, name)
-        finally:
-            if stream is not sys.stdin.buffer:
-                stream.close()
+            elif kind == "lines":
+                yield from _line_items(stream, name)
+            else:
+                text = _text_items(stream, name, kind, number, piece_chars, settings)
+                yield from _noting_columns(text, notes)
 
 
-def _undecodable(raw: bytes, error: UnicodeDecodeError, offset: int) -> str:
-    bad = raw[error.start : error.end]
-    return (
-        f"bytes {bad!r} at byte offset {offset + error.start} are not valid UTF-8 ({error.reason})"
-    )
+def unopenable(path: str | Path, message: str) -> str:
+    """Why an input could not be opened (`message`), said plainly for a folder or a wildcard."""
+    name = str(path)
+    if Path(name).is_dir():
+        example = f"{name.rstrip('/')}/*.txt"
+        return f"a folder, not a file; name the files in it (e.g. {example}, unquoted)"
+    if not Path(name).exists() and _WILDCARDS & set(name):
+        return (
+            "no such file, and the name holds a wildcard that no shell expanded (was it "
+            "quoted?); leave it unquoted, or name the files"
+        )
+    return message
 
 
-def _text_item(data: bytes, name: str) -> Item:
-    skip = len(_BOM) if data.startswith(_BOM) else 0
+def _noting_columns(items: Iterator[Item], notes: list[str] | None) -> Iterator[Item]:
+    for item in items:
+        if (
+            notes is not None
+            and isinstance(item, Document)
+            and item.first
+            and item.input_format == "text"
+            and _looks_like_columns(item.text)
+        ):
+            notes.append(
+                f"{item.source} was read as plain text but looks like a column file; "
+                "pass --input-format columns to tag its tokens as they are"
+            )
+        yield item
+
+
+def _text_items(
+    stream: BinaryIO,
+    name: str,
+    kind: str,
+    number: int,
+    piece_chars: int,
+    settings: TokenizerSettings,
+) -> Iterator[Item]:
+    """A text document in pieces; a problem met on the way ends it with a Skipped."""
+    line_breaks = kind == "sentence-lines"
     try:
-        text = data[skip:].decode("utf-8")
-    except UnicodeDecodeError as error:
-        line = data.count(b"\n", 0, skip + error.start) + 1
-        return Skipped(name, line, _undecodable(data[skip:], error, skip))
-    return Document(name, text, name, 1)
+        pieces = text_pieces(stream, name, piece_chars, settings, line_breaks)
+        for index, piece in enumerate(pieces):
+            part = Part(number, index, piece.offset, piece.last)
+            yield Document(name, piece.text, name, piece.line, input_format=kind, part=part)
+    except DataError as error:
+        yield Skipped(name, error.line, error.message, document=number)
 
 
 def _looks_like_columns(text: str) -> bool:
@@ -156,41 +251,142 @@ def _looks_like_columns(text: str) -> bool:
     )
 
 
-def _jsonl_items(stream: IO[bytes], name: str) -> Iterator[Item]:
-    offset = 0
-    for number, raw in enumerate(stream, start=1):
-        start = offset
-        offset += len(raw)
-        if number == 1 and raw.startswith(_BOM):
-            raw, start = raw[len(_BOM) :], start + len(_BOM)
+def _column_items(stream: BinaryIO, path: str | Path, token_column: int) -> Iterator[Item]:
+    """Sentences of a column file as documents; a sentence holding a bad line is skipped alone."""
+    name = input_name(path)
+    lines = CheckedColumnLines(stream, name, token_column)
+    fmt = ColumnFormat(delimiter=lines.delimiter, token_column=token_column, has_labels=False)
+    separator = writing_delimiter(lines.delimiter)
+    problems = lines.problems
+    try:
+        # ColumnReader.__iter__ opens the file itself; _parse reads any stream of byte lines.
+        for sentence in ColumnReader(path, fmt)._parse(iter(lines)):
+            first = sentence.line_numbers[0]
+            while problems and problems[0][0] < first:
+                yield Skipped(name, *problems.popleft())
+            text = " ".join(sentence.tokens)
+            yield Document(
+                f"{name}:{first}",
+                text,
+                name,
+                first,
+                sentence=sentence,
+                input_format="columns",
+                separator=separator,
+            )
+    except DataError as error:
+        while problems and (error.line is None or problems[0][0] < error.line):
+            yield Skipped(name, *problems.popleft())
+        yield Skipped(name, error.line, f"{error.message}; the rest of the file was not read")
+        return
+    for problem in problems:
+        yield Skipped(name, *problem)
+
+
+def _line_items(stream: BinaryIO, name: str) -> Iterator[Item]:
+    for raw in raw_lines(stream):
         try:
-            line = raw.decode("utf-8")
-        except UnicodeDecodeError as error:
-            yield Skipped(name, number, _undecodable(raw, error, start))
+            text = decode_line(raw, name)
+        except DataError as error:
+            yield Skipped(name, raw.number, error.message)
+            continue
+        if text.strip():
+            yield Document(f"{name}:{raw.number}", text, name, raw.number, input_format="lines")
+
+
+def _jsonl_items(stream: BinaryIO, name: str) -> Iterator[Item]:
+    seen_content = False
+    for raw in raw_lines(stream):
+        number = raw.number
+        try:
+            line = decode_line(raw, name)
+        except DataError as error:
+            yield Skipped(name, number, error.message)
             continue
         if not line.strip():
             continue
-        try:
-            record = json.loads(line)
-        except ValueError as error:
-            message = getattr(error, "msg", str(error))
-            column = getattr(error, "colno", None)
-            where = f" at column {column}" if column is not None else ""
-            yield Skipped(name, number, f"not valid JSON ({message}{where})")
-            continue
-        if not isinstance(record, dict):
-            yield Skipped(name, number, f"a JSON object was expected, not {type(record).__name__}")
-            continue
-        text = record.get("text")
-        if not isinstance(text, str):
-            found = "no" if "text" not in record else f"a {type(text).__name__} as its"
-            yield Skipped(name, number, f'the object has {found} "text"; a string is needed')
-            continue
-        if "\\u" in line and not _encodable(record):
-            yield Skipped(name, number, "the object holds an unpaired surrogate (\\ud800-\\udfff)")
+        if not seen_content:
+            seen_content = True
+            spread = _spread_over_lines(line)
+            if spread is not None:
+                yield Skipped(name, number, spread)
+                return
+        record = _record(line)
+        if isinstance(record, str):
+            yield Skipped(name, number, record)
             continue
         doc_id = record.get("id", f"{name}:{number}")
-        yield Document(doc_id, text, name, number, record=record)
+        yield Document(doc_id, record["text"], name, number, record=record, input_format="jsonl")
+
+
+def _spread_over_lines(first_line: str) -> str | None:
+    """What is wrong with a file whose first line opens a JSON array or object and ends there
+    (pretty-printed JSON rather than JSON Lines); None when it is not such a file."""
+    opened = first_line.strip()
+    if opened not in ("[", "{"):
+        return None
+    what = "a JSON array" if opened == "[" else "a JSON object spread over several lines"
+    return (
+        f"the file holds {what}; JSON Lines is expected, one object per line such as "
+        '{"id": 1, "text": "..."}; the rest of the file was not read'
+    )
+
+
+class _NotJsonNumber(ValueError):
+    pass
+
+
+def _refuse_constant(name: str) -> Any:
+    raise _NotJsonNumber(f"{name} is not a JSON number; write null or a string")
+
+
+def _record(line: str) -> dict[str, Any] | str:
+    """The JSON object of a jsonl line, or what is wrong with the line."""
+    try:
+        # NaN and Infinity are not JSON: written back they would make the output invalid too.
+        record = json.loads(line, parse_constant=_refuse_constant)
+    except _NotJsonNumber as error:
+        return f"not valid JSON ({error})"
+    except RecursionError:
+        return f"the record nests arrays and objects deeper than {MAX_JSON_DEPTH} levels"
+    except ValueError as error:
+        return f"not valid JSON ({_json_problem(error)})"
+    if not isinstance(record, dict):
+        if isinstance(record, list):
+            return "a JSON array; JSON Lines is expected, one object per line"
+        return f"a JSON object was expected, not {type(record).__name__}"
+    if _depth(record) > MAX_JSON_DEPTH:
+        return f"the record nests arrays and objects deeper than {MAX_JSON_DEPTH} levels"
+    text = record.get("text")
+    if not isinstance(text, str):
+        found = "no" if "text" not in record else f"a {type(text).__name__} as its"
+        return f'the object has {found} "text"; a string is needed'
+    if "\\u" in line and not _encodable(record):
+        return "the object holds an unpaired surrogate (\\ud800-\\udfff)"
+    return record
+
+
+def _json_problem(error: ValueError) -> str:
+    message = getattr(error, "msg", str(error))
+    column = getattr(error, "colno", None)
+    if column is None:
+        return message
+    # Some of the parser's messages end in "at" ("Unterminated string starting at").
+    return (
+        f"{message} column {column}" if message.endswith(" at") else f"{message} at column {column}"
+    )
+
+
+def _depth(value: Any) -> int:
+    """How deeply arrays and objects nest in a parsed JSON value (walked without recursion)."""
+    deepest = 0
+    stack: deque[tuple[Any, int]] = deque([(value, 1)])
+    while stack:
+        item, depth = stack.pop()
+        children = item.values() if isinstance(item, dict) else item
+        deepest = max(deepest, depth)
+        stack.extend((child, depth + 1) for child in children if isinstance(child, dict | list))
+    return deepest
 
 
 def _encodable(record: dict[str, Any]) -> bool:
@@ -199,52 +395,3 @@ def _encodable(record: dict[str, Any]) -> bool:
     except UnicodeEncodeError:
         return False
     return True
-
-
-def _column_items(path: str | Path, name: str, token_column: int) -> Iterator[Item]:
-    """Sentences of a column file as documents; an undecodable line skips its sentence only."""
-    reader = ColumnReader(path, ColumnFormat(token_column=token_column, has_labels=False))
-    bad: deque[Skipped] = deque()  # undecodable lines seen by the reader, not yet reported
-
-    def repaired(stream: IO[bytes]) -> Iterator[bytes]:
-        # The reader stops at the first undecodable line; give it a decodable stand-in (same
-        # columns, same line count) and skip the sentence that holds it.
-        offset = 0
-        for number, raw in enumerate(stream, start=1):
-            try:
-                raw.decode("utf-8")
-            except UnicodeDecodeError as error:
-                bad.append(Skipped(name, number, _undecodable(raw, error, offset)))
-                raw = raw.decode("utf-8", "replace").encode("utf-8")
-            offset += len(raw)
-            yield raw
-
-    try:
-        stream = sys.stdin.buffer if str(path) == STDIO else open(path, "rb")  # noqa: SIM115
-    except OSError as error:
-        yield Skipped(name, None, f"cannot open the file: {error.strerror}")
-        return
-    try:
-        # ColumnReader.__iter__ opens the file itself; _parse reads any stream of byte lines.
-        for sentence in reader._parse(repaired(stream)):
-            numbers = sentence.line_numbers
-            inside = None
-            while bad and bad[0].line is not None and bad[0].line <= numbers[-1]:
-                problem = bad.popleft()
-                if problem.line in numbers:
-                    inside = inside or problem
-                else:
-                    yield problem  # on a line outside every sentence (a -DOCSTART- line)
-            if inside is not None:
-                yield inside
-                continue
-            text = " ".join(sentence.tokens)
-            yield Document(f"{name}:{numbers[0]}", text, name, numbers[0], sentence=sentence)
-    except DataError as error:
-        yield from bad
-        bad.clear()
-        yield Skipped(name, error.line, f"{error.message}; the rest of the file was not read")
-    finally:
-        if stream is not sys.stdin.buffer:
-            stream.close()
-    yield from bad

@@ -6,10 +6,13 @@ tokenised and tagged in length-sorted batches across its documents, so the batch
 while memory depends on the chunk size and the longest document, not on the input size.
 
 A span's score is the smallest, over its tokens, of the probability of the label chosen there
-(see `Tagger.predict_scored_spans`). Offsets count characters of the document text, end
-exclusive: `text[start:end]` is the span's text.
+(see `Tagger.predict_sentences`); a document's certainty, which the review flag reads, is the
+smallest over all of its tokens (`tagger.apply.review`). Offsets count characters of the
+document text, end exclusive: `text[start:end]` is the span's text.
 
-A sentence longer than the tokenizer's `max_sentence_tokens` makes its document a `Skipped` record.
+A sentence longer than the tokenizer's `max_sentence_tokens` makes its document a `Skipped` record
+(for a piece of a plain-text document, its whole document: see `tagger.apply.writing`). A
+piece's spans are shifted by its offset, so they index the whole document.
 """
 
 from __future__ import annotations
@@ -19,7 +22,9 @@ from dataclasses import dataclass
 from typing import TYPE_CHECKING, Any
 
 from tagger.apply.documents import Document, Item, Skipped
-from tagger.text.tokenizer import TextSentence, TokenizerSettings, split_sentences
+from tagger.apply.plaintext import document_sentences
+from tagger.apply.review import least_certain
+from tagger.text.tokenizer import TokenizerSettings
 
 if TYPE_CHECKING:
     from tagger.apply.tagger import ScoredSpan, Tagger
@@ -64,6 +69,27 @@ class TaggedDocument:
     spans: list[TaggedSpan]  # every span found, before `min_score` filtering
     token_spans: list[list[ScoredSpan]]  # per sentence, token indices
     analysed: Analysed
+    certainty: float = 1.0  # of its least certain sentence (tagger.apply.review)
+
+
+def too_long(limit: int, character: int, input_format: str | None) -> str:
+    """The message for a sentence longer than `limit` tokens starting at `character`; for plain
+    text it names the inputs where a line break ends a sentence or a record."""
+    return (
+        f"a sentence longer than max_sentence_tokens={limit} tokens starts at character "
+        f"{character} of the document{line_inputs_hint(input_format)}"
+    )
+
+
+def line_inputs_hint(input_format: str | None) -> str:
+    """For plain text, where a long sentence often means lines that are records: the inputs that
+    read a line break as the end of a record or a sentence."""
+    if input_format != "text":
+        return ""
+    return (
+        "; if a line break ends each record or sentence of this text, read it with "
+        "--input-format lines (a document per line) or sentence-lines (a sentence per line)"
+    )
 
 
 def chunks(items: Iterable[Item], chunk_chars: int, stop_at_skip: bool) -> Iterator[list[Item]]:
@@ -97,6 +123,7 @@ class Engine:
 
     def analyse(self, doc: Document) -> Analysed | Skipped:
         limit = self.settings.max_sentence_tokens
+        document = doc.part.document if doc.part is not None else None
         if doc.sentence is not None:
             spec = self.tagger.features
             if spec is not None and doc.sentence.rows:
@@ -117,22 +144,24 @@ class Engine:
                 position += len(token) + 1
             ends = [s + len(t) for s, t in zip(starts, tokens, strict=True)]
             return Analysed(doc, [tokens], [starts], [ends])
-        sentences: list[TextSentence] = split_sentences(doc.text, self.settings)
         analysed = Analysed(doc, [], [], [])
-        for sentence in sentences:
+        for shift, sentence in document_sentences(
+            doc.text, self.settings, doc.line_breaks_end_sentences
+        ):
             if sentence.cut:
+                start = shift + sentence.start
                 line = doc.line
                 if doc.record is None:  # a text file: count its lines; a jsonl text is one line
-                    line += doc.text.count("\n", 0, sentence.start)
+                    line += doc.text.count("\n", 0, start)
                 return Skipped(
                     doc.source,
                     line,
-                    f"a sentence longer than max_sentence_tokens={limit} tokens starts at "
-                    f"character {sentence.start} of the document",
+                    too_long(limit, doc.offset + start, doc.input_format),
+                    document,
                 )
             analysed.tokens.append([t.text for t in sentence.tokens])
-            analysed.starts.append([t.start for t in sentence.tokens])
-            analysed.ends.append([t.end for t in sentence.tokens])
+            analysed.starts.append([shift + t.start for t in sentence.tokens])
+            analysed.ends.append([shift + t.end for t in sentence.tokens])
         return analysed
 
     def tag(self, items: Sequence[Item]) -> list[TaggedDocument | Skipped]:
@@ -147,20 +176,23 @@ class Engine:
                 if a.doc.sentence is None:
                     raise self.tagger.features.refusal(a.doc.source)  # type: ignore[union-attr]
             rows = [a.doc.sentence.rows for a in analysed]  # type: ignore[union-attr]
-        scored = iter(self.tagger.predict_scored_spans(token_lists, self.batch_size, rows=rows))
+        scored = iter(self.tagger.predict_sentences(token_lists, self.batch_size, rows=rows))
         results: list[TaggedDocument | Skipped] = []
         for entry in prepared:
             if isinstance(entry, Skipped):
                 results.append(entry)
                 continue
-            text = entry.doc.text
+            text, offset = entry.doc.text, entry.doc.offset
             spans: list[TaggedSpan] = []
-            per_sentence = []
-            for starts, ends in zip(entry.starts, entry.ends, strict=True):
-                found = next(scored)
-                per_sentence.append(found)
-                for label, first, last, score in found:
+            sentences = [next(scored) for _ in entry.starts]
+            for starts, ends, found in zip(entry.starts, entry.ends, sentences, strict=True):
+                for label, first, last, score in found.spans:
                     start, end = starts[first], ends[last - 1]
-                    spans.append(TaggedSpan(start, end, label, text[start:end], score))
-            results.append(TaggedDocument(entry.doc, spans, per_sentence, entry))
+                    spans.append(
+                        TaggedSpan(offset + start, offset + end, label, text[start:end], score)
+                    )
+            per_sentence = [found.spans for found in sentences]
+            results.append(
+                TaggedDocument(entry.doc, spans, per_sentence, entry, least_certain(sentences))
+            )
         return results

@@ -1,31 +1,47 @@
-"""Output formats of tagged documents, and what one chunk of them adds to a run's counts.
+"""Output formats of tagged documents: what each document, or piece of one, writes.
 
     jsonl    one object per document: its input keys (id first, added as "SOURCE:LINE" when the
              input has none), "text", "spans" (start, end, label, text, score) and "review"
              ("spans" and "review" keys of the input, e.g. from an earlier run, are replaced)
     columns  one token per line with the predicted label appended, in the training files' scheme
-             (or `scheme`); a blank line after each sentence; documents read from text or jsonl
-             start with a "-DOCSTART- ID" line
+             (or `scheme`), columns separated as in the input column file (TAB or space); a
+             blank line after each sentence; documents read from text, lines or jsonl start with
+             a "-DOCSTART- ID" line
     table    tab-separated spans with a header row: document, start, end, label, score, text;
              backslash, TAB, CR and LF in a field are written as \\\\ \\t \\r \\n
 
-Spans below `min_score` are left out; a document is flagged for review when any span the model
-found in it, left out or kept, scores below `review_below`.
+Spans below `min_score` are left out; a document is flagged for review when the model is less
+sure than `review_below` of the label it chose at any of its tokens, in a span (left out or kept)
+or outside one (`tagger.apply.review`); a document read in pieces, when any piece is.
+
+A plain-text document read in pieces is formatted piece by piece (`Output.part` set) and joined
+into the very text the whole document would give by `tagger.apply.writing`.
 """
 
 from __future__ import annotations
 
 import json
 from dataclasses import dataclass, field
+from enum import StrEnum
 from typing import Any
 
-from tagger.apply.documents import Skipped
+from tagger.apply.documents import Part, Skipped
 from tagger.apply.engine import SCORE_DIGITS, TaggedDocument
+from tagger.apply.review import needs_review
 from tagger.data.corpus import Sentence, format_sentence
 from tagger.data.schemes import spans_to_tags
 from tagger.errors import DataError
 
-OUTPUT_FORMATS = ("jsonl", "columns", "table")
+
+class OutputFormat(StrEnum):
+    """How tagged documents are written (see the module docstring)."""
+
+    JSONL = "jsonl"
+    COLUMNS = "columns"
+    TABLE = "table"
+
+
+OUTPUT_FORMATS: tuple[str, ...] = tuple(f.value for f in OutputFormat)
 TABLE_HEADER = "document\tstart\tend\tlabel\tscore\ttext\n"
 
 _TABLE_ESCAPES = str.maketrans({"\\": "\\\\", "\t": "\\t", "\n": "\\n", "\r": "\\r"})
@@ -37,17 +53,33 @@ def table_field(value: Any) -> str:
     return text.translate(_TABLE_ESCAPES)
 
 
-@dataclass
-class ChunkResult:
-    """One chunk's output text and what it adds to the run's summary."""
+def _json(value: Any) -> str:
+    return json.dumps(value, ensure_ascii=False)
 
-    text: str = ""
-    documents: int = 0
+
+@dataclass
+class Output:
+    """What one document, or one piece of a document read in pieces, writes and counts."""
+
+    text: str  # the document's output; a piece's share of it (jsonl: its text, JSON-escaped)
+    part: Part | None = None  # set on a piece of a document read in several pieces
+    head: str = ""  # jsonl, a first piece: the record up to the opening quote of its text
+    spans_json: str = ""  # jsonl, a piece: its spans as JSON objects joined by ", "
     sentences: int = 0
     tokens: int = 0
-    spans: int = 0
-    review: int = 0
-    skipped: list[Skipped] = field(default_factory=list)
+    spans: int = 0  # spans written (at or above min_score)
+    review: bool = False
+
+
+@dataclass
+class ChunkResult:
+    """One chunk's outputs and skipped items, in input order."""
+
+    entries: list[Output | Skipped] = field(default_factory=list)
+
+    @property
+    def skipped(self) -> list[Skipped]:
+        return [entry for entry in self.entries if isinstance(entry, Skipped)]
 
 
 @dataclass(frozen=True)
@@ -61,48 +93,65 @@ class DocumentFormatter:
 
     def chunk(self, tagged: list[TaggedDocument | Skipped]) -> ChunkResult:
         """The output of one chunk, in order; a document its format cannot hold is skipped."""
-        parts: list[str] = []
         result = ChunkResult()
         for entry in tagged:
             if isinstance(entry, Skipped):
-                result.skipped.append(entry)
+                result.entries.append(entry)
                 continue
             try:
-                parts.append(self.format(entry))
+                result.entries.append(self.output(entry))
             except DataError as error:  # a token the column format cannot hold
-                result.skipped.append(
-                    Skipped(entry.document.source, entry.document.line, error.message)
-                )
-                continue
-            kept = [s for s in entry.spans if s.score >= self.min_score]
-            result.documents += 1
-            result.sentences += len(entry.analysed.tokens)
-            result.tokens += sum(len(t) for t in entry.analysed.tokens)
-            result.spans += len(kept)
-            result.review += any(s.score < self.review_below for s in entry.spans)
-        result.text = "".join(parts)
+                doc = entry.document
+                document = doc.part.document if doc.part is not None else None
+                result.entries.append(Skipped(doc.source, doc.line, error.message, document))
         return result
 
-    def format(self, entry: TaggedDocument) -> str:
+    def output(self, entry: TaggedDocument) -> Output:
+        """A document's output and counts; a piece's share when the document has several."""
         doc = entry.document
         kept = [s for s in entry.spans if s.score >= self.min_score]
+        output = Output(
+            "",
+            sentences=len(entry.analysed.tokens),
+            tokens=sum(len(t) for t in entry.analysed.tokens),
+            spans=len(kept),
+            review=needs_review(entry.certainty, self.review_below),
+        )
+        if not doc.whole:
+            output.part = doc.part
         if self.output_format == "jsonl":
-            record: dict[str, Any] = (
-                {"id": doc.id} if doc.record is None or "id" not in doc.record else {}
-            )
-            record.update(doc.record if doc.record is not None else {"text": doc.text})
-            record["spans"] = [s.to_dict() for s in kept]
-            record["review"] = any(s.score < self.review_below for s in entry.spans)
-            return json.dumps(record, ensure_ascii=False) + "\n"
-        if self.output_format == "table":
+            if doc.whole:
+                output.text = self._record(entry, kept, output.review)
+            else:
+                # Only plain text comes in pieces: its record is id, text, spans, review.
+                output.head = '{"id": ' + _json(doc.id) + ', "text": "' if doc.first else ""
+                output.text = _json(doc.text)[1:-1]
+                output.spans_json = ", ".join(_json(s.to_dict()) for s in kept)
+        elif self.output_format == "table":
             name = table_field(doc.id)
-            return "".join(
+            output.text = "".join(
                 f"{name}\t{s.start}\t{s.end}\t{table_field(s.label)}\t"
                 f"{round(s.score, SCORE_DIGITS)}\t{table_field(s.text)}\n"
                 for s in kept
             )
+        else:
+            output.text = self._columns(entry)
+        return output
+
+    def _record(self, entry: TaggedDocument, kept: list[Any], review: bool) -> str:
+        doc = entry.document
+        record: dict[str, Any] = (
+            {"id": doc.id} if doc.record is None or "id" not in doc.record else {}
+        )
+        record.update(doc.record if doc.record is not None else {"text": doc.text})
+        record["spans"] = [s.to_dict() for s in kept]
+        record["review"] = review
+        return _json(record) + "\n"
+
+    def _columns(self, entry: TaggedDocument) -> str:
+        doc = entry.document
         parts = []
-        if doc.sentence is None:
+        if doc.sentence is None and doc.first:
             parts.append(f"-DOCSTART- {table_field(doc.id)}\n\n")
         for tokens, found in zip(entry.analysed.tokens, entry.token_spans, strict=True):
             chosen = [(t, a, b) for t, a, b, score in found if score >= self.min_score]
@@ -111,5 +160,5 @@ class DocumentFormatter:
                 sentence = doc.sentence.with_labels(labels)
             else:
                 sentence = Sentence.from_tokens(tokens, labels)
-            parts.append(format_sentence(sentence))
+            parts.append(format_sentence(sentence, doc.separator))
         return "".join(parts)

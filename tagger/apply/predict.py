@@ -1,4 +1,6 @@
-"""Prediction on token lists: the torch work behind `Tagger.predict_scored_spans`.
+"""Prediction on token lists: the torch work behind `Tagger.predict_sentences` (spans, their
+scores and each sentence's certainty for the review flag), and label probabilities at a
+temperature (`tagger.apply.calibration` fits it).
 
 Built for many sentences at once: a token's character features do not depend on its neighbours,
 so they are computed once per distinct token of a call, not per occurrence, and each distinct
@@ -8,18 +10,20 @@ matches) do depend on the sentence, so they are computed per sentence.
 
 from __future__ import annotations
 
-from collections.abc import Sequence
+from collections.abc import Iterator, Sequence
 from typing import TYPE_CHECKING
 
 import numpy as np
 import torch
 
+from tagger.apply.review import ScoredSentence
 from tagger.network.batching import EncodedSentence, encode_sentence
+from tagger.network.crf import CRF
 from tagger.network.net import TaggerNet
 from tagger.text.vocab import Vocabularies
 
 if TYPE_CHECKING:
-    from tagger.apply.tagger import Rows, ScoredSpan, Tagger
+    from tagger.apply.tagger import Rows, Tagger
 
 TOKEN_CACHE = 50_000  # distinct tokens whose ids are remembered between calls (a few MB)
 
@@ -53,65 +57,127 @@ def net_slots(net: TaggerNet) -> int:
     return 0 if net.features is None else len(net.features)
 
 
-@torch.inference_mode()
-def scored_spans(
+def label_probabilities(
+    net: TaggerNet, emissions: torch.Tensor, mask: torch.Tensor, temperature: float = 1.0
+) -> torch.Tensor:
+    """(B, T, L): P(label at t | sentence), the CRF's marginals (or the softmax without a CRF),
+    with every score of the model divided by ``temperature``.
+
+    Dividing all scores of a label path (emissions, and the CRF's start, transition and end
+    scores) by the same temperature keeps the best path and spreads (above 1) or sharpens
+    (below 1) the probabilities around it; forbidden transitions stay forbidden."""
+    if temperature == 1.0:
+        return net.label_probabilities(emissions, mask)
+    if net.crf is None:
+        return (emissions / temperature).softmax(-1)
+    return tempered_crf(net.crf, temperature).marginals(emissions / temperature, mask)
+
+
+def tempered_crf(crf: CRF, temperature: float) -> CRF:
+    """A copy of ``crf`` whose learnt start, transition and end scores are divided by
+    ``temperature`` (forbidden ones stay forbidden: the constraints are copied as they are)."""
+    with torch.inference_mode(False), torch.no_grad():
+        tempered = CRF(
+            crf.num_labels, crf.start_ok.tolist(), crf.trans_ok.tolist(), crf.end_ok.tolist()
+        )
+        for name in ("transitions", "start", "end"):
+            getattr(tempered, name).copy_(getattr(crf, name) / temperature)
+    return tempered
+
+
+def emission_batches(
+    tagger: Tagger,
+    token_lists: Sequence[Sequence[str]],
+    batch_size: int,
+    rows: Rows | None = None,
+) -> Iterator[tuple[list[int], torch.Tensor, torch.Tensor]]:
+    """(indices into ``token_lists``, emissions (B, T, L), mask (B, T)) of each batch of the
+    non-empty sentences, the network in evaluation mode and without gradients.
+
+    Sentences of similar lengths are batched together, so the indices are not in order."""
+    features = tagger.feature_ids(token_lists, rows)  # before any work: may refuse the input
+    net = tagger.net
+    was_training = net.training
+    net.eval()
+    try:
+        with torch.inference_mode():
+            # Distinct tokens get ids 1.., 0 is padding:  token_rows[s][t] = id of token t of s.
+            distinct: dict[str, int] = {}
+            token_rows = [
+                [distinct.setdefault(t, len(distinct) + 1) for t in tokens]
+                for tokens in token_lists
+            ]
+            (encoded,) = (
+                tagger.encode_cached([list(distinct)]) if distinct else (EncodedSentence([], []),)
+            )
+            word_of = torch.tensor([0, *encoded.words])  # (N+1,) word id of each distinct token
+            char_table = _char_features(net, [[0], *encoded.chars])  # (N+1, F) or None
+            real = [i for i, tokens in enumerate(token_lists) if len(tokens) > 0]
+            real.sort(key=lambda i: len(token_lists[i]))  # similar lengths: little padding
+        for first in range(0, len(real), batch_size):
+            with torch.inference_mode():
+                indices = real[first : first + batch_size]
+                lengths = [len(token_rows[i]) for i in indices]
+                ids = np.zeros((len(indices), max(lengths)), dtype=np.int64)  # (B, T)
+                for b, i in enumerate(indices):
+                    ids[b, : lengths[b]] = token_rows[i]
+                ids_tensor = torch.from_numpy(ids)
+                mask = ids_tensor != 0  # (B, T)
+                char_features = None if char_table is None else char_table[ids_tensor]
+                feature_tensor = None
+                if tagger.features is not None:
+                    slots = np.zeros((*ids.shape, net_slots(net)), dtype=np.int64)  # (B, T, K)
+                    for b, i in enumerate(indices):
+                        slots[b, : lengths[b]] = np.asarray(features[i], dtype=np.int64).T
+                    feature_tensor = torch.from_numpy(slots)
+                emissions = net.emissions(
+                    word_of[ids_tensor],
+                    None,
+                    torch.tensor(lengths),
+                    char_features,
+                    feature_tensor,
+                )
+            yield indices, emissions, mask
+    finally:
+        net.train(was_training)
+
+
+def scored_sentences(
     tagger: Tagger,
     token_lists: Sequence[Sequence[str]],
     batch_size: int,
     with_scores: bool,
     rows: Rows | None,
-) -> list[list[ScoredSpan]]:
-    """See `Tagger.predict_scored_spans`."""
-    features = tagger.feature_ids(token_lists, rows)  # before any work: may refuse the input
+    temperature: float | None = None,
+) -> list[ScoredSentence]:
+    """See `Tagger.predict_sentences`; ``temperature`` None is the model's own."""
     net = tagger.net
-    was_training = net.training
-    net.eval()
-    # Distinct tokens get ids 1.., 0 is padding:  token_rows[s][t] = id of token t of sentence s.
-    distinct: dict[str, int] = {}
-    token_rows = [
-        [distinct.setdefault(t, len(distinct) + 1) for t in tokens] for tokens in token_lists
-    ]
-    (encoded,) = tagger.encode_cached([list(distinct)]) if distinct else (EncodedSentence([], []),)
-    word_of = torch.tensor([0, *encoded.words])  # (N+1,) word id of each distinct token
-    char_table = _char_features(net, [[0], *encoded.chars])  # (N+1, char features) or None
-    result: list[list[ScoredSpan]] = [[] for _ in token_lists]
-    real = [i for i, tokens in enumerate(token_lists) if len(tokens) > 0]
-    real.sort(key=lambda i: len(token_lists[i]))  # similar lengths together: little padding
-    for first in range(0, len(real), batch_size):
-        indices = real[first : first + batch_size]
-        lengths = [len(token_rows[i]) for i in indices]
-        ids = np.zeros((len(indices), max(lengths)), dtype=np.int64)  # (B, T)
-        for b, i in enumerate(indices):
-            ids[b, : lengths[b]] = token_rows[i]
-        ids_tensor = torch.from_numpy(ids)
-        length_tensor = torch.tensor(lengths)
-        mask = ids_tensor != 0  # (B, T)
-        char_features = None if char_table is None else char_table[ids_tensor]
-        feature_tensor = None
-        if tagger.features is not None:
-            slots = np.zeros((*ids.shape, net_slots(net)), dtype=np.int64)  # (B, T, K)
-            for b, i in enumerate(indices):
-                slots[b, : lengths[b]] = np.asarray(features[i], dtype=np.int64).T
-            feature_tensor = torch.from_numpy(slots)
-        emissions = net.emissions(
-            word_of[ids_tensor], None, length_tensor, char_features, feature_tensor
-        )
-        paths = net.decode(emissions, mask)
-        if not with_scores:
-            for i, path in zip(indices, paths, strict=True):
-                result[i] = [(t, s, e, 1.0) for t, s, e in tagger.label_ids_to_spans(path)]
-            continue
-        probabilities = net.label_probabilities(emissions, mask)  # (B, T, L)
-        chosen = np.zeros(ids.shape, dtype=np.int64)  # (B, T) decoded label ids
-        for b, path in enumerate(paths):
-            chosen[b, : len(path)] = path
-        picked = probabilities.gather(2, torch.from_numpy(chosen).unsqueeze(2)).squeeze(2)
+    temperature = tagger.temperature if temperature is None else temperature
+    crf = None
+    if with_scores and temperature != 1.0 and net.crf is not None:
+        crf = tempered_crf(net.crf, temperature)  # made once, outside inference mode
+    result = [ScoredSentence([]) for _ in token_lists]
+    for indices, emissions, mask in emission_batches(tagger, token_lists, batch_size, rows):
+        with torch.inference_mode():
+            paths = net.decode(emissions, mask)
+            if not with_scores:
+                for i, path in zip(indices, paths, strict=True):
+                    spans = [(t, s, e, 1.0) for t, s, e in tagger.label_ids_to_spans(path)]
+                    result[i] = ScoredSentence(spans)
+                continue
+            if crf is not None:
+                probabilities = crf.marginals(emissions / temperature, mask)  # (B, T, L)
+            else:
+                probabilities = label_probabilities(net, emissions, mask, temperature)
+            chosen = np.zeros(tuple(mask.shape), dtype=np.int64)  # (B, T) decoded label ids
+            for b, path in enumerate(paths):
+                chosen[b, : len(path)] = path
+            picked = probabilities.gather(2, torch.from_numpy(chosen).unsqueeze(2)).squeeze(2)
         for i, path, p in zip(indices, paths, picked.tolist(), strict=True):
             # exp() of a log-probability may overshoot 1 by a rounding error
-            result[i] = [
-                (t, s, e, min(1.0, min(p[s:e]))) for t, s, e in tagger.label_ids_to_spans(path)
-            ]
-    net.train(was_training)
+            sure = [min(1.0, q) for q in p[: len(path)]]
+            spans = [(t, s, e, min(sure[s:e])) for t, s, e in tagger.label_ids_to_spans(path)]
+            result[i] = ScoredSentence(spans, min(sure))
     return result
 
 

@@ -17,9 +17,11 @@ from typing import TYPE_CHECKING, Any
 
 from tagger.apply.documents import Document, Skipped
 from tagger.apply.engine import CHUNK_CHARS, Engine, TaggedSpan, chunks
+from tagger.apply.review import ScoredSentence, ScoredSpan
 from tagger.config import Config
+from tagger.data.corpus import ColumnFormat
 from tagger.data.schemes import Span, read_spans, spans_to_tags, split_tag
-from tagger.errors import DataError, ModelFileError
+from tagger.errors import DataError, ModelFileError, TaggerError
 from tagger.text.features import FeatureSpec
 from tagger.text.tokenizer import TextSentence, TokenizerSettings, split_sentences
 from tagger.text.vocab import Vocabularies
@@ -32,9 +34,10 @@ if TYPE_CHECKING:
     from tagger.network.metadata import StoredModel
     from tagger.network.net import TaggerNet
 
+# The metadata key training stores the column layout of its files under (see `column_layout`).
+COLUMN_LAYOUT_KEY = "column_layout"
 PREDICT_BATCH = 64  # sentences per batch when predicting (PERFORMANCE.md: 64-128 on 2 threads)
 
-ScoredSpan = tuple[str, int, int, float]  # (type, start, end, score), end exclusive
 Rows = Sequence[Sequence[Sequence[str]]]  # per sentence, per token: every column of its line
 
 
@@ -158,9 +161,36 @@ class Tagger:
         return self.features is not None and self.features.needs_columns
 
     @property
+    def column_layout(self) -> ColumnFormat | None:
+        """How the training files' columns were read (token column, label column, delimiter),
+        for reading gold files of the same layout; None for a model trained on sentences in
+        memory, or saved before models kept their layout. The encoding is not kept: a file in
+        another encoding than the one named would read as wrong text, not fail."""
+        stored = self.meta.get(COLUMN_LAYOUT_KEY)
+        if stored is None:
+            return None
+        try:
+            delimiter = stored["delimiter"]
+            return ColumnFormat(
+                delimiter=None if delimiter == "auto" else delimiter,
+                token_column=stored["token_column"],
+                label_column=stored["label_column"],
+            )
+        except (KeyError, TypeError, TaggerError) as error:
+            raise ModelFileError(
+                f"the model's stored column layout is unreadable ({error})"
+            ) from None
+
+    @property
     def tokenizer_settings(self) -> TokenizerSettings:
         """The tokenizer settings the model was trained with."""
         return read_tokenizer_settings(self.meta)
+
+    @property
+    def temperature(self) -> float:
+        """What the model's scores are divided by before its probabilities are read: fitted on
+        dev when training ends (`tagger.apply.calibration`); 1.0 for models without one."""
+        return float(self.meta.get("calibration", {}).get("temperature", 1.0))
 
     def tokenize(self, text: str) -> list[TextSentence]:
         """The sentences and tokens the tagger sees in `text`."""
@@ -220,6 +250,29 @@ class Tagger:
         parts = self._label_parts
         return read_spans([parts[j] for j in ids])
 
+    def predict_sentences(
+        self,
+        token_lists: Sequence[Sequence[str]],
+        batch_size: int = PREDICT_BATCH,
+        with_scores: bool = True,
+        rows: Rows | None = None,
+        temperature: float | None = None,
+    ) -> list[ScoredSentence]:
+        """Per sentence, its spans with a confidence score in [0, 1] each, and its certainty.
+
+        A span's score is the smallest, over its tokens, of the probability the model gives the
+        label the decoder chose at that token: the CRF's marginal P(label at t | sentence), or the
+        softmax probability without a CRF, at the model's fitted ``temperature`` (None) or the
+        one given. A span scores high only if every one of its tokens is sure, so one doubtful
+        boundary or type is enough to flag it. A sentence's certainty is the same smallest
+        probability over all of its tokens, those outside spans included (see
+        `tagger.apply.review`). Without ``with_scores`` every score and certainty is 1.0. Empty
+        sentences get no spans. ``rows`` gives the column-file lines of models that read columns.
+        """
+        from tagger.apply.predict import scored_sentences
+
+        return scored_sentences(self, token_lists, batch_size, with_scores, rows, temperature)
+
     def predict_scored_spans(
         self,
         token_lists: Sequence[Sequence[str]],
@@ -227,17 +280,9 @@ class Tagger:
         with_scores: bool = True,
         rows: Rows | None = None,
     ) -> list[list[ScoredSpan]]:
-        """Spans per sentence, each with a confidence score in [0, 1] (1.0 without ``with_scores``).
-
-        A span's score is the smallest, over its tokens, of the probability the model gives the
-        label the decoder chose at that token: the CRF's marginal P(label at t | sentence), or the
-        softmax probability without a CRF. A span scores high only if every one of its tokens is
-        sure, so one doubtful boundary or type is enough to flag it. Empty sentences get no spans.
-        ``rows`` gives the column-file lines of models that read columns.
-        """
-        from tagger.apply.predict import scored_spans
-
-        return scored_spans(self, token_lists, batch_size, with_scores, rows)
+        """Spans per sentence, each with its confidence score (see :meth:`predict_sentences`)."""
+        sentences = self.predict_sentences(token_lists, batch_size, with_scores, rows)
+        return [sentence.spans for sentence in sentences]
 
     def predict_spans(
         self,

@@ -9,12 +9,13 @@ A model that reads extra columns tags column files only: text and jsonl inputs a
 front with `FeatureInputError` (the columns it learnt from are not there to read).
 
 Streaming: each chunk of documents is tokenised, tagged and formatted, and written before the next
-is read. With several workers, chunks go to a pool of processes that each load the model once;
+is read; plain text comes in pieces of about `chunk_chars` characters (`tagger.apply.plaintext`),
+joined again on writing (`tagger.apply.writing`). With several workers, chunks go to a pool of processes that each load the model once;
 results are written in input order.
 
 Bad input never vanishes: every item `read_documents` could not read, a sentence longer than
 `max_sentence_tokens` and a token the columns output cannot hold become `Skipped` records naming
-file and line. With `on_error="stop"` the first one (in input order) raises DataError; with "skip"
+file and line (a bad piece of a plain-text document skips the whole document). With `on_error="stop"` the first one (in input order) raises DataError; with "skip"
 the run goes on and the summary lists each one.
 """
 
@@ -24,25 +25,28 @@ import time
 from collections.abc import Callable, Iterator, Sequence
 from contextlib import closing
 from dataclasses import dataclass, field, replace
+from enum import StrEnum
 from pathlib import Path
 
-from tagger.apply.documents import (
-    INPUT_FORMATS,
-    STDIO,
-    Item,
-    Skipped,
-    detect_input_format,
-    read_documents,
-)
+from tagger.apply.documents import INPUT_FORMATS, STDIO, Item, detect_input_format, read_documents
 from tagger.apply.engine import CHUNK_CHARS, Engine, chunks
 from tagger.apply.outputs import OUTPUT_FORMATS, TABLE_HEADER, ChunkResult, DocumentFormatter
 from tagger.apply.pool import pooled
 from tagger.apply.tagger import PREDICT_BATCH, Tagger
+from tagger.apply.writing import OutputWriter, Tally
 from tagger.data.atomic import atomic_output
 from tagger.data.schemes import normalise_scheme_name
 from tagger.errors import ConfigError
 
-ON_ERROR = ("stop", "skip")
+
+class OnError(StrEnum):
+    """What a bad input item does: stop the run at it, or skip it and go on."""
+
+    STOP = "stop"
+    SKIP = "skip"
+
+
+ON_ERROR: tuple[str, ...] = tuple(f.value for f in OnError)
 
 
 @dataclass(frozen=True)
@@ -92,16 +96,10 @@ class TagOptions:
 
 
 @dataclass
-class TagSummary:
-    """What a run did; `skipped` lists every input item left out, in input order."""
+class TagSummary(Tally):
+    """What a run did (the counts of `Tally`), how long it took and remarks for people."""
 
-    documents: int = 0
-    sentences: int = 0
-    tokens: int = 0
-    spans: int = 0
-    review: int = 0  # documents flagged for review
     seconds: float = 0.0
-    skipped: list[Skipped] = field(default_factory=list)
     notes: list[str] = field(default_factory=list)
 
     @property
@@ -167,7 +165,14 @@ def tag_files(
                 raise tagger.features.refusal(f"{name} ({kind} input)")
     job = _job(tagger, options)
     summary = TagSummary(notes=list(tagger.notes))
-    items = read_documents(inputs, options.input_format, options.token_column, summary.notes)
+    items = read_documents(
+        inputs,
+        options.input_format,
+        options.token_column,
+        summary.notes,
+        piece_chars=options.chunk_chars,
+        settings=job.engine.settings,
+    )
     chunked = chunks(items, options.chunk_chars, stop_at_skip=options.on_error == "stop")
     if options.workers > 1:
         results: Iterator[ChunkResult] = pooled(
@@ -178,18 +183,17 @@ def tag_files(
     with closing(results), atomic_output(out, "w") as handle:
         if options.output_format == "table":
             handle.write(TABLE_HEADER)
-        for result in results:
-            if result.skipped and options.on_error == "stop":
-                raise result.skipped[0].error()
-            handle.write(result.text)
-            summary.documents += result.documents
-            summary.sentences += result.sentences
-            summary.tokens += result.tokens
-            summary.spans += result.spans
-            summary.review += result.review
-            summary.skipped.extend(result.skipped)
-            summary.seconds = time.monotonic() - started
-            if progress is not None:
-                progress(summary)
+        writer = OutputWriter(handle, options.output_format, summary)
+        try:
+            for result in results:
+                skipped = result.skipped
+                if skipped and options.on_error == "stop":
+                    raise skipped[0].error()
+                writer.write(result)
+                summary.seconds = time.monotonic() - started
+                if progress is not None:
+                    progress(summary)
+        finally:
+            writer.close()
     summary.seconds = time.monotonic() - started
     return summary

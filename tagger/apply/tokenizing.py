@@ -1,4 +1,5 @@
-"""`tokenize_files`: the sentences and tokens the tagger sees in text and jsonl inputs, with offsets."""
+"""`tokenize_files`: the sentences and tokens the tagger sees in text, lines and jsonl inputs,
+with offsets."""
 
 from __future__ import annotations
 
@@ -6,10 +7,14 @@ from collections.abc import Sequence
 from pathlib import Path
 
 from tagger.apply.documents import STDIO, Skipped, detect_input_format, read_documents
+from tagger.apply.engine import line_inputs_hint, too_long
 from tagger.apply.outputs import table_field
+from tagger.apply.plaintext import document_sentences
 from tagger.data.atomic import atomic_output
 from tagger.errors import ConfigError
-from tagger.text.tokenizer import TokenizerSettings, split_sentences
+from tagger.text.tokenizer import TokenizerSettings
+
+ONE_DOCUMENT_FORMATS = ("text", "sentence-lines")  # an input of these is one document
 
 
 def tokenize_files(
@@ -29,27 +34,34 @@ def tokenize_files(
     ):
         raise ConfigError("column files are tokenised already; tokenize reads text or jsonl")
     sources = list(inputs) or [STDIO]
-    single = len(sources) == 1 and (
-        input_format == "text"
-        or (input_format == "auto" and detect_input_format(sources[0]) == "text")
-    )
+    kind = input_format if input_format != "auto" else detect_input_format(sources[0])
+    single = len(sources) == 1 and kind in ONE_DOCUMENT_FORMATS
     notes: list[str] = []
     with atomic_output(out, "w") as handle:
-        for item in read_documents(sources, input_format):
+        for item in read_documents(sources, input_format, settings=settings):
             if isinstance(item, Skipped):
                 raise item.error()
-            parts = [] if single else [f"-DOCSTART- {table_field(item.id)}\n\n"]
-            for sentence in split_sentences(item.text, settings):
+            parts = [] if single or not item.first else [f"-DOCSTART- {table_field(item.id)}\n\n"]
+            offset = item.offset
+            for shift, sentence in document_sentences(
+                item.text, settings, item.line_breaks_end_sentences
+            ):
+                start = shift + sentence.start
                 if sentence.cut:
                     line = item.line + (
-                        item.text.count("\n", 0, sentence.start) if item.record is None else 0
+                        item.text.count("\n", 0, start) if item.record is None else 0
                     )
+                    cut_at = offset + shift + sentence.tokens[-1].end
                     notes.append(
-                        f"{item.source}:{line}: a sentence longer than max_sentence_tokens="
-                        f"{settings.max_sentence_tokens} tokens was cut at character "
-                        f"{sentence.tokens[-1].end}; tag reports it as bad input"
+                        f"{item.source}:{line}: "
+                        f"{too_long(settings.max_sentence_tokens, offset + start, None)} and was "
+                        f"cut at character {cut_at}; tag reports it as bad input"
+                        + line_inputs_hint(item.input_format)
                     )
-                parts.extend(f"{t.text}\t{t.start}\t{t.end}\n" for t in sentence.tokens)
+                parts.extend(
+                    f"{t.text}\t{offset + shift + t.start}\t{offset + shift + t.end}\n"
+                    for t in sentence.tokens
+                )
                 parts.append("\n")
             handle.write("".join(parts))
     return notes

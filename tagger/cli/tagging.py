@@ -7,6 +7,9 @@ from typing import Annotated
 
 import typer
 
+from tagger.apply.documents import InputFormat
+from tagger.apply.outputs import OutputFormat
+from tagger.apply.tagging import OnError
 from tagger.cli.common import (
     ModelFile,
     TokenColumn,
@@ -15,9 +18,30 @@ from tagger.cli.common import (
     domain_errors,
     input_names,
     say,
+    usable_output,
 )
 from tagger.cli.progress import TaggingProgress
+from tagger.data.io import is_stdio
+from tagger.data.scheme_rules import SchemeName
 from tagger.errors import TaggerError
+from tagger.reports.notes import CAUTION
+
+_TEXT_FORMATS = (
+    "text (a file is one document), sentence-lines (as text, and a line break ends a sentence), "
+    "lines (every line is a document, its id FILE:LINE)"
+)
+
+
+def _document_inputs(paths: list[Path] | None) -> list[str]:
+    """The input names, a folder or an unexpanded wildcard refused plainly (exit 2)."""
+    from tagger.apply.documents import unopenable
+
+    for path in paths or []:
+        if not is_stdio(path):
+            problem = unopenable(path, "")
+            if problem:
+                raise typer.BadParameter(f"{str(path)!r}: {problem}", param_hint="'INPUTS'")
+    return input_names(paths)
 
 
 @app.command()
@@ -31,35 +55,44 @@ def tag(
         Path, typer.Option("--out", "-o", dir_okay=False, help="Output file ('-' for stdout).")
     ] = Path("-"),
     input_format: Annotated[
-        str,
+        InputFormat,
         typer.Option(
-            help="auto, text, jsonl or columns. auto reads .jsonl/.json as jsonl, "
-            ".conll/.bio/.iob/.tsv as columns, anything else (and stdin) as text."
+            help=f"auto reads .jsonl/.json as jsonl, .conll/.bio/.iob/.tsv as columns, anything "
+            f"else (and stdin) as text; {_TEXT_FORMATS}.",
+            case_sensitive=False,
         ),
-    ] = "auto",
+    ] = InputFormat.AUTO,
     output_format: Annotated[
-        str,
+        OutputFormat,
         typer.Option(
             help="jsonl (a record per document), columns (token and label per line) or "
-            "table (tab-separated spans with a header)."
+            "table (tab-separated spans with a header).",
+            case_sensitive=False,
         ),
-    ] = "jsonl",
+    ] = OutputFormat.JSONL,
     scheme: Annotated[
-        str | None,
-        typer.Option(help="Label scheme of columns output (default: that of the training files)."),
+        SchemeName | None,
+        typer.Option(
+            help="Tagging scheme of columns output (default: that of the training files).",
+            case_sensitive=False,
+        ),
     ] = None,
     token_column: TokenColumn = 0,
     min_score: Annotated[float, typer.Option(help="Drop spans scoring below this (0 to 1).")] = 0.0,
     review_below: Annotated[
         float,
-        typer.Option(help="Flag documents holding a span that scores below this (0 to 1)."),
+        typer.Option(
+            help="Flag documents where the model gives any token's label (in a span or not) "
+            "a probability below this (0 to 1)."
+        ),
     ] = 0.8,
     on_error: Annotated[
-        str,
+        OnError,
         typer.Option(
-            help="stop: exit 1 at the first bad input item; skip: go on and list each one."
+            help="stop: exit 1 at the first bad input item; skip: go on and list each one.",
+            case_sensitive=False,
         ),
-    ] = "stop",
+    ] = OnError.STOP,
     max_sentence_tokens: Annotated[
         int | None,
         typer.Option(help="Longest sentence accepted (default: the model's tokenizer setting)."),
@@ -78,7 +111,7 @@ def tag(
     """Tag new documents with a model; spans point into the original text by character offsets."""
     from tagger.apply.tagging import TagOptions, tag_files
 
-    names = input_names(inputs)
+    names = _document_inputs(inputs)
     try:
         options = TagOptions(
             input_format=input_format,
@@ -96,6 +129,7 @@ def tag(
         )
     except TaggerError as error:
         raise typer.BadParameter(str(error)) from None
+    usable_output(out, [model, *(names or ["-"])])
     progress = TaggingProgress()
     try:
         with domain_errors():
@@ -112,13 +146,17 @@ def tag(
     )
     for item in summary.skipped:
         say(f"  skipped {item}")
+    say(CAUTION)
+
+
+_TOKENIZE_FORMATS = ("auto", "text", "sentence-lines", "lines", "jsonl")
 
 
 @app.command()
 def tokenize(
     inputs: Annotated[
         list[Path] | None,
-        typer.Argument(help="Text or jsonl files; '-' or none reads standard input."),
+        typer.Argument(help="Text, lines or jsonl files; '-' or none reads standard input."),
     ] = None,
     model: Annotated[
         Path | None,
@@ -127,7 +165,7 @@ def tokenize(
         ),
     ] = None,
     input_format: Annotated[
-        str, typer.Option(help="auto (from the file name), text or jsonl.")
+        str, typer.Option(help=f"auto (from the file name), {_TEXT_FORMATS} or jsonl.")
     ] = "auto",
     out: Annotated[
         Path, typer.Option("--out", "-o", dir_okay=False, help="Output file ('-' for stdout).")
@@ -137,11 +175,13 @@ def tokenize(
     from tagger.apply.tokenizing import tokenize_files
     from tagger.text.tokenizer import TokenizerSettings
 
-    names = input_names(inputs)
-    if input_format not in ("auto", "text", "jsonl"):
+    names = _document_inputs(inputs)
+    if input_format not in _TOKENIZE_FORMATS:
         raise typer.BadParameter(
-            f"must be auto, text or jsonl, not {input_format!r}", param_hint="--input-format"
+            f"must be {', '.join(_TOKENIZE_FORMATS[:-1])} or jsonl, not {input_format!r}",
+            param_hint="--input-format",
         )
+    usable_output(out, [model, *(names or ["-"])])
     with domain_errors():
         settings = TokenizerSettings()
         model_notes: list[str] = []

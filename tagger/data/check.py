@@ -2,11 +2,14 @@
 with them.
 
 `check_files` reads annotated column files and describes them: counts, the tagging scheme they
-fit, ill-formed transitions, characters one cannot see, sentences labelled two ways, the value
-sets of columns other than token and label, how well given lexicons cover the annotated spans
-(`tagger.data.coverage`), and, across files, what dev/test hold that train does not and which
-sentences they share with train. It returns a plain JSON-ready dict; `tagger.reports.check` lays
-it out as text.
+fit, ill-formed transitions, sentences too long to train on, characters one cannot see, sentences labelled two ways, token
+sequences labelled two ways (`tagger.data.span_labelling`), labels that look like typos
+(`tagger.data.label_typos`), the value sets of columns other than token and label, how well given
+lexicons cover the annotated spans (`tagger.data.coverage`), which annotated tokens the tagging
+tokenizer would not give back whole (`tagger.data.tokenizer_fit`), and, across files, what
+dev/test hold that train does not and which sentences they share with train. It returns a plain
+JSON-ready dict, with the problems that should stop a pipeline listed apart; `tagger.reports.check`
+lays it out as text.
 
 Memory stays proportional to the number of distinct sentences, not to the file: sentences are
 remembered by the hash of their token tuple, and each file is read twice (once to count and to
@@ -28,10 +31,15 @@ from tagger.data.findings import (
     Examples,
     all_tags,
     first_non_tag,
+    gate_problems,
     invisible_example,
     sentence_text,
 )
+from tagger.data.guards import LIMIT_KEY, MAX_SENTENCE_TOKENS
+from tagger.data.label_typos import LikelyTypo, likely_typos
 from tagger.data.schemes import detect_scheme, ill_formed_transitions, spans_lenient
+from tagger.data.span_labelling import SpanLabelling
+from tagger.data.tokenizer_fit import Tokenizer, TokenizerFit
 
 if TYPE_CHECKING:
     from tagger.text.lexicon import Lexicon
@@ -40,10 +48,12 @@ _ANY_FORMAT = ColumnFormat()  # the defaults: detect the delimiter, token first,
 
 # Labels listed per file at most (a wrong label column can hold a whole vocabulary).
 MAX_LABELS_SHOWN = 200
-# Sentences shared with train are also counted among those of at least this many tokens: very
-# short ones ("1 .", "He declined to elaborate .") recur in any large corpus (common practice,
-# not a measured threshold).
-LONG_SENTENCE = 5
+# Sentences shared with train are also counted among those of at least this many tokens, and only
+# those count as leakage (`findings.gate_problems`): short ones recur in any large corpus. The
+# CoNLL-2000 test file shares with train formulaic sentences of up to 6 tokens ("He declined to
+# elaborate .", "In other commodity markets yesterday :") and one true duplicate of 12 tokens
+# (found with `tagger check`).
+LONG_SENTENCE = 8
 # Values shown per extra column (with the count of distinct values).
 SHOWN_VALUES = 5
 
@@ -54,6 +64,7 @@ class _FileScan:
 
     name: str
     limit: int
+    max_tokens: int = MAX_SENTENCE_TOKENS  # longer sentences are refused by train and evaluate
     sentences: int = 0
     tokens: int = 0
     longest: tuple[int, int | None] = (0, None)  # (tokens, first line)
@@ -67,17 +78,24 @@ class _FileScan:
     invisible: Examples = field(init=False)
     not_tags: Examples = field(init=False)
     leaked: Examples = field(init=False)
+    too_long: Examples = field(init=False)
     leaked_long: int = 0
     tag_sentences: int = 0  # sentences whose labels are all span tags
     first_non_tag: tuple[str, int] | None = None  # (label, line)
     values: dict[int, Counter[str]] = field(default_factory=dict)  # extra column -> values
     coverage: list[LexiconCoverage] = field(default_factory=list)
+    # Could the token column be the tag column? (every token a span tag, some not O)
+    tokens_all_tags: bool = True
+    tokens_not_outside: bool = False
+    span_labelling: SpanLabelling = field(default_factory=SpanLabelling)
+    tokenizer_fit: TokenizerFit | None = None
 
     def __post_init__(self) -> None:
         self.inconsistent = Examples(self.limit)
         self.invisible = Examples(self.limit)
         self.not_tags = Examples(self.limit)
         self.leaked = Examples(self.limit)
+        self.too_long = Examples(self.limit)
 
 
 def check_files(
@@ -85,16 +103,21 @@ def check_files(
     fmt: ColumnFormat = _ANY_FORMAT,
     max_examples: int = 5,
     lexicons: Sequence[Lexicon] = (),
+    max_sentence_tokens: int = MAX_SENTENCE_TOKENS,
+    tokenizer: Tokenizer | None = None,
 ) -> dict[str, Any]:
     """Describe annotated column files; the first is taken as train, any others as dev/test.
 
     Returns a JSON-ready dict: {"note": how the files were taken, "train": the first file when
     there are several (else None), "files": one report per file, "against_train": one
-    comparison per later file}.
+    comparison per later file, "problems": the findings that should stop a pipeline (see
+    `gate_problems`)}.
 
     A file's report holds "file", "delimiter", "columns", "lines", "sentences", "tokens",
     "documents", "docstart_lines", "comment_lines", "whitespace_only_lines" (blank lines holding
     spaces or TABs), "trailing_lines", "longest_sentence" {"tokens", "line"},
+    "too_long" (sentences of more than `max_sentence_tokens` tokens, which train and evaluate
+    refuse: {"limit", "key", "count", "examples": [{"line", "tokens"}, ...]}),
     "repeated_sentences", "invisible_characters" and "extra_columns" (per column other than
     token and label: {"column", "distinct", "most_frequent": [{"value", "count"}, ...]});
     with labels also "lexicon_coverage" (per lexicon: {"lexicon", "entries", "spans", "exact",
@@ -103,11 +126,18 @@ def check_files(
     many it misses; how many matches overlap no gold span), "distinct_labels",
     "labels" (most frequent first, at most MAX_LABELS_SHOWN), "labels_not_shown",
     "not_span_tags", "span_types", "spans", "scheme" {"candidates", "ambiguous", "checked_as",
-    "note"}, "ill_formed" (None when no scheme applies) and "inconsistent_labelling"; later
-    files also "also_in_train". Findings with examples are {"count", "examples": [...]}, the
-    examples giving 1-based file lines. A comparison holds "file", "span_types_not_in_train",
+    "note"}, "ill_formed" (None when no scheme applies) and "inconsistent_labelling", and when
+    the label column holds no span tags but other columns do, "tag_column_hint" {"label_column",
+    "token_column", "tag_columns", "tokens_from"} (see `_tag_column_hint`); later files also "also_in_train".
+    Findings with examples are {"count", "examples": [...]}, the examples giving 1-based file
+    lines. A comparison holds "file", "span_types_not_in_train",
     "labels_not_in_train", "train_labels_absent_here", "sentences_also_in_train",
     "longer_sentences_also_in_train" and "sentences".
+    Also "tokenizer_fit" (`tagger.data.tokenizer_fit`, with a `tokenizer`: text -> (start, end)
+    offsets), "span_labelling" ({"types_differ", "span_or_not", "not_followed"}: token sequences
+    that are spans somewhere, labelled as spans of several types, or also found wholly outside
+    spans) and "likely_typos" (rare types and labels close to a frequent one: {"name", "kind",
+    "count", "lines", "near", "near_count", "how"}).
     Raises DataError for unreadable files, as the reader does.
     """
     if not paths:
@@ -118,7 +148,15 @@ def check_files(
     comparisons: list[dict[str, Any]] = []
     train: _FileScan | None = None
     for index, path in enumerate(paths):
-        scan, report = _check_one(ColumnSource(path, fmt), fmt, max_examples, train, lexicons)
+        scan, report = _check_one(
+            ColumnSource(path, fmt),
+            fmt,
+            max_examples,
+            train,
+            lexicons,
+            max_sentence_tokens,
+            tokenizer,
+        )
         files.append(report)
         if index == 0:
             train = scan
@@ -135,6 +173,7 @@ def check_files(
         "train": files[0]["file"] if len(paths) > 1 else None,
         "files": files,
         "against_train": comparisons,
+        "problems": gate_problems(files, comparisons),
     }
 
 
@@ -144,9 +183,13 @@ def _check_one(
     limit: int,
     train: _FileScan | None,
     lexicons: Sequence[Lexicon] = (),
+    max_tokens: int = MAX_SENTENCE_TOKENS,
+    tokenizer: Tokenizer | None = None,
 ) -> tuple[_FileScan, dict[str, Any]]:
-    scan = _FileScan(name=str(source.path), limit=limit)
+    scan = _FileScan(name=str(source.path), limit=limit, max_tokens=max_tokens)
     scan.coverage = [LexiconCoverage(lexicon) for lexicon in lexicons]
+    if tokenizer is not None:
+        scan.tokenizer_fit = TokenizerFit(tokenizer, limit)
     # First pass: counts, hashes and the scheme. detect_scheme pulls the label sequences through
     # _first_pass, which does the rest of the counting on the way.
     labelled = _first_pass(source, scan, train)
@@ -180,22 +223,8 @@ def _check_one(
                 "note": note,
             }
 
-    # Second pass, only when needed: transitions checked against the scheme found, and the
-    # labels of the first occurrence of each sentence shown as labelled two ways.
-    ill_formed = Examples(limit)
-    wanted = {e["lines"][0]: e for e in scan.inconsistent.examples}
-    if checked_as is not None or wanted:
-        for sentence in source.sentences():
-            first = sentence.line_numbers[0]
-            if first in wanted:
-                _describe_difference(wanted[first], sentence)
-            if checked_as is None or not all_tags(sentence.labels):
-                continue
-            for index, message in ill_formed_transitions(sentence.labels, checked_as):
-                line = sentence.line_numbers[min(index, len(sentence) - 1)]
-                ill_formed.add(
-                    lambda line=line, message=message: {"line": line, "message": message}
-                )
+    typos = likely_typos(scan.labels) if fmt.has_labels else []
+    ill_formed, typo_lines = _second_pass(source, scan, checked_as, typos)
 
     report: dict[str, Any] = {
         "file": scan.name,
@@ -210,6 +239,7 @@ def _check_one(
         "whitespace_only_lines": stats.whitespace_only_lines,
         "trailing_lines": stats.trailing_lines,
         "longest_sentence": {"tokens": scan.longest[0], "line": scan.longest[1]},
+        "too_long": {"limit": scan.max_tokens, "key": LIMIT_KEY, **scan.too_long.as_dict()},
         "repeated_sentences": scan.repeated,
         "invisible_characters": scan.invisible.as_dict(),
         "extra_columns": [
@@ -240,11 +270,80 @@ def _check_one(
                 "scheme": scheme,
                 "ill_formed": ill_formed.as_dict() if checked_as is not None else None,
                 "inconsistent_labelling": scan.inconsistent.as_dict(),
+                "span_labelling": scan.span_labelling.as_dict(limit),
+                "likely_typos": [typo.as_dict(typo_lines) for typo in typos],
             }
         )
+        hint = _tag_column_hint(scan, stats.columns or 0, source.fmt)
+        if hint is not None:
+            report["tag_column_hint"] = hint
+    if scan.tokenizer_fit is not None:
+        report["tokenizer_fit"] = scan.tokenizer_fit.as_dict()
     if train is not None:
         report["also_in_train"] = scan.leaked.as_dict()
     return scan, report
+
+
+def _tag_column_hint(scan: _FileScan, columns: int, fmt: ColumnFormat) -> dict[str, Any] | None:
+    """When the label column holds no span tags but other columns hold nothing else, which ones.
+
+    {"label_column", "token_column": the columns as read, "tag_columns": the columns holding
+    only span tags (some not O), "tokens_from": the column to read the tokens from instead when
+    the tags are in the token column of a two-column file (None when the token column can stay,
+    or when it cannot be told)}; all 0-based."""
+    if scan.tag_sentences or not scan.not_tags.count or not columns:
+        return None
+    token_column = fmt.token_column % columns
+    label_column = fmt.label_column % columns
+    tag_columns = [
+        column
+        for column, values in scan.values.items()
+        if all_tags(list(values)) and any(value != "O" for value in values)
+    ]
+    if scan.tokens_all_tags and scan.tokens_not_outside:
+        tag_columns.append(token_column)
+    if not tag_columns:
+        return None
+    tokens_from = label_column if token_column in tag_columns and columns == 2 else None
+    return {
+        "label_column": label_column,
+        "token_column": token_column,
+        "tag_columns": sorted(tag_columns),
+        "tokens_from": tokens_from,
+    }
+
+
+def _second_pass(
+    source: ColumnSource, scan: _FileScan, checked_as: str | None, typos: Sequence[LikelyTypo]
+) -> tuple[Examples, dict[str, list[int]]]:
+    """Read the file again, when needed, for what the first pass could only tell at its end:
+    transitions checked against the scheme found, the labels of the first occurrence of each
+    sentence labelled two ways, spans' token sequences found outside spans, and the lines of
+    likely typos. Returns the ill-formed transitions and the lines of each typo's labels."""
+    ill_formed = Examples(scan.limit)
+    wanted = {e["lines"][0]: e for e in scan.inconsistent.examples}
+    typo_labels = {label for typo in typos for label in typo.labels}
+    lines: dict[str, list[int]] = {label: [] for label in typo_labels}
+    if checked_as is None and not wanted and not scan.span_labelling.sequences and not typos:
+        return ill_formed, lines
+    for sentence in source.sentences():
+        first = sentence.line_numbers[0]
+        if first in wanted:
+            _describe_difference(wanted[first], sentence)
+        labels = sentence.labels
+        if typo_labels:
+            for index, label in enumerate(labels):
+                if label in typo_labels:
+                    lines[label].append(sentence.line_numbers[index])
+        if not all_tags(labels):
+            continue
+        scan.span_labelling.add_outside(sentence.tokens, labels, sentence.line_numbers)
+        if checked_as is None:
+            continue
+        for index, message in ill_formed_transitions(labels, checked_as):
+            line = sentence.line_numbers[min(index, len(sentence) - 1)]
+            ill_formed.add(lambda line=line, message=message: {"line": line, "message": message})
+    return ill_formed, lines
 
 
 def _first_pass(
@@ -261,16 +360,25 @@ def _first_pass(
             scan.values = {c: Counter() for c in extra}
         for column in extra or ():
             scan.values[column].update(row[column] for row in sentence.rows)
+        if scan.tokens_all_tags:
+            scan.tokens_all_tags = all_tags(tokens)
+            scan.tokens_not_outside = scan.tokens_not_outside or any(t != "O" for t in tokens)
         first_line = sentence.line_numbers[0]
         length = len(tokens)
         scan.sentences += 1
         scan.tokens += length
         if length > scan.longest[0]:
             scan.longest = (length, first_line)
+        if length > scan.max_tokens:
+            scan.too_long.add(
+                lambda line=first_line, length=length: {"line": line, "tokens": length}
+            )
         for index, token in enumerate(tokens):
             if not token.isprintable():
                 line = sentence.line_numbers[index]
                 scan.invisible.add(lambda token=token, line=line: invisible_example(token, line))
+        if scan.tokenizer_fit is not None:
+            scan.tokenizer_fit.add(tokens, sentence.line_numbers)
 
         token_key = hash(tuple(tokens))
         if train is not None and token_key in train.seen:
@@ -315,6 +423,7 @@ def _first_pass(
             scan.spans[type_] += 1
         for coverage in scan.coverage:
             coverage.add(tokens, spans)
+        scan.span_labelling.add_spans(tokens, spans, sentence.line_numbers)
         yield labels
 
 

@@ -7,13 +7,24 @@ from __future__ import annotations
 
 import re
 from collections.abc import Callable, Iterable, Iterator
+from enum import StrEnum
 
 DOCSTART = "-DOCSTART-"
 
 # How many content lines the delimiter detection looks at before deciding.
 DETECT_LINES = 20
 
-DELIMITERS = {"tab": "\t", "space": " "}
+
+class DelimiterChoice(StrEnum):
+    """How a column file separates its columns: found from its first lines, one TAB, or runs of
+    spaces and TABs."""
+
+    AUTO = "auto"
+    TAB = "tab"
+    SPACE = "space"
+
+
+DELIMITERS = {DelimiterChoice.TAB.value: "\t", DelimiterChoice.SPACE.value: " "}
 # ASCII whitespace only: Unicode spaces such as U+00A0 are tokens in some corpora.
 BLANK_CHARS = " \t\r\f\v"
 _SPACE_RUN = re.compile(r"[ \t]+")

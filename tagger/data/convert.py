@@ -1,5 +1,7 @@
 """Rewriting a column file's labels in another tagging scheme (the `convert` command), every
-other column and the file's layout kept.
+other column and the file's layout kept, and never a span changed without saying so: a file
+ill-formed in its scheme is refused, or with `repair` converted with its ill-formed sentences
+listed.
 """
 
 from __future__ import annotations
@@ -10,7 +12,10 @@ from pathlib import Path
 from typing import Any
 
 from tagger.data.corpus import ColumnFormat, ColumnSource, Sentence, write_columns
+from tagger.data.findings import Examples
+from tagger.data.io import input_name
 from tagger.data.schemes import (
+    SchemeGuess,
     convert_tags,
     detect_scheme,
     ill_formed_transitions,
@@ -19,6 +24,10 @@ from tagger.data.schemes import (
 from tagger.errors import DataError
 
 _ANY_FORMAT = ColumnFormat()  # the defaults: detect the delimiter, token first, label last
+# How the command line names the choice to repair ill-formed sentences (said in the refusal).
+REPAIR_OPTION = "--repair"
+# Ill-formed sentences an error message quotes (the summary of a repair lists more).
+SHOWN_IN_REFUSAL = 3
 
 
 def convert_file(
@@ -27,17 +36,22 @@ def convert_file(
     target_scheme: str,
     fmt: ColumnFormat = _ANY_FORMAT,
     source_scheme: str | None = None,
+    repair: bool = False,
+    max_examples: int = 5,
 ) -> dict[str, Any]:
     """Rewrite the label column of `src` in `target_scheme` into `dst`, other columns untouched.
 
     The source scheme is detected when not given (the first candidate; all candidates read
-    well-formed data the same way). Sentences that are ill-formed in the source scheme are read
-    the lenient CoNLL way and counted in the summary. The output keeps the source's delimiter,
-    document marks and comments. `dst` is replaced only when the whole file is written. `src`
-    "-" reads standard input (kept in memory when the scheme must be detected first), `dst` "-"
-    writes standard output.
+    well-formed data the same way). Sentences that are ill-formed in the source scheme are
+    refused with a DataError that counts them and gives the first lines (and, when the scheme was
+    given, the schemes the file does fit), unless `repair`: they are then read the lenient CoNLL
+    way, rewritten well-formed and listed in the summary. Nothing is written before the whole file
+    has been checked. The output keeps the source's delimiter, document marks and comments. `dst`
+    is replaced only when the whole file is written. `src` "-" reads standard input (kept in
+    memory, as it is read more than once), `dst` "-" writes standard output.
     Returns {"file", "output", "sentences", "tokens", "source_scheme", "target_scheme",
-    "changed_labels", "ill_formed_sentences", "note"}.
+    "scheme_given", "changed_labels", "ill_formed_sentences", "repaired" ({"count", "examples":
+    [{"line", "message"}]}), "note"}.
     """
     if not fmt.has_labels:
         raise DataError("converting needs a label column (has_labels is False)", str(src))
@@ -45,8 +59,7 @@ def convert_file(
     source = ColumnSource(src, fmt)
     note = ""
     if source_scheme is None:
-        with _located(src):
-            guess = detect_scheme(s.labels for s in source.sentences())
+        guess = _detect(source, src)
         if not guess.candidates:
             raise DataError(f"cannot tell the tagging scheme: {guess.note}", str(src))
         chosen = guess.candidates[0]
@@ -54,14 +67,19 @@ def convert_file(
     else:
         chosen = normalise_scheme_name(source_scheme)
 
-    counts = {"sentences": 0, "tokens": 0, "changed": 0, "ill_formed": 0}
+    ill_formed, sentences_read = _ill_formed(source, src, chosen, max_examples)
+    if ill_formed.count and not repair:
+        raise DataError(
+            _refusal(source, src, chosen, source_scheme is not None, ill_formed, sentences_read),
+            input_name(src),
+        )
+
+    counts = {"sentences": 0, "tokens": 0, "changed": 0}
 
     def converted() -> Iterator[Sentence]:
         for sentence in source.sentences():
             labels = sentence.labels
             with _located(src, sentence.first_line):
-                if ill_formed_transitions(labels, chosen):
-                    counts["ill_formed"] += 1
                 new = convert_tags(labels, chosen, target)
             counts["sentences"] += 1
             counts["tokens"] += len(labels)
@@ -82,10 +100,65 @@ def convert_file(
         "tokens": counts["tokens"],
         "source_scheme": chosen,
         "target_scheme": target,
+        "scheme_given": source_scheme is not None,
         "changed_labels": counts["changed"],
-        "ill_formed_sentences": counts["ill_formed"],
+        "ill_formed_sentences": ill_formed.count,
+        "repaired": ill_formed.as_dict(),
         "note": note,
     }
+
+
+def _detect(source: ColumnSource, src: str | Path) -> SchemeGuess:
+    with _located(src):
+        return detect_scheme(s.labels for s in source.sentences())
+
+
+def _ill_formed(
+    source: ColumnSource, src: str | Path, scheme: str, limit: int
+) -> tuple[Examples, int]:
+    """The sentences ill-formed in `scheme` (each with the line and message of its first
+    problem), and how many sentences were read."""
+    found = Examples(limit)
+    sentences = 0
+    for sentence in source.sentences():
+        sentences += 1
+        with _located(src, sentence.first_line):
+            problems = ill_formed_transitions(sentence.labels, scheme)
+        if problems:
+            index, message = problems[0]
+            line = sentence.line_numbers[min(index, len(sentence) - 1)]
+            found.add(lambda line=line, message=message: {"line": line, "message": message})
+    return found, sentences
+
+
+def _refusal(
+    source: ColumnSource,
+    src: str | Path,
+    scheme: str,
+    given: bool,
+    ill_formed: Examples,
+    sentences: int,
+) -> str:
+    """Why a file is not converted: its ill-formed sentences, and what would convert it."""
+    shown = ill_formed.examples[:SHOWN_IN_REFUSAL]
+    where = "; ".join(f"line {e['line']}: {e['message']}" for e in shown)
+    more = ill_formed.count - len(shown)
+    if more:
+        where += f"; and {more:,} more"
+    named = "the scheme given" if given else "the nearest scheme found"
+    text = (
+        f"{ill_formed.count:,} of {sentences:,} sentences are ill-formed in {scheme}, {named} "
+        f"({where})."
+    )
+    if given:
+        fitting = [
+            name
+            for name in _detect(source, src).candidates
+            if name != scheme and not _ill_formed(source, src, name, 0)[0].count
+        ]
+        if fitting:
+            text += f" The file is well-formed in {' and '.join(fitting)}."
+    return text + f" {REPAIR_OPTION} reads them the lenient CoNLL way and rewrites them well-formed"
 
 
 def _prepend(first: Sentence, rest: Iterable[Sentence]) -> Iterator[Sentence]:

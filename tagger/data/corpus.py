@@ -21,10 +21,11 @@ The format rules this module owns:
   (a comment inside a sentence, or right after its last token, moves to before that
   sentence). Such lines after the last sentence of a file belong to no sentence and are
   dropped on writing; the reader's `ReadStats.trailing_lines` counts them.
-* Files are UTF-8, with or without a byte-order mark at the very start (only that one is
-  removed); lines end in LF or CRLF (only the line ending is removed). Bytes that are not
-  UTF-8 are reported with file, line and byte offset. These are the rules of every input
-  (`tagger.data.io`); how a single line reads is `tagger.data.column_lines`.
+* Files are UTF-8 (or the encoding `ColumnFormat.encoding` names), with or without a byte-order
+  mark at the very start (only that one is removed); lines end in LF or CRLF (only the line
+  ending is removed). Bytes that do not decode are reported with file, line and byte offset.
+  These are the rules of every input (`tagger.data.io`); how a single line reads is
+  `tagger.data.column_lines`.
 
 Reading is a generator over a binary stream decoded line by line, so a file is never held whole.
 """
@@ -46,7 +47,16 @@ from tagger.data.column_lines import (
     unwritable,
     writing_delimiter,
 )
-from tagger.data.io import STDIO, UTF8_BOM, decoded_lines, input_name, is_stdio, open_input
+from tagger.data.io import (
+    STDIO,
+    UTF8,
+    UTF8_BOM,
+    checked_encoding,
+    decoded_lines,
+    input_name,
+    is_stdio,
+    open_input,
+)
 from tagger.data.io import shortened as _shorten
 from tagger.errors import ConfigError, DataError
 
@@ -74,8 +84,10 @@ class ColumnFormat:
     label_column: int = -1  # may be negative: counted from the end
     comment_prefix: str | None = None  # lines starting with it are comments; None = no comments
     has_labels: bool = True  # False for files to be tagged: no label column is read
+    encoding: str = UTF8  # of the file's bytes; one that writes ASCII as ASCII (tagger.data.io)
 
     def __post_init__(self) -> None:
+        checked_encoding(self.encoding)
         if self.delimiter is not None and self.delimiter not in DELIMITERS:
             raise ConfigError(
                 f"delimiter must be 'tab', 'space' or None (detect), not {self.delimiter!r}"
@@ -194,7 +206,7 @@ class ColumnReader:
     def _parse(self, stream: Iterable[bytes]) -> Iterator[Sentence]:
         """The sentences of any stream of byte lines (an open file, standard input, a list)."""
         fmt, stats, name = self.fmt, self.stats, self.name
-        lines: Iterable[tuple[int, str]] = decoded_lines(stream, name)
+        lines: Iterable[tuple[int, str]] = decoded_lines(stream, name, fmt.encoding)
         if fmt.delimiter is None:
             lines, stats.delimiter = detect_delimiter(lines, fmt.comment_prefix)
         else:

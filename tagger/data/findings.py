@@ -1,5 +1,6 @@
-"""The pieces a `check` report is made of: a finding counted with its first few examples, and
-how labels, tokens and sentences are judged and quoted in those examples.
+"""The pieces a `check` report is made of: a finding counted with its first few examples, how
+labels, tokens and sentences are judged and quoted in those examples, and which findings make
+data unfit to train or score on.
 """
 
 from __future__ import annotations
@@ -54,14 +55,18 @@ _TAG_CACHE: dict[str, bool] = {}
 def _is_tag(label: str) -> bool:
     known = _TAG_CACHE.get(label)
     if known is None:
-        try:
-            split_tag(label)
-            known = True
-        except DataError:
-            known = False
+        known = split_or_none(label) is not None
         if len(_TAG_CACHE) < 100_000:
             _TAG_CACHE[label] = known
     return known
+
+
+def split_or_none(label: str) -> tuple[str, str] | None:
+    """(prefix, type) of a span tag ("O" gives ("O", "")), or None for a label that is not one."""
+    try:
+        return split_tag(label)
+    except DataError:
+        return None
 
 
 def invisible_example(token: str, line: int) -> dict[str, Any]:
@@ -87,3 +92,34 @@ def sentence_text(tokens: Sequence[str]) -> str:
     """A sentence's tokens joined by spaces, cut to SHOWN_TEXT characters."""
     text = " ".join(tokens)
     return text if len(text) <= SHOWN_TEXT else text[: SHOWN_TEXT - 3] + "..."
+
+
+def gate_problems(
+    files: Sequence[dict[str, Any]], comparisons: Sequence[dict[str, Any]]
+) -> list[dict[str, Any]]:
+    """The findings that make data unfit to train or score on, as [{"file", "finding", "count"}].
+
+    "ill_formed": transitions the file's scheme forbids; "not_span_tags": sentences holding labels
+    that are neither O nor PREFIX-TYPE; "also_in_train": dev/test sentences that train holds too,
+    counting those of `tagger.data.check.LONG_SENTENCE` tokens or more only (shorter ones, such
+    as "1 .", recur in any large corpus).
+    """
+    problems: list[dict[str, Any]] = []
+    for entry in files:
+        ill_formed = entry.get("ill_formed") or {"count": 0}
+        not_tags = entry.get("not_span_tags") or {"count": 0}
+        for finding, found in (("ill_formed", ill_formed), ("not_span_tags", not_tags)):
+            if found["count"]:
+                problems.append(
+                    {"file": entry["file"], "finding": finding, "count": found["count"]}
+                )
+    for comparison in comparisons:
+        if comparison["longer_sentences_also_in_train"]:
+            problems.append(
+                {
+                    "file": comparison["file"],
+                    "finding": "also_in_train",
+                    "count": comparison["longer_sentences_also_in_train"],
+                }
+            )
+    return problems

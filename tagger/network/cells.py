@@ -23,7 +23,9 @@ import torch
 from torch import Tensor, nn
 from torch.nn import functional as F
 
-CELL_KINDS = ("rnn", "minimal", "gru", "lstm")
+from tagger.config import CellKind
+
+CELL_KINDS: tuple[str, ...] = tuple(kind.value for kind in CellKind)
 
 State = tuple[Tensor, ...]  # (h,) or, for the LSTM, (h, c); each (batch, hidden)
 
@@ -200,6 +202,8 @@ class LSTMCell(Cell):
 
 
 _CELLS: dict[str, type[Cell]] = {c.kind: c for c in (RNNCell, MinimalCell, GRUCell, LSTMCell)}
+# Adding a cell: its class here, its name in config.CellKind.
+assert set(_CELLS) == set(CELL_KINDS), "every CellKind needs a cell class and the reverse"
 
 
 def make_cell(kind: str, input_size: int, hidden_size: int) -> Cell:

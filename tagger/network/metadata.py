@@ -15,6 +15,7 @@ cut short. No torch here: tensors are only asked for their shape, type and value
 
 from __future__ import annotations
 
+import math
 import reprlib
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
@@ -22,6 +23,7 @@ from pathlib import Path
 from typing import TYPE_CHECKING, Any, NoReturn
 
 from tagger.config import Config, config_from_dict
+from tagger.data.corpus import DELIMITERS
 from tagger.data.schemes import (
     OUTSIDE,
     SCHEMES,
@@ -250,6 +252,34 @@ class _Reader:
             self.refuse(f"the stored {key}.shape disagrees with the config's model.word_shape")
         return spec
 
+    def column_layout(self, value: Any) -> None:
+        key = "column_layout"
+        table = self.table(value, key, ("token_column", "label_column", "delimiter"))
+        for name in ("token_column", "label_column"):
+            if type(table[name]) is not int:
+                self.refuse(
+                    f"the stored {key}.{name} must be a whole number, not {quoted(table[name])}"
+                )
+        if table["delimiter"] not in ("auto", *DELIMITERS):
+            self.refuse(
+                f"the stored {key}.delimiter must be one of auto, {', '.join(DELIMITERS)}, "
+                f"not {quoted(table['delimiter'])}"
+            )
+
+    def calibration(self, value: Any) -> None:
+        key = "calibration"
+        table = self.table(value, key, ("temperature", "tokens", "loss_before", "loss_after"))
+        temperature = table["temperature"]
+        if (
+            type(temperature) not in (int, float)
+            or not math.isfinite(temperature)
+            or temperature <= 0
+        ):
+            self.refuse(
+                f"the stored {key}.temperature must be a finite number above 0, "
+                f"not {quoted(temperature)}"
+            )
+
     def tokenizer(self, value: Any) -> TokenizerSettings:
         table = self.table(value, "tokenizer")
         try:
@@ -283,6 +313,10 @@ def read_stored_model(meta: Any, where: str | Path) -> StoredModel:
     if asks_for_features:
         features = reader.features(table["features"], config)
     tokenizer = reader.tokenizer(table.get("tokenizer", {}))
+    if table.get("column_layout") is not None:
+        reader.column_layout(table["column_layout"])
+    if table.get("calibration") is not None:
+        reader.calibration(table["calibration"])
     return StoredModel(config, vocabs, input_scheme, features, tokenizer)
 
 

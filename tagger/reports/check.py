@@ -1,5 +1,6 @@
 """The `check` report as text: a block of labelled lines per file, then each later file against
-the training file. Reads the dict of `tagger.data.check.check_files`.
+the training file, then the verdict (`format_verdict`). Reads the dict of
+`tagger.data.check.check_files`.
 """
 
 from __future__ import annotations
@@ -8,19 +9,27 @@ from collections.abc import Callable
 from typing import Any
 
 from tagger.data.check import LONG_SENTENCE
+from tagger.data.span_labelling import MAX_SEQUENCES, MAX_SPAN_TOKENS
 from tagger.reports.layout import bullets, count, labelled, number, share
 
 
 def format_check(report: dict[str, Any]) -> str:
     """A check report as readable text: one block per file, then the comparison with train."""
     out: list[str] = [report["note"] + "."]
+    settings = report.get("tokenizer_settings", "its default settings")
     for entry in report["files"]:
         out.append("")
-        out.extend(_format_file(entry))
+        out.extend(_format_file(entry, settings))
     if report["against_train"]:
         out.append("")
         out.append(f"Against the training file {report['train']}")
+        train_misread = "tag_column_hint" in report["files"][0]
         for comparison, entry in zip(report["against_train"], report["files"][1:], strict=True):
+            if train_misread or "tag_column_hint" in entry:
+                # Words read as labels make every label "new": a long list that says nothing.
+                out += ["", comparison["file"]]
+                out += labelled("", "not compared: its labels or those of train are not span tags")
+                continue
             out.extend(_format_comparison(comparison, entry))
     return "\n".join(out)
 
@@ -34,7 +43,7 @@ def _counted_values(counts: dict[str, int]) -> str:
     return ", ".join(f"{name}={number(n)}" for name, n in counts.items())
 
 
-def _format_file(entry: dict[str, Any]) -> list[str]:
+def _format_file(entry: dict[str, Any], tokenizer_settings: str) -> list[str]:
     out = [entry["file"]]
     size = (
         f"{count(entry['sentences'], 'sentence')}, {count(entry['tokens'], 'token')}, "
@@ -43,11 +52,22 @@ def _format_file(entry: dict[str, Any]) -> list[str]:
     if entry["columns"]:
         size += f"; {count(entry['columns'], 'column')}, {entry['delimiter']}-separated"
     out += labelled("size", size)
+    if "tag_column_hint" in entry:
+        # The rest of the report would describe words as labels: say which column to read.
+        return out + labelled("columns", _tag_column_advice(entry))
     longest = entry["longest_sentence"]
     if longest["line"] is not None:
         out += labelled(
             "longest", f"{count(longest['tokens'], 'token')}, from line {longest['line']}"
         )
+    found = entry["too_long"]
+    if found["count"]:
+        out += labelled(
+            "too long",
+            f"{count(found['count'], 'sentence')} of more than {count(found['limit'], 'token')}, "
+            f"which train and evaluate refuse ({found['key']}); sentences end at blank lines:",
+        )
+        out += _examples(found, lambda e: f"line {e['line']}: {count(e['tokens'], 'token')}")
     if entry["whitespace_only_lines"]:
         out += labelled(
             "blank lines",
@@ -72,6 +92,8 @@ def _format_file(entry: dict[str, Any]) -> list[str]:
         )
     for coverage in entry.get("lexicon_coverage", []):
         out += _format_coverage(coverage)
+    if "tokenizer_fit" in entry:
+        out += _format_tokenizer_fit(entry["tokenizer_fit"], tokenizer_settings)
     found = entry["invisible_characters"]
     if found["count"]:
         out += labelled(
@@ -86,6 +108,28 @@ def _format_file(entry: dict[str, Any]) -> list[str]:
     verb = "repeats" if repeated == 1 else "repeat"
     out += labelled("repeats", f"{count(repeated, 'sentence')} {verb} an earlier one of this file")
     return out
+
+
+def _tag_column_advice(entry: dict[str, Any]) -> str:
+    """Which column holds the tags when the label column does not, and the options to read it."""
+    hint = entry["tag_column_hint"]
+    tag_columns = hint["tag_columns"]
+    examples = entry["not_span_tags"]["examples"]
+    example = f" (e.g. {examples[0]['label']!r} on line {examples[0]['line']})" if examples else ""
+    if len(tag_columns) == 1:
+        where = f"column {tag_columns[0]} holds"
+    else:
+        where = f"columns {', '.join(map(str, tag_columns[:-1]))} and {tag_columns[-1]} hold"
+    options = " or ".join(f"--label-column {column}" for column in tag_columns)
+    if hint["tokens_from"] is not None:
+        options += f" --token-column {hint['tokens_from']}"
+    elif hint["token_column"] in tag_columns:
+        options += " and the column of the tokens with --token-column"
+    return (
+        f"the labels (column {hint['label_column']}) are not span tags{example}, but {where} "
+        f"only span tags: read the file with {options} (check, train, evaluate, score and convert all take "
+        "these options)"
+    )
 
 
 def _format_labels(entry: dict[str, Any]) -> list[str]:
@@ -128,7 +172,92 @@ def _format_labels(entry: dict[str, Any]) -> list[str]:
             f"{count(found['count'], 'token sequence')} labelled in more than one way:",
         )
         out += _examples(found, _describe_conflict)
+    out += _format_span_labelling(entry["span_labelling"])
+    for typo in entry["likely_typos"]:
+        out += labelled("typo?", _describe_typo(typo))
     return out
+
+
+def _format_span_labelling(found: dict[str, Any]) -> list[str]:
+    out: list[str] = []
+    differ = found["types_differ"]
+    if differ["count"]:
+        out += labelled(
+            "types differ",
+            f"{count(differ['count'], 'token sequence')} labelled as spans of different types "
+            "(most disagreeing first):",
+        )
+        out += _examples(differ, _describe_labellings)
+    either = found["span_or_not"]
+    if either["count"]:
+        out += labelled(
+            "span or not",
+            f"{count(either['count'], 'token sequence')} labelled as a span in one place and "
+            "lying outside every span in another (most disagreeing first):",
+        )
+        out += _examples(either, _describe_labellings)
+    if found["not_followed"]:
+        out += labelled(
+            "",
+            f"(not compared: {count(found['not_followed'], 'span')} longer than "
+            f"{MAX_SPAN_TOKENS} tokens or past the first {number(MAX_SEQUENCES)} sequences)",
+        )
+    return out
+
+
+def _describe_labellings(example: dict[str, Any]) -> str:
+    parts = [
+        f"{kind} {_times(seen['count'])} (line {seen['line']})"
+        for kind, seen in example["types"].items()
+    ]
+    outside = example["outside"]
+    if outside["count"]:
+        parts.append(f"outside spans {_times(outside['count'])} (line {outside['line']})")
+    return f"{example['text']!r}: " + ", ".join(parts)
+
+
+def _times(n: int) -> str:
+    return "once" if n == 1 else f"{number(n)} times"
+
+
+def _describe_typo(typo: dict[str, Any]) -> str:
+    lines = ", ".join(str(line) for line in typo["lines"])
+    what = "type" if typo["kind"] == "type" else "label"
+    unit = "token" if typo["kind"] == "type" else "time"
+    return (
+        f"{what} {typo['name']!r} seen {count(typo['count'], unit)} (line {lines}), close to "
+        f"{typo['near']!r} seen {count(typo['near_count'], unit)} ({typo['how']})"
+    )
+
+
+def _format_tokenizer_fit(fit: dict[str, Any], settings: str) -> list[str]:
+    split, lost, tokens = fit["split"], fit["lost"], fit["tokens"]
+    differ = split["count"] + lost["count"]
+    tokenizer = f"the tagging tokenizer (with {settings})"
+    if not differ:
+        return labelled(
+            "tokenizer", f"all {count(tokens, 'annotated token')} come back whole from {tokenizer}"
+        )
+    text = (
+        f"{number(differ)} of {count(tokens, 'annotated token')} ({share(differ, tokens)}) "
+        f"would not come back whole from {tokenizer}: {number(split['count'])} cut into "
+        f"pieces, {number(lost['count'])} not read as a token at all"
+    )
+    common = [
+        f"{form['token']!r} -> {_pieces(form['pieces'])} ({_times(form['count'])})"
+        for form in fit["most_frequent"]
+    ]
+    text += "; most often " + ", ".join(common) + ":"
+    out = labelled("tokenizer", text)
+    for found in (split, lost):
+        out += _examples(
+            found, lambda e: f"line {e['line']}: {e['token']!r} -> {_pieces(e['pieces'])}"
+        )
+    return out
+
+
+def _pieces(pieces: list[str]) -> str:
+    return " ".join(repr(piece) for piece in pieces) if pieces else "nothing"
 
 
 def _format_coverage(coverage: dict[str, Any]) -> list[str]:
@@ -182,3 +311,34 @@ def _format_comparison(comparison: dict[str, Any], entry: dict[str, Any]) -> lis
         lambda e: f"line {e['line']} (train line {e['train_line']}): {e['text']!r}",
     )
     return out
+
+
+def format_verdict(report: dict[str, Any], exit_code: int, relaxed_by: str = "") -> str:
+    """The last lines of a check: whether the data passed, why, and the exit code that follows.
+
+    `relaxed_by` names the option that turns a failure into a report only, when it was given.
+    """
+    problems = report["problems"]
+    if not problems:
+        text = "passed: no ill-formed tags"
+        if report["against_train"]:
+            text += f", no dev/test sentence of {LONG_SENTENCE} tokens or more also in train"
+        return "\n".join(labelled("result", f"{text} (exit code {exit_code})"))
+    found = "; ".join(_describe_problem(problem) for problem in problems)
+    if relaxed_by:
+        head = f"would fail, but {relaxed_by} is given (exit code {exit_code})"
+    else:
+        head = f"failed (exit code {exit_code})"
+    return "\n".join(labelled("result", f"{head}: {found}"))
+
+
+def _describe_problem(problem: dict[str, Any]) -> str:
+    n, name = problem["count"], problem["file"]
+    if problem["finding"] == "ill_formed":
+        return f"{count(n, 'ill-formed transition')} in {name}"
+    if problem["finding"] == "not_span_tags":
+        return f"{count(n, 'sentence')} of {name} with labels that are not span tags"
+    return (
+        f"{count(n, 'sentence')} of {name} ({LONG_SENTENCE} tokens or more) also in the training "
+        "file"
+    )

@@ -1,7 +1,8 @@
 """Span scores as text: the report `score` prints, and the per-file reports of `evaluate`.
 
 Both read the plain dicts of `tagger.scoring.metrics.summarise` (extra keys are ignored), so a
-summary stored as JSON prints the same as a fresh one.
+summary stored as JSON prints the same as a fresh one. The keys `evaluate` adds (an F1 interval,
+examples, calibration, the review flag) are printed when present (`tagger.reports.analysis`).
 """
 
 from __future__ import annotations
@@ -9,6 +10,13 @@ from __future__ import annotations
 from collections.abc import Sequence
 from typing import Any
 
+from tagger.reports.analysis import (
+    KIND_NAMES,
+    calibration_lines,
+    confusion_lines,
+    example_lines,
+    review_lines,
+)
 from tagger.reports.layout import Cell, Column, count, number, percent, render_table
 from tagger.scoring.metrics import GOLD_OUTCOMES, PREDICTED_OUTCOMES
 
@@ -22,14 +30,7 @@ _SCORE_COLUMNS = (
     Column("right"),
 )
 
-_OUTCOME_LABELS = {
-    "exact": "exact",
-    "wrong_type": "type only",
-    "boundary": "edges only",
-    "type_and_boundary": "type+edges",
-    "missed": "missed",
-    "spurious": "spurious",
-}
+_OUTCOME_LABELS = {"exact": "exact", **KIND_NAMES}
 
 _OUTCOME_NOTE = [
     "  exact: same type and edges; type only: same edges, another type;",
@@ -41,8 +42,9 @@ _OUTCOME_NOTE = [
 def format_report(summary: dict[str, Any]) -> str:
     """A plain-text report of a :func:`tagger.scoring.metrics.summarise` dict.
 
-    Scores first (types ordered by gold count, F1 before precision and recall, counts after),
-    then where the errors come from.
+    Scores first (types ordered by gold count, F1 before precision and recall, counts after;
+    the F1 interval beside F1 when the summary has one), then where the errors come from, then
+    the error-analysis parts the summary holds.
     """
     per_type: dict[str, dict[str, Any]] = summary["per_type"]
     micro, macro = summary["micro"], summary["macro"]
@@ -52,9 +54,12 @@ def format_report(summary: dict[str, Any]) -> str:
         _score_row("all spans pooled", micro),
         _score_row(f"mean of {macro.get('types', len(per_type))} types", macro),
     ]
+    interval = summary.get("f1_interval")
     lines = [
-        f"Span scores: F1 {percent(micro['f1'])} % over {number(micro['gold'])} gold and "
-        f"{number(micro['predicted'])} tagged spans",
+        f"Span scores: F1 {percent(micro['f1'])} %"
+        + (f" ({percent(interval['low'])} to {percent(interval['high'])})" if interval else "")
+        + f" over {number(micro['gold'])} gold and {number(micro['predicted'])} tagged spans",
+        *_interval_note(interval),
         "",
         *render_table(_SCORE_COLUMNS, rows, totals),
     ]
@@ -73,7 +78,21 @@ def format_report(summary: dict[str, Any]) -> str:
         ):
             lines += ["", *_outcome_table(breakdown, side, names, title, order)]
         lines += ["", *_OUTCOME_NOTE]
+    for part in (confusion_lines, example_lines, calibration_lines, review_lines):
+        found = part(summary)
+        if found:
+            lines += ["", *found]
     return "\n".join(lines) + "\n"
+
+
+def _interval_note(interval: dict[str, Any] | None) -> list[str]:
+    if not interval:
+        return []
+    return [
+        f"  ({percent(interval['low'])} to {percent(interval['high'])}: where F1 fell in "
+        f"{interval['level']:.0%} of {number(interval['resamples'])} draws of "
+        f"{count(interval['sentences'], 'sentence')} with replacement)"
+    ]
 
 
 def _score_row(name: str, scores: dict[str, Any]) -> list[Cell]:
@@ -111,4 +130,10 @@ def format_evaluation(result: dict[str, Any]) -> str:
     if len(result["files"]) > 1:
         parts.append("== all files\n")
         parts.append(format_report(result["overall"]) + "\n")
+    if "temperature" in result:
+        fitted = "fitted on dev in training" if result.get("temperature_fit") else "none fitted"
+        parts.append(
+            f"Scores and the review flag read the label probabilities at temperature "
+            f"{result['temperature']:.2f} ({fitted})\n"
+        )
     return "".join(parts)

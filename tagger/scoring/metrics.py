@@ -19,6 +19,11 @@ Error breakdown: every gold span lands in exactly one outcome, the first of thes
 
 Every predicted span is classified the same way against the gold spans, with ``spurious`` (no
 gold span overlaps it) in place of ``missed``. Outcomes are counted under the span's own type.
+
+Type confusion: each ``wrong_type`` gold span is paired with the predicted span that has its edges
+(a tag sequence holds at most one; among several in a span list, the first type in sorted order)
+and the pair (gold type, tagged type) is counted, so a report can say which type a span got
+instead of its own. The pairs add up to the ``wrong_type`` count of the gold spans.
 """
 
 from __future__ import annotations
@@ -48,8 +53,9 @@ class SpanCounts:
 
     ``correct``, ``predicted`` and ``gold`` count spans per type. ``gold_outcomes`` and
     ``predicted_outcomes`` count ``(type, outcome)`` pairs of the error breakdown (see the module
-    docstring). ``token_correct`` / ``token_total`` count tokens whose predicted tag equals the gold
-    tag, over sentences scored with their tags.
+    docstring). ``type_confusion`` counts ``(gold type, tagged type)`` pairs of spans with the
+    same edges and different types. ``token_correct`` / ``token_total`` count tokens whose
+    predicted tag equals the gold tag, over sentences scored with their tags.
     """
 
     correct: Counter[str] = field(default_factory=Counter)
@@ -57,6 +63,7 @@ class SpanCounts:
     gold: Counter[str] = field(default_factory=Counter)
     gold_outcomes: Counter[tuple[str, str]] = field(default_factory=Counter)
     predicted_outcomes: Counter[tuple[str, str]] = field(default_factory=Counter)
+    type_confusion: Counter[tuple[str, str]] = field(default_factory=Counter)
     token_correct: int = 0
     token_total: int = 0
     sentences: int = 0
@@ -68,6 +75,7 @@ class SpanCounts:
         self.gold.update(other.gold)
         self.gold_outcomes.update(other.gold_outcomes)
         self.predicted_outcomes.update(other.predicted_outcomes)
+        self.type_confusion.update(other.type_confusion)
         self.token_correct += other.token_correct
         self.token_total += other.token_total
         self.sentences += other.sentences
@@ -90,7 +98,7 @@ def _overlaps(a: Span, b: Span) -> bool:
     return a[1] < b[2] and b[1] < a[2]
 
 
-def _outcome(span: Span, others: set[Span], unmatched: str) -> str:
+def span_outcome(span: Span, others: set[Span], unmatched: str) -> str:
     """Where ``span`` lands against the other side's spans (precedence: module docstring)."""
     if span in others:
         return "exact"
@@ -125,8 +133,14 @@ def count_sentence(
     counts.gold.update(t for t, _, _ in gold)
     counts.predicted.update(t for t, _, _ in pred)
     counts.correct.update(t for t, _, _ in gold & pred)
-    counts.gold_outcomes.update((g[0], _outcome(g, pred, "missed")) for g in gold)
-    counts.predicted_outcomes.update((p[0], _outcome(p, gold, "spurious")) for p in pred)
+    counts.gold_outcomes.update((g[0], span_outcome(g, pred, "missed")) for g in gold)
+    counts.predicted_outcomes.update((p[0], span_outcome(p, gold, "spurious")) for p in pred)
+    tagged_type: dict[tuple[int, int], str] = {}
+    for t, s, e in sorted(pred, reverse=True):  # spans from a list may share edges: first type
+        tagged_type[s, e] = t
+    counts.type_confusion.update(
+        (t, tagged_type[s, e]) for t, s, e in gold - pred if (s, e) in tagged_type
+    )
     if gold_tags is not None and pred_tags is not None:
         counts.token_total += len(gold_tags)
         counts.token_correct += sum(g == p for g, p in zip(gold_tags, pred_tags, strict=True))
@@ -199,8 +213,9 @@ def summarise(counts: SpanCounts) -> dict[str, Any]:
     Keys: ``per_type`` ({type: precision, recall, f1, gold, predicted, correct}), ``micro`` (the
     same over all spans pooled), ``macro`` (unweighted means of the per-type precision, recall and
     F1 over the types seen in gold or predictions), ``token_accuracy``, ``tokens``, ``sentences``
-    and ``breakdown`` ({"gold": {outcome: n}, "predicted": {outcome: n}, "per_type": {type:
-    {"gold": {...}, "predicted": {...}}}}).
+    ``breakdown`` ({"gold": {outcome: n}, "predicted": {outcome: n}, "per_type": {type:
+    {"gold": {...}, "predicted": {...}}}}) and ``type_confusion`` ({gold type: {tagged type: n}}
+    over spans with the right edges and the wrong type; types without such spans are left out).
     """
     types = counts.types
     per_type = {t: _scores(counts.correct[t], counts.predicted[t], counts.gold[t]) for t in types}
@@ -240,4 +255,14 @@ def summarise(counts: SpanCounts) -> dict[str, Any]:
         "tokens": counts.token_total,
         "sentences": counts.sentences,
         "breakdown": breakdown,
+        "type_confusion": confusion_table(counts.type_confusion),
     }
+
+
+def confusion_table(pairs: Counter[tuple[str, str]]) -> dict[str, dict[str, int]]:
+    """{gold type: {tagged type: n}} from (gold type, tagged type) counts, both levels sorted."""
+    table: dict[str, dict[str, int]] = {}
+    for (gold, tagged), n in sorted(pairs.items()):
+        if n:
+            table.setdefault(gold, {})[tagged] = n
+    return table

@@ -33,15 +33,25 @@ from __future__ import annotations
 
 from collections.abc import Iterable, Sequence
 from dataclasses import dataclass
+from enum import StrEnum
 from pathlib import Path
 from typing import Any
 
 from tagger.data.io import input_name, is_stdio, read_lines
 from tagger.data.schemes import OUTSIDE, SCHEMES, Span, span_prefixes
-from tagger.errors import ConfigError, DataError
+from tagger.errors import ConfigError, DataError, quoted
 from tagger.text.tokenizer import TokenizerSettings, tokenize
 
-CASE_MODES = ("ignore", "exact", "smart")
+
+class LexiconCase(StrEnum):
+    """How lexicon entries meet tokens (see the module docstring)."""
+
+    IGNORE = "ignore"
+    EXACT = "exact"
+    SMART = "smart"
+
+
+CASE_MODES: tuple[str, ...] = tuple(mode.value for mode in LexiconCase)
 
 # Tag ids of a category, as the model reads them: 0 is padding, 1 "no match".
 PAD_ID, NO_MATCH, BEGIN, INSIDE, END, SINGLE = 0, 1, 2, 3, 4, 5
@@ -243,7 +253,7 @@ def read_lexicon(
             raise DataError("empty type after the TAB", where, number)
         tokens = [t.text for t in tokenize(fields[0], settings)]
         if not tokens:
-            raise DataError(f"the entry {fields[0]!r} holds no token", where, number)
+            raise DataError(f"the entry {quoted(fields[0])} holds no token", where, number)
         entries.append((tokens, type_))
     if not entries:
         raise DataError("the lexicon holds no entries", where)

@@ -98,7 +98,10 @@ def build_vocabularies(
 ) -> tuple[Vocabularies, Counter[str]]:
     """Vocabularies from training tokens; also returns the word counts (for unknown-word replacement).
 
-    ``extra_words`` (e.g. the words of pretrained vectors) join the word list whatever their count.
+    Words seen fewer than ``min_word_count`` times are left out: they are read as the unknown word
+    (characters and context only) and the model file, which stores the word list in plain text,
+    never holds them. ``extra_words`` (e.g. the words of pretrained vectors) join the word list
+    whatever their count.
     """
     word_counts: Counter[str] = Counter()
     char_counts: Counter[str] = Counter()

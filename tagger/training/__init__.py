@@ -8,7 +8,9 @@
     budget.py      the wall clock: train.max_minutes and the time-left estimate
     checkpoint.py  saving and restoring a run after its last finished epoch
     events.py      the progress events the command line reads
+    overview.py    what a run says before its first epoch (sizes, stopping rule, warnings)
     records.py     config.toml, history.json/.csv and metrics.json in the run folder
+    run_folder.py  starting a run: named files readable, the folder made, held and checked
     loop.py        `train` (files) and `train_on_sentences` (memory): the epochs
 
 May import `tagger.apply` (to score dev and save the model) and everything below it.

@@ -9,13 +9,15 @@ One model file (tensors + JSON, never pickled) holds
     JSON "state"    the run so far (`RunState`): epochs done, history, best epoch, dev scores,
                     epochs without improvement and the wall-clock seconds used
 
-with the config and data fingerprint it was made with; resuming with another config or other
-data is refused. Every epoch seeds its own random streams from (seed, epoch), so resuming from
+with the config and data fingerprint it was made with. Resuming on other data is refused, and so
+is a config that differs in any key but those of `tagger.config.RESUMABLE_KEYS` (the epoch limit,
+patience, the time budget, threads): the refusal names the keys. Every epoch seeds its own random streams from (seed, epoch), so resuming from
 the checkpoint of epoch k replays epochs k+1... exactly as an uninterrupted run would.
 """
 
 from __future__ import annotations
 
+from collections.abc import Callable
 from dataclasses import asdict, dataclass, field
 from pathlib import Path
 from typing import Any
@@ -23,8 +25,8 @@ from typing import Any
 import torch
 from torch.optim.lr_scheduler import LRScheduler
 
-from tagger.config import Config, same_config
-from tagger.errors import ModelFileError
+from tagger.config import RESUMABLE_KEYS, Config, config_changes
+from tagger.errors import ConfigError, ModelFileError
 from tagger.network.modelfile import load_model_file, save_model_file
 from tagger.training.schedule import load_schedule_state, schedule_state
 from tagger.training.step import StepTools
@@ -96,19 +98,23 @@ def restore_checkpoint(
     fingerprint: str,
     tools: StepTools,
     schedule: LRScheduler | None,
+    note: Callable[[str], None] | None = None,
 ) -> RunState:
     """Load a checkpoint into the network, optimizer, average and schedule; returns the run's
-    state. Refuses (ModelFileError) a checkpoint of another config, other data or layout."""
+    state. Refuses (ModelFileError) a checkpoint of other data or layout, or of a config that
+    differs in keys other than RESUMABLE_KEYS, naming those keys. `note` is told of the
+    resumable keys that differ: the run goes on with their new values."""
     tensors, meta = load_model_file(path)
     if meta.get("checkpoint_format") != CHECKPOINT_FORMAT:
         raise ModelFileError(
             f"{path}: the checkpoint was written by an earlier version of the trainer and cannot "
             "be resumed; start again in a new run folder"
         )
-    if not same_config(meta.get("config"), config) or meta.get("fingerprint") != fingerprint:
+    _check_changes(path, meta.get("config"), config, note)
+    if meta.get("fingerprint") != fingerprint:
         raise ModelFileError(
-            f"{path}: the checkpoint was made with another config or other data; "
-            "resume with the same config and files, or choose a new run folder"
+            f"{path}: the checkpoint was made with other data (the training or dev sentences, "
+            "or a lexicon, differ); resume with the same files, or choose a new run folder"
         )
     try:
         tools.net.load_state_dict(_part(tensors, "net."))
@@ -121,6 +127,28 @@ def restore_checkpoint(
         return RunState(**meta["state"])
     except (RuntimeError, KeyError, TypeError, ValueError) as error:
         raise ModelFileError(f"{path}: the checkpoint does not fit this run ({error})") from None
+
+
+def _check_changes(
+    path: Path, saved: Any, config: Config, note: Callable[[str], None] | None
+) -> None:
+    """Refuse a config that differs from the checkpoint's in keys a resumed run may not change."""
+    try:
+        changes = config_changes(saved if isinstance(saved, dict) else None, config)
+    except ConfigError as error:
+        raise ModelFileError(
+            f"{path}: the checkpoint was made with another config, which cannot be read ({error}); "
+            "choose a new run folder"
+        ) from None
+    refused = [change for change in changes if change.key not in RESUMABLE_KEYS]
+    if refused:
+        raise ModelFileError(
+            f"{path}: the checkpoint was made with another config: "
+            f"{'; '.join(map(str, refused))}. Only {', '.join(RESUMABLE_KEYS)} may change on "
+            "--resume; resume with the checkpoint's values, or choose a new run folder"
+        )
+    if changes and note is not None:
+        note(f"resuming with {'; '.join(map(str, changes))}")
 
 
 def _part(tensors: dict[str, torch.Tensor], prefix: str) -> dict[str, torch.Tensor]:

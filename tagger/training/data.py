@@ -1,8 +1,14 @@
 """The sentences a run trains and chooses its best epoch on.
 
 Training reads its files here (`read_training_files`) or takes sentences from memory; either way
-`prepare_sentences` decides the input scheme, holds dev out of train when no dev set is given, and
-takes the data's fingerprint, which a checkpoint carries so that a run is not resumed on other data.
+`prepare_sentences` checks every sentence (labels that are span tags, no more tokens than
+data.max_sentence_tokens), decides the input scheme, holds dev out of train when no dev set is
+given, and takes the data's fingerprint, which a checkpoint carries so that a run is not resumed
+on other data.
+
+A run that could not learn or choose anything is refused before it starts, with what is missing:
+no training sentence left after the dev hold-out, no span (entity type) in the training labels, a
+dev set without sentences or without spans (dev F1 would be 0 every epoch and choose nothing).
 """
 
 from __future__ import annotations
@@ -15,6 +21,7 @@ from dataclasses import dataclass
 
 from tagger.config import Config
 from tagger.data.corpus import ColumnFormat, Sentence, read_sentences
+from tagger.data.guards import check_sentences
 from tagger.data.schemes import Span, detect_scheme, tags_to_spans
 from tagger.errors import ConfigError, DataError
 
@@ -33,13 +40,17 @@ class PreparedData:
     notes: list[str]
     train_source: str  # the training file, or TRAIN_IN_MEMORY: where messages point
     dev_source: str  # the dev file, the training source when dev was held out, or DEV_IN_MEMORY
+    dev_held_out: bool = False  # was dev held out of train (no dev set given)?
 
 
 def column_format(config: Config) -> ColumnFormat:
     data = config.data
     delimiter = None if data.delimiter == "auto" else data.delimiter
     return ColumnFormat(
-        delimiter=delimiter, token_column=data.token_column, label_column=data.label_column
+        delimiter=delimiter,
+        token_column=data.token_column,
+        label_column=data.label_column,
+        encoding=data.encoding,
     )
 
 
@@ -71,21 +82,38 @@ def prepare_sentences(
     """Choose the input scheme and hold out dev from train if `dev` is None."""
     if not train:
         raise DataError("no training sentences", train_source)
-    fingerprint = data_fingerprint(train, dev, config.model.lexicons)
+    limit = config.data.max_sentence_tokens
+    check_sentences(list(train), train_source, limit)
     notes: list[str] = []
     if dev is None:
         kept, held, note = hold_out_dev(train, config)
         notes.append(note)
         dev_source = train_source
+        if not kept:
+            raise DataError(
+                f"no training sentence is left once dev is held out of the {len(train):,} there "
+                f"are (data.dev_fraction={config.data.dev_fraction}, no dev file); give a dev "
+                "file (--dev) or more training sentences",
+                train_source,
+            )
     else:
-        kept, held = list(train), list(dev)
         dev_source = dev_source or DEV_IN_MEMORY
+        if not dev:
+            raise DataError(
+                "the dev set holds no sentences, so dev F1 could not choose the best epoch; "
+                "give a dev file with sentences, or none (a part of train is then held out)",
+                dev_source,
+            )
+        check_sentences(list(dev), dev_source, limit)
+        kept, held = list(train), list(dev)
+    fingerprint = data_fingerprint(train, dev, config.model.lexicons)
     guess = detect_scheme(s.labels for s in kept)
     input_scheme = guess.candidates[0]
     if len(guess.candidates) > 1:
         notes.append(f"input scheme read as {input_scheme}: {guess.note}")
     train_spans = [tags_to_spans(s.labels, input_scheme) for s in kept]
     dev_spans = [tags_to_spans(s.labels, input_scheme) for s in held]
+    notes.extend(_check_types(train_spans, dev_spans, train_source, dev_source, dev is None))
     return PreparedData(
         kept,
         held,
@@ -96,7 +124,49 @@ def prepare_sentences(
         notes,
         train_source,
         dev_source,
+        dev_held_out=dev is None,
     )
+
+
+def _span_types(spans: Sequence[list[Span]]) -> set[str]:
+    return {span[0] for sentence in spans for span in sentence}
+
+
+def _check_types(
+    train_spans: Sequence[list[Span]],
+    dev_spans: Sequence[list[Span]],
+    train_source: str,
+    dev_source: str,
+    held_out: bool,
+) -> list[str]:
+    """Refuse training labels without spans and a dev set without spans; a note (as a list)
+    when train and dev share no entity type, as dev F1 then says nothing about what was learnt."""
+    train_types, dev_types = _span_types(train_spans), _span_types(dev_spans)
+    if not train_types:
+        raise DataError(
+            "the training labels hold no spans (every label is O), so there is no entity type "
+            "to learn; is the label column the right one? (tagger check shows what each column "
+            "holds)",
+            train_source,
+        )
+    if not dev_types:
+        what = (
+            f"the dev set held out of it ({len(dev_spans):,} "
+            f"sentence{'' if len(dev_spans) == 1 else 's'}) holds no spans (every label is O), "
+            "so dev F1 would be 0 every epoch and choose nothing; give a dev file (--dev) or "
+            "raise data.dev_fraction"
+            if held_out
+            else "the dev labels hold no spans (every label is O), so dev F1 would be 0 every "
+            "epoch and choose nothing; give a dev file annotated like the training file"
+        )
+        raise DataError(what, dev_source)
+    if not train_types & dev_types:
+        return [
+            f"train and dev share no entity type (train: {', '.join(sorted(train_types))}; dev: "
+            f"{', '.join(sorted(dev_types))}): dev F1 will be 0 and cannot tell epochs apart; "
+            "is the dev file the one meant for this training file?"
+        ]
+    return []
 
 
 def hold_out_dev(

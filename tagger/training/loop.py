@@ -7,11 +7,14 @@ A run folder holds everything a run leaves behind:
                          with train.weight_average, the averaged weights
     checkpoint.tagger    the state after the last finished epoch, for --resume (checkpoint.py)
     history.json / .csv  one row per epoch
-    metrics.json         the best epoch's dev scores and how the run ended
+    metrics.json         the best epoch's dev scores, how the run ended and the calibration
 
 `train` reads the files the config names; `train_on_sentences` takes sentences from memory. Both
-run the same loop: epochs of `train_step` over seeded batches, each epoch scored on dev, then the
-schedule, the stopping rules and the checkpoint.
+start in a run folder made, held and checked as `run_folder` says (a finished run is replaced only
+with overwrite, a failed start leaves nothing behind), then run the same loop: epochs of
+`train_step` over seeded batches, each epoch scored on dev, then the schedule, the stopping rules
+and the checkpoint. When the epochs end, the saved model's temperature is fitted on dev
+(`tagger.apply.calibration`), so that its scores are calibrated.
 """
 
 from __future__ import annotations
@@ -25,9 +28,9 @@ from typing import Any
 import torch
 from torch.optim.lr_scheduler import LRScheduler
 
-from tagger.apply.tagger import Tagger
+from tagger.apply.calibration import calibrate_model_file
+from tagger.apply.tagger import COLUMN_LAYOUT_KEY, Tagger
 from tagger.config import Config
-from tagger.data.atomic import exclusive_folder
 from tagger.data.corpus import Sentence
 from tagger.data.schemes import Span
 from tagger.network.batching import EncodedSentence, bucketed_batches, collate
@@ -40,14 +43,20 @@ from tagger.training.checkpoint import (
     restore_checkpoint,
     save_checkpoint,
 )
-from tagger.training.data import PreparedData, prepare_sentences, read_training_files
+from tagger.training.data import (
+    TRAIN_IN_MEMORY,
+    PreparedData,
+    prepare_sentences,
+    read_training_files,
+)
+from tagger.training.overview import data_warnings, earliest_stop, run_overview
 from tagger.training.records import write_config, write_history, write_metrics
+from tagger.training.run_folder import MODEL_NAME, RunFolder, check_named_files, run_folder
 from tagger.training.schedule import end_epoch, learning_rate, new_schedule
 from tagger.training.setup import TrainingSetup, new_network, setup_training, step_tools
 from tagger.training.step import LossNotFinite, StepTools, train_step
 
 Progress = Callable[[dict[str, Any]], None]
-MODEL_NAME = "model.tagger"
 
 
 @dataclass
@@ -70,16 +79,20 @@ def train(
     run_dir: str | Path,
     resume: bool = False,
     progress: Progress | None = None,
+    overwrite: bool = False,
 ) -> TrainResult:
     """Train a tagger on the files data.train (and data.dev) name; the best model is at
     ``run_dir/model.tagger``. Returns the per-epoch history.
 
-    One run at a time in a folder: a second one is refused (FolderBusyError)."""
-    train_sentences, dev_sentences = read_training_files(config)
-    data = prepare_sentences(
-        config, train_sentences, dev_sentences, config.data.train, config.data.dev or None
-    )
-    return _train_in_folder(config, data, Path(run_dir), resume, progress)
+    One run at a time in a folder: a second one is refused (FolderBusyError). A folder holding
+    a run is refused (OutputError) unless `resume` continues it or `overwrite` replaces it."""
+    check_named_files(config)
+    with run_folder(Path(run_dir), resume, overwrite) as folder:
+        train_sentences, dev_sentences = read_training_files(config)
+        data = prepare_sentences(
+            config, train_sentences, dev_sentences, config.data.train, config.data.dev or None
+        )
+        return _train(config, data, folder, resume, progress or (lambda event: None))
 
 
 def train_on_sentences(
@@ -89,25 +102,21 @@ def train_on_sentences(
     run_dir: str | Path,
     resume: bool = False,
     progress: Progress | None = None,
+    overwrite: bool = False,
 ) -> TrainResult:
     """Train a tagger on sentences in memory (e.g. `Sentence.from_tokens(tokens, labels)`), as
     `train` does on files. Without dev sentences, dev is held out of train as data.dev_fraction
     and data.dev_holdout say. data.train and data.dev are not read, only recorded in the model."""
-    data = prepare_sentences(config, train_sentences, dev_sentences)
-    return _train_in_folder(config, data, Path(run_dir), resume, progress)
-
-
-def _train_in_folder(
-    config: Config, data: PreparedData, run_dir: Path, resume: bool, progress: Progress | None
-) -> TrainResult:
-    run_dir.mkdir(parents=True, exist_ok=True)
-    with exclusive_folder(run_dir):
-        return _train(config, data, run_dir, resume, progress or (lambda event: None))
+    check_named_files(config, data_files=False)
+    with run_folder(Path(run_dir), resume, overwrite) as folder:
+        data = prepare_sentences(config, train_sentences, dev_sentences)
+        return _train(config, data, folder, resume, progress or (lambda event: None))
 
 
 def _train(
-    config: Config, data: PreparedData, run_dir: Path, resume: bool, report: Progress
+    config: Config, data: PreparedData, folder: RunFolder, resume: bool, report: Progress
 ) -> TrainResult:
+    run_dir = folder.path
     epochs = config.train.epochs
     if config.train.threads:
         torch.set_num_threads(config.train.threads)
@@ -115,17 +124,25 @@ def _train(
     random.seed(config.train.seed)
 
     setup = setup_training(config, data)
-    for message in data.notes:
-        report(events.note(message))
     net, vectors_note = new_network(config, setup)
     if vectors_note:
         report(events.note(vectors_note))
     tools = step_tools(config, setup, net)
     schedule = new_schedule(config, tools.optimizer)
     state = _resume(run_dir, config, data, tools, schedule, report) if resume else RunState()
+    folder.begin()
     write_config(run_dir, config)
+    parameters = sum(p.numel() for p in net.parameters())
+    report(events.start(run_overview(config, data, parameters, run_dir, state.epoch + 1)))
+    for message in data.notes:
+        report(events.note(message))
+    warnings = data_warnings(data)
+    for message in warnings:
+        report(events.warning(message))
 
     clock = RunClock(config.train.max_minutes, state.seconds_used)
+    if resume and state.history:  # resumed with a new epoch limit, patience or budget: ask again
+        state.history[-1]["stop"] = _stop_reason(state, config, clock, state.epoch)
     # With weight averaging on, the averaged copy is the model: dev scores it and it is saved.
     scored = Tagger(
         tools.average.module if tools.average is not None else net,
@@ -152,7 +169,7 @@ def _train(
         seconds = (train_seconds, now() - started)
         row = _history_row(epoch, totals, dev, learning_rate(tools.optimizer), seconds, improved)
         end_epoch(schedule, dev["micro"]["f1"])
-        row["stop"] = _stop_reason(state, config, clock)
+        row["stop"] = _stop_reason(state, config, clock, epoch)
         state.history.append(row)
         state.epoch, state.seconds_used = epoch, clock.used()
         write_history(run_dir, state.history)
@@ -162,6 +179,15 @@ def _train(
             stop_reason = row["stop"]
             break
 
+    calibration = None
+    if state.best_epoch and (run_dir / MODEL_NAME).exists():
+        calibration = calibrate_model_file(run_dir / MODEL_NAME, data.dev, data.dev_spans)
+        if calibration is not None:
+            report(
+                events.note(
+                    f"span scores calibrated on dev: temperature {calibration.temperature:.2f}"
+                )
+            )
     write_metrics(
         run_dir,
         {
@@ -171,6 +197,8 @@ def _train(
             "diverged": diverged,
             "input_scheme": data.input_scheme,
             "notes": data.notes,
+            "warnings": warnings,
+            "calibration": None if calibration is None else calibration.to_dict(),
         },
     )
     return TrainResult(
@@ -223,6 +251,7 @@ def _train_epoch(
         epoch_left, run_left = seconds_left(
             state.history, elapsed, number, len(batches), config.train.epochs - epoch
         )
+        stop_at = earliest_stop(epoch, config.train.epochs, config.train.patience, state.bad_epochs)
         report(
             events.batch(
                 epoch,
@@ -233,6 +262,7 @@ def _train_epoch(
                 totals.tokens / max(elapsed, 1e-9),
                 (epoch_left, clock.capped(run_left)),
                 state.best_f1,
+                may_stop_early=bool(clock.budget) or stop_at < config.train.epochs,
             )
         )
     return totals
@@ -258,7 +288,14 @@ def _resume(
     if not checkpoint.exists():
         report(events.note(f"no checkpoint in {run_dir}: starting from the beginning"))
         return RunState()
-    state = restore_checkpoint(checkpoint, config, data.fingerprint, tools, schedule)
+    state = restore_checkpoint(
+        checkpoint,
+        config,
+        data.fingerprint,
+        tools,
+        schedule,
+        note=lambda message: report(events.note(message)),
+    )
     budget = ""
     if config.train.max_minutes:
         budget = (
@@ -271,7 +308,17 @@ def _resume(
 
 def _model_meta(config: Config, setup: TrainingSetup) -> dict[str, Any]:
     """What the model file says about the training run, besides the epoch and its dev scores."""
+    layout = {}
+    if setup.data.train_source != TRAIN_IN_MEMORY:
+        # How the files were read, so that evaluate reads gold files alike without the options.
+        data = config.data
+        layout[COLUMN_LAYOUT_KEY] = {
+            "token_column": data.token_column,
+            "label_column": data.label_column,
+            "delimiter": data.delimiter,
+        }
     return {
+        **layout,
         "training_data": {
             "fingerprint": setup.data.fingerprint,
             "train": config.data.train,
@@ -309,13 +356,19 @@ def _history_row(
     }
 
 
-def _stop_reason(state: RunState, config: Config, clock: RunClock) -> str:
-    """Why the run stops after this epoch, or "" to go on (the epoch count aside)."""
+def _stop_reason(state: RunState, config: Config, clock: RunClock, epoch: int) -> str:
+    """Why the run stops after `epoch`, or "" to go on (the epoch count aside)."""
     patience = config.train.patience
     if state.bad_epochs >= patience:
         return f"no better dev F1 for {state.bad_epochs} epochs (train.patience={patience})"
     if clock.spent():
-        return f"time budget of train.max_minutes={config.train.max_minutes} used"
+        reason = f"time budget of train.max_minutes={config.train.max_minutes} used"
+        if state.best_epoch == epoch:
+            reason += (
+                f"; dev F1 was still improving (best at the last epoch, {state.best_epoch}), so "
+                "more epochs may do better: raise or remove train.max_minutes"
+            )
+        return reason
     return ""
 
 

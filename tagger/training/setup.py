@@ -7,7 +7,7 @@ The benchmarks build their training steps here too, so they train what a run tra
 from __future__ import annotations
 
 from collections import Counter
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from typing import Any
 
 import torch
@@ -64,7 +64,9 @@ def setup_training(config: Config, data: PreparedData) -> TrainingSetup:
         config.model.min_word_count,
         extra_words=vectors[0] if vectors else (),
     )
-    settings = TokenizerSettings()
+    # The model stores its tokenizer settings ([tokenizer]), so tagging cuts text as training did;
+    # one sentence limit bounds annotated sentences and tagged text alike.
+    settings = replace(config.tokenizer, max_sentence_tokens=config.data.max_sentence_tokens)
     features, value_counts = build_features(config.model, data.train, data.train_source, settings)
     if features is not None:
         check_columns(features, data.dev, data.dev_source)
