@@ -143,7 +143,9 @@ class TrainConfig:
     unknown_replace: float = 0.3  # chance a word seen once in train is read as unknown
     weight_average: float = 0.0  # decay of a moving average of the weights, e.g. 0.999; 0: off
     seed: int = 1
-    threads: int = 0  # 0: torch's default
+    # One by default: beside one busy process two threads ran 3x slower than one, while alone
+    # they gained only 16% (benchmarks/threads.md). 0: torch's default, one per core.
+    threads: int = 1
     max_minutes: float = 0.0  # wall-clock budget; 0: none
 
 

@@ -133,6 +133,25 @@ def test_same_config_and_data_give_the_same_run(tiny_files: Path, tmp_path: Path
     ]
 
 
+def test_training_uses_one_thread_unless_the_config_asks_for_more(
+    tiny_files: Path, tmp_path: Path
+) -> None:
+    # Two threads on a shared 2-core machine ran several times slower than one
+    # (benchmarks/threads.md), so a config that says nothing about threads trains on one.
+    data = tiny_files / "train.txt"
+    raw = small_config(data, data, train={"epochs": 1}).to_dict()
+    del raw["train"]["threads"]
+    before = torch.get_num_threads()
+    try:
+        torch.set_num_threads(2)
+        train(config_from_dict(raw), tmp_path / "default")
+        assert torch.get_num_threads() == 1
+        train(small_config(data, data, train={"epochs": 1, "threads": 2}), tmp_path / "two")
+        assert torch.get_num_threads() == 2
+    finally:
+        torch.set_num_threads(before)
+
+
 class _KillAt:
     def __init__(self, epoch: int, batch: int) -> None:
         self.epoch, self.batch = epoch, batch

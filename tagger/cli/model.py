@@ -107,7 +107,8 @@ def train(
     threads: Annotated[
         int | None,
         typer.Option(
-            min=0, help="torch threads while training (overrides train.threads; 0: torch's)."
+            min=0,
+            help="torch threads while training (overrides train.threads, default 1; 0: one per core).",
         ),
     ] = None,
     overwrite: Annotated[
