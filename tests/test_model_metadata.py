@@ -206,6 +206,12 @@ FIELD_CASES = [
     (_set(["tokenizer"], ["a"]), "tokenizer is not a table"),
     (_set(["config", "model", "word_shape"], True), "asks for features the metadata does not hold"),
     (_set(["features"], {"columns": [], "lexicons": [], "shape": False}), "holds features the stored config does not ask for"),
+    (_set(["column_layout"], {"token_column": "0", "label_column": -1, "delimiter": "auto"}), "column_layout.token_column must be a whole number"),
+    (_set(["column_layout"], {"token_column": 0, "label_column": -1, "delimiter": ";"}), "column_layout.delimiter must be one of"),
+    (_set(["column_layout"], {"token_column": 0}), "column_layout lacks 'label_column'"),
+    (_set(["calibration"], {"temperature": 0.0, "tokens": 9, "loss_before": 1.0, "loss_after": 0.5}), "calibration.temperature must be a finite number above 0"),
+    (_set(["calibration"], {"temperature": "2", "tokens": 9, "loss_before": 1.0, "loss_after": 0.5}), "calibration.temperature must be a finite number above 0"),
+    (_set(["calibration"], {"temperature": 1e400, "tokens": 9, "loss_before": 1.0, "loss_after": 0.5}), "calibration.temperature must be a finite number above 0"),
 ]  # fmt: skip
 
 
