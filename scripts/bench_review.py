@@ -46,11 +46,12 @@ from benchlib import machine  # noqa: E402
 from tagger.apply.calibration import fit_temperature  # noqa: E402
 from tagger.apply.review import REVIEW_BELOW, ScoredSentence, needs_review  # noqa: E402
 from tagger.apply.tagger import Tagger  # noqa: E402
-from tagger.config import Config, apply_overrides, load_config, same_config  # noqa: E402
+from tagger.config import Config, apply_overrides, load_config  # noqa: E402
 from tagger.data.corpus import Sentence, read_sentences  # noqa: E402
 from tagger.data.schemes import Span, spans_lenient  # noqa: E402
 from tagger.scoring.bootstrap import SEED, f1_interval, sentence_counts  # noqa: E402
 from tagger.scoring.calibration import reliability, review_catch  # noqa: E402
+from tagger.training.config_changes import same_config  # noqa: E402
 from tagger.training.loop import train  # noqa: E402
 
 RESULTS = ROOT / "benchmarks" / "review.json"

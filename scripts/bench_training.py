@@ -31,10 +31,11 @@ from benchlib import machine, matmul_gflops, portable_path  # noqa: E402
 
 from tagger.apply.evaluate import evaluate_files  # noqa: E402
 from tagger.apply.tagger import Tagger  # noqa: E402
-from tagger.config import apply_overrides, load_config, same_config  # noqa: E402
+from tagger.config import apply_overrides, load_config  # noqa: E402
 from tagger.data.atomic import atomic_output  # noqa: E402
 from tagger.errors import ModelFileError  # noqa: E402
 from tagger.network.batching import Batch, bucketed_batches, collate  # noqa: E402
+from tagger.training.config_changes import same_config  # noqa: E402
 from tagger.training.loop import train  # noqa: E402
 from tagger.training.setup import new_network, prepare_training, step_tools  # noqa: E402
 from tagger.training.step import StepTools, train_step  # noqa: E402

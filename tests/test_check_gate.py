@@ -12,7 +12,7 @@ from typer.testing import CliRunner
 
 from tagger.cli import app
 from tagger.cli.files import PROBLEMS_FOUND
-from tagger.data.check import LONG_SENTENCE
+from tagger.data.file_scan import LONG_SENTENCE
 from tagger.network.modelfile import save_model_file
 from tagger.text.tokenizer import TokenizerSettings
 

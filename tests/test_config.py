@@ -181,7 +181,7 @@ def test_resolving_leaves_empty_paths_and_standard_input_alone(tmp_path: Path) -
 
 
 def test_config_changes_name_each_key_with_both_values() -> None:
-    from tagger.config import config_changes
+    from tagger.training.config_changes import config_changes
 
     saved = config_from_dict({"train": {"epochs": 5}, "model": {"cell": "gru"}}).to_dict()
     del saved["train"]["weight_average"]  # a key added since: its default is no change

@@ -27,8 +27,8 @@ from tagger.cli.common import (
     say,
     usable_output,
 )
-from tagger.data.check import LONG_SENTENCE
 from tagger.data.convert import REPAIR_OPTION  # the option its refusal names
+from tagger.data.file_scan import LONG_SENTENCE
 from tagger.data.scheme_rules import SchemeName
 from tagger.text.lexicon import LexiconCase
 

@@ -101,7 +101,7 @@ def gate_problems(
 
     "ill_formed": transitions the file's scheme forbids; "not_span_tags": sentences holding labels
     that are neither O nor PREFIX-TYPE; "also_in_train": dev/test sentences that train holds too,
-    counting those of `tagger.data.check.LONG_SENTENCE` tokens or more only (shorter ones, such
+    counting those of `tagger.data.file_scan.LONG_SENTENCE` tokens or more only (shorter ones, such
     as "1 .", recur in any large corpus).
     """
     problems: list[dict[str, Any]] = []

@@ -8,7 +8,7 @@ from __future__ import annotations
 from collections.abc import Callable
 from typing import Any
 
-from tagger.data.check import LONG_SENTENCE
+from tagger.data.file_scan import LONG_SENTENCE
 from tagger.data.span_labelling import MAX_SEQUENCES, MAX_SPAN_TOKENS
 from tagger.reports.layout import bullets, count, labelled, number, share
 

@@ -25,9 +25,10 @@ from typing import Any
 import torch
 from torch.optim.lr_scheduler import LRScheduler
 
-from tagger.config import RESUMABLE_KEYS, Config, config_changes
+from tagger.config import Config
 from tagger.errors import ConfigError, ModelFileError
 from tagger.network.modelfile import load_model_file, save_model_file
+from tagger.training.config_changes import RESUMABLE_KEYS, config_changes
 from tagger.training.schedule import load_schedule_state, schedule_state
 from tagger.training.step import StepTools
 
