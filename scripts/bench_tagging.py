@@ -44,7 +44,7 @@ from benchlib import machine, matmul_gflops, portable_command, portable_path  # 
 
 from tagger.apply.tagger import Tagger  # noqa: E402
 from tagger.data.corpus import read_sentences  # noqa: E402
-from tagger.text.tokenizer import split_sentences  # noqa: E402
+from tagger.text.sentences import split_sentences  # noqa: E402
 
 RESULTS_DIR = ROOT / "benchmarks"
 DEFAULT_MODEL = ROOT / "runs" / "demo" / "model.tagger"

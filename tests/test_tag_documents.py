@@ -18,7 +18,8 @@ from typer.testing import CliRunner
 
 from tagger import Tagger
 from tagger.cli import app
-from tagger.text.tokenizer import TokenizerSettings, split_sentences
+from tagger.text.sentences import split_sentences
+from tagger.text.tokenizer import TokenizerSettings
 
 runner = CliRunner()
 GOOD = "Crew A replaced the gearbox on T-9."

@@ -34,7 +34,8 @@ from tagger.network.batching import collate
 from tagger.network.modelfile import load_model_file
 from tagger.reports.notes import CAUTION
 from tagger.scoring.files import score_files
-from tagger.text.tokenizer import TokenizerSettings, split_sentences
+from tagger.text.sentences import split_sentences
+from tagger.text.tokenizer import TokenizerSettings
 from tagger.text.vocab import Vocab, Vocabularies
 from tagger.training.loop import train
 

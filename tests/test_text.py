@@ -15,7 +15,8 @@ from hypothesis import settings as hsettings
 from hypothesis import strategies as st
 
 from tagger.errors import ConfigError
-from tagger.text.tokenizer import TextSentence, Token, TokenizerSettings, split_sentences, tokenize
+from tagger.text.sentences import split_sentences
+from tagger.text.tokenizer import TextSentence, Token, TokenizerSettings, tokenize
 
 CORPORA = Path(__file__).resolve().parents[2] / "shared" / "corpora"
 

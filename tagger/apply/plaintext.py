@@ -28,7 +28,8 @@ from typing import BinaryIO
 
 from tagger.data.io import decoded_blocks
 from tagger.errors import DataError
-from tagger.text.tokenizer import TextSentence, TokenizerSettings, split_sentences
+from tagger.text.sentences import split_sentences
+from tagger.text.tokenizer import TextSentence, TokenizerSettings
 
 SEARCH_CHARS = 8_192  # how far back from a piece's end a sentence start is looked for
 SENTENCE_ROOM = 100_000  # how far past its size a piece grows to reach a sentence boundary

@@ -23,7 +23,8 @@ from tagger.data.corpus import ColumnFormat
 from tagger.data.schemes import Span, read_spans, spans_to_tags, split_tag
 from tagger.errors import DataError, ModelFileError, TaggerError
 from tagger.text.features import FeatureSpec
-from tagger.text.tokenizer import TextSentence, TokenizerSettings, split_sentences
+from tagger.text.sentences import split_sentences
+from tagger.text.tokenizer import TextSentence, TokenizerSettings
 from tagger.text.vocab import Vocabularies
 from tagger.version import __version__
 

@@ -1,7 +1,7 @@
 """Raw text -> tokens and sentences with exact character offsets, for tagging new documents.
 
-This module owns the rule-based tokeniser and sentence splitter used at tagging time, and the
-`TokenizerSettings` stored in model files. Tokens follow the conventions of annotated column
+This module owns the rule-based tokeniser used at tagging time (its sentence splitter is
+`tagger.text.sentences`) and the `TokenizerSettings` stored in model files. Tokens follow the conventions of annotated column
 corpora (Penn-Treebank-like): punctuation split from words, clitics split ("do" "n't", "crew" "'s"),
 numbers, abbreviations, URLs, e-mail addresses, @mentions and #hashtags kept whole.
 
@@ -38,7 +38,6 @@ Decisions (documented once, here):
 
 from __future__ import annotations
 
-import bisect
 import functools
 import re
 import unicodedata
@@ -54,7 +53,6 @@ __all__ = [
     "Token",
     "TokenizerSettings",
     "is_separator",
-    "split_sentences",
     "tokenize",
 ]
 
@@ -80,7 +78,7 @@ DEFAULT_ABBREVIATIONS: tuple[str, ...] = (
 )  # fmt: skip
 
 # Listed abbreviations that also commonly close a sentence: they end one only before a capital.
-_MAY_END_SENTENCE = frozenset(
+MAY_END_SENTENCE = frozenset(
     {"etc.", "Etc.", "Inc.", "Ltd.", "Co.", "Corp.", "Jr.", "Sr.", "Bros."}
 )
 
@@ -170,7 +168,7 @@ def is_separator(ch: str) -> bool:
 # ---------------------------------------------------------------------------------------------
 # Character classes
 
-_SEP = r"\s\x00-\x1f\x7f-\x9f"  # regex class body: whitespace + control characters (Cc)
+SEPARATOR_CLASS = r"\s\x00-\x1f\x7f-\x9f"  # regex class body: whitespace + control characters (Cc)
 
 
 def _class_body(ranges: list[tuple[int, int]]) -> str:
@@ -242,13 +240,15 @@ def _master() -> re.Pattern[str]:
     # Astral classes are tried only after a one-range test for an astral character.
     x = f"(?:[{xb}]|(?=[{_ASTRAL}])[{xa}])"  # one extending character
     wx_run = f"(?:[\\w{xb}]++|(?=[{_ASTRAL}])[{wxa}])"  # word characters with their marks
-    nonsep_nonword = f"[^{_SEP}\\w]"
+    nonsep_nonword = f"[^{SEPARATOR_CLASS}\\w]"
     hy = "\\-\u2010\u2011"  # hyphen-minus, hyphen, non-breaking hyphen
     joiner = f"(?:[.'\u2019/&{hy}]|(?<=\\d)[,:])(?=\\w)"
     # The sign's look-behind comes after the sign so that most positions fail on one character.
     sign = "[-+\u2212\u00b1](?<![\\w.,)\\]}][-+\u2212\u00b1])"
     number = "(?:\\d++(?:[.,]\\d++)*+|\\.\\d++)"
-    url_char = f"[^{_SEP}<>\"'()\\[\\]{{}}.,;:!?\u201c\u201d\u2018\u2019\u00ab\u00bb\u2026]"
+    url_char = (
+        f"[^{SEPARATOR_CLASS}<>\"'()\\[\\]{{}}.,;:!?\u201c\u201d\u2018\u2019\u00ab\u00bb\u2026]"
+    )
     url = (
         "(?i:(?:https?|ftps?|sftp|file|ssh|git)://|www\\d{0,3}\\.)"
         f"(?:{url_char}|[.,;:!?']++(?={url_char}|\\()|\\({url_char}*+\\))++"
@@ -295,7 +295,7 @@ def _master() -> re.Pattern[str]:
         ("end", "\\Z"),
     ]
     body = "|".join(f"(?P<{name}>{pat})" for name, pat in alternatives)
-    return re.compile(f"[{_SEP}]*+(?:{body})")
+    return re.compile(f"[{SEPARATOR_CLASS}]*+(?:{body})")
 
 
 @functools.cache
@@ -333,7 +333,7 @@ _NUM_UNIT = re.compile(
 _Piece = tuple[str, int]  # (text, start)
 
 
-class _Rules:
+class Rules:
     """Post-processing for one TokenizerSettings: the parts of a rule that depend on settings."""
 
     def __init__(self, settings: TokenizerSettings) -> None:
@@ -403,8 +403,8 @@ class _Rules:
 
 
 @functools.lru_cache(maxsize=32)
-def _rules(settings: TokenizerSettings) -> _Rules:
-    return _Rules(settings)
+def rules_for(settings: TokenizerSettings) -> Rules:
+    return Rules(settings)
 
 
 _DEFAULT = TokenizerSettings()
@@ -427,7 +427,7 @@ def _token(text: str, start: int, end: int) -> Token:
 
 def tokenize(text: str, settings: TokenizerSettings = _DEFAULT) -> list[Token]:
     """Cut `text` into tokens with character offsets (see the module docstring for the rules)."""
-    rules = _rules(settings)
+    rules = rules_for(settings)
     abbreviations = rules.abbreviations
     actions = _actions()
     tokens: list[Token] = []
@@ -457,102 +457,3 @@ def tokenize(text: str, settings: TokenizerSettings = _DEFAULT) -> list[Token]:
             for t, ps in parts:
                 append(_token(t, ps, ps + len(t)))
     return tokens
-
-
-# ---------------------------------------------------------------------------------------------
-# Sentences
-
-_TERMINAL = frozenset(".!?\u203d\u2026\u3002\uff01\uff1f\u061f\u0964\u0965")
-_ELLIPSIS = frozenset(".\u2026")
-_CLOSERS = frozenset({'"', "'", "''", "\u201d", "\u2019", "\u00bb", "\u203a", ")", "]", "}"})
-_CUT_AFTER = frozenset({",", ";", ":"})
-_TERMINAL_CHAR = re.compile("[.!?\u203d\u2026\u3002\uff01\uff1f\u061f\u0964\u0965]")
-# A run of separators that holds a line break; it ends a paragraph when it holds two line
-# breaks ("\r\n" counts once) or one hard break (form feed, record separators, U+2029).
-_BREAK_RUN = re.compile(f"[\n\r\x0b\x85\u2028\x0c\x1c\x1d\x1e\u2029][{_SEP}]*")
-_LINE_BREAKS = "\n\r\x0b\x85\u2028"
-_HARD_BREAKS = "\x0c\x1c\x1d\x1e\u2029"
-
-
-def _is_paragraph_gap(run: str) -> bool:
-    if any(c in run for c in _HARD_BREAKS):
-        return True
-    run = run.replace("\r\n", "\n")
-    return sum(run.count(c) for c in _LINE_BREAKS) >= 2
-
-
-def _ends_sentence(tokens: list[Token], i: int, rules: _Rules) -> bool:
-    """Does the sentence end after token i (not the last token)?"""
-    t = tokens[i].text
-    if t[0] in _TERMINAL and all(c in _TERMINAL for c in t):
-        ellipsis = all(c in _ELLIPSIS for c in t) and (len(t) > 1 or t == "\u2026")
-        return not (ellipsis and tokens[i + 1].text[0].islower())
-    if len(t) < 2 or not rules.keeps_period(t):
-        return False
-    # A word that kept its period: a listed abbreviation or initial, or a dotted abbreviation.
-    if t in rules.abbreviations and t not in _MAY_END_SENTENCE:
-        return False
-    if len(t) == 2 and t[0].isupper():
-        return False
-    return tokens[i + 1].text[0].isupper()
-
-
-def _cut(n: int, tokens: list[Token], lo: int, hi: int) -> list[tuple[int, int, bool]]:
-    """Cut tokens[lo:hi] into pieces of at most n tokens, preferring to cut after , ; : in the
-    second half of a window; returns (lo, hi, cut) triples."""
-    out: list[tuple[int, int, bool]] = []
-    while hi - lo > n:
-        end = lo + n
-        for k in range(end, lo + n // 2, -1):
-            if tokens[k - 1].text in _CUT_AFTER:
-                end = k
-                break
-        out.append((lo, end, True))
-        lo = end
-    out.append((lo, hi, False))
-    return out
-
-
-def split_sentences(text: str, settings: TokenizerSettings = _DEFAULT) -> list[TextSentence]:
-    """Tokenise `text` and group the tokens into sentences.
-
-    Blank lines (two line breaks with only spaces between) always end a sentence; a single line
-    break does not. ". ! ?" and their runs end a sentence, together with closing quotes and
-    brackets glued to them; abbreviations and initials do not (see the module docstring).
-    """
-    tokens = tokenize(text, settings)
-    if not tokens:
-        return []
-    rules = _rules(settings)
-    n = len(tokens)
-    ends = [t.end for t in tokens]
-    cuts: set[int] = {n}  # sentence ends, as token indices (exclusive)
-    for m in _BREAK_RUN.finditer(text):
-        if _is_paragraph_gap(m.group()):
-            # The first token after the gap is the first one ending after it.
-            k = bisect.bisect_right(ends, m.end())
-            if 0 < k < n:
-                cuts.add(k)
-    last = -1
-    for m in _TERMINAL_CHAR.finditer(text):
-        # Only a token whose last character is . ! ? (or the like) can end a sentence.
-        k = bisect.bisect_left(ends, m.end())
-        if k == last or k >= n - 1 or ends[k] != m.end():
-            continue
-        last = k
-        if _ends_sentence(tokens, k, rules):
-            j = k + 1
-            while j < n and tokens[j].text in _CLOSERS and tokens[j].start == ends[j - 1]:
-                j += 1
-            cuts.add(j)
-    sentences: list[TextSentence] = []
-    lo = 0
-    limit = settings.max_sentence_tokens
-    for hi in sorted(cuts):
-        if hi <= lo:
-            continue
-        for a, b, cut in _cut(limit, tokens, lo, hi):
-            piece = tuple(tokens[a:b])
-            sentences.append(TextSentence(piece, piece[0].start, piece[-1].end, cut))
-        lo = hi
-    return sentences
