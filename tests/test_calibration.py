@@ -20,7 +20,7 @@ from tagger.apply.calibration import (
     minimise_log_scale,
 )
 from tagger.apply.documents import Document
-from tagger.apply.engine import Analysed, TaggedDocument, TaggedSpan
+from tagger.apply.engine import Analysed, Mention, TaggedDocument
 from tagger.apply.evaluate import evaluate_files
 from tagger.apply.outputs import DocumentFormatter
 from tagger.apply.predict import label_probabilities, tempered_crf
@@ -190,7 +190,7 @@ def test_softmax_probabilities_at_a_temperature() -> None:
 
 def _tagged(certainty: float) -> TaggedDocument:
     document = Document("d1", "T-14 gearbox", "in.txt", 1)
-    span = TaggedSpan(0, 4, "ASSET", "T-14", 0.99)
+    span = Mention("ASSET", 0, 4, "T-14", 0.99)
     analysed = Analysed(document, [["T-14", "gearbox"]], [[0, 5]], [[4, 12]])
     return TaggedDocument(document, [span], [[("ASSET", 0, 1, 0.99)]], analysed, certainty)
 
@@ -198,8 +198,8 @@ def _tagged(certainty: float) -> TaggedDocument:
 def test_a_document_sure_of_its_spans_but_not_of_a_word_outside_them_is_flagged() -> None:
     formatter = DocumentFormatter("jsonl", "IOB2", 0.0, 0.8)
     unsure, sure = _tagged(0.55), _tagged(0.9)
-    assert json.loads(formatter.output(unsure).text)["review"] is True
-    assert json.loads(formatter.output(sure).text)["review"] is False
+    assert json.loads(formatter.output(unsure).text)["needs_review"] is True
+    assert json.loads(formatter.output(sure).text)["needs_review"] is False
     outputs = formatter.chunk([unsure, sure, unsure]).entries
     assert sum(output.review for output in outputs) == 2
 

@@ -82,9 +82,10 @@ def test_text_in_pieces_writes_what_the_whole_text_writes(
     if output_format == "jsonl":
         (record,) = _strict_records(whole.stdout)
         assert record["id"] == str(source) and record["text"] == text
-        assert len(record["spans"]) > 50
-        for span in record["spans"]:
-            assert text[span["start"] : span["end"]] == span["text"]
+        assert len(record["mentions"]) > 50
+        for mention in record["mentions"]:
+            start, end = mention["at"]
+            assert text[start:end] == mention["quote"]
     if output_format == "columns":
         assert whole.stdout.count("-DOCSTART-") == 1
 
@@ -189,8 +190,9 @@ def test_lines_tags_every_line_as_a_record(model: Path, tmp_path: Path) -> None:
     assert [r["id"] for r in records] == [f"{source}:{n}" for n in (1, 2, 4)]
     assert [r["text"] for r in records] == [line.rstrip("\r") for line in LOG.split("\n") if line]
     for record in records:
-        for span in record["spans"]:
-            assert record["text"][span["start"] : span["end"]] == span["text"]
+        for mention in record["mentions"]:
+            start, end = mention["at"]
+            assert record["text"][start:end] == mention["quote"]
     shown = _run("tokenize", str(source), "--input-format", "lines")
     assert shown.stdout.count("-DOCSTART- ") == 3
 

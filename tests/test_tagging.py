@@ -162,15 +162,18 @@ def test_columns_output_in_another_scheme_holds_the_same_spans(model: Path, tmp_
     assert convert_tags([r[2] for r in rows], "IOB2", "BIOES") == [r[2] for r in rows_bioes]
 
 
-def test_api_gives_the_spans_the_command_writes(
+def test_api_gives_the_mentions_the_command_writes(
     model: Path, documents: list[str], tmp_path: Path
 ) -> None:
     result = _tag(str(model), str(_jsonl(tmp_path / "docs.jsonl", documents)))
     assert result.exit_code == 0, result.stderr
-    written = [r["spans"] for r in _records(result.stdout)]
+    written = [r["mentions"] for r in _records(result.stdout)]
     found = Tagger.load(model).tag(documents)
-    assert [[s.to_dict() for s in spans] for spans in found] == written
-    assert any(written), "the model should find some spans in these texts"
+    assert [[m.to_record() for m in mentions] for mentions in found] == written
+    assert any(written), "the model should find some mentions in these texts"
+    first = next(m for mentions in found for m in mentions)
+    assert list(first.to_record()) == ["type", "at", "quote", "confidence"]
+    assert first.to_record()["at"] == [first.start, first.end]
 
 
 _PIECES = ["T-14", "gearbox", "pitch", "bearing", "7.2", "mm/s", "on", "the", "WTG", "07", "Crew",
@@ -190,15 +193,15 @@ _PIECES = ["T-14", "gearbox", "pitch", "bearing", "7.2", "mm/s", "on", "the", "W
         max_size=4,
     )
 )
-def test_every_span_points_at_its_text(model: Path, texts: list[str]) -> None:
+def test_every_mention_points_at_its_quote(model: Path, texts: list[str]) -> None:
     tagger = _api(model)
-    for text, spans in zip(texts, tagger.tag(texts), strict=True):
+    for text, mentions in zip(texts, tagger.tag(texts), strict=True):
         previous_end = 0
-        for span in spans:
-            assert span.text == text[span.start : span.end]
-            assert previous_end <= span.start < span.end <= len(text)
-            assert 0.0 <= span.score <= 1.0
-            previous_end = span.end
+        for mention in mentions:
+            assert mention.quote == text[mention.start : mention.end]
+            assert previous_end <= mention.start < mention.end <= len(text)
+            assert 0.0 <= mention.confidence <= 1.0
+            previous_end = mention.end
 
 
 _LOADED: dict[Path, object] = {}
@@ -218,9 +221,10 @@ def test_jsonl_offsets_and_text_from_the_command(model: Path, tmp_path: Path) ->
     assert result.exit_code == 0, result.stderr
     (record,) = _records(result.stdout)
     assert record["text"] == text and record["id"] == str(path)
-    assert record["spans"]
-    for span in record["spans"]:
-        assert text[span["start"] : span["end"]] == span["text"]
+    assert record["mentions"]
+    for mention in record["mentions"]:
+        start, end = mention["at"]
+        assert text[start:end] == mention["quote"]
 
 
 def test_two_workers_keep_input_order(model: Path, documents: list[str], tmp_path: Path) -> None:
@@ -338,13 +342,13 @@ def _chars(chars: list[list[int]]) -> torch.Tensor:
     return torch.tensor([[c + [0] * (width - len(c)) for c in chars]])
 
 
-def test_min_score_drops_low_spans_and_review_flags_documents(
+def test_min_score_drops_low_mentions_and_review_flags_documents(
     model: Path, documents: list[str], tmp_path: Path
 ) -> None:
     source = _jsonl(tmp_path / "docs.jsonl", documents)
     tagger = Tagger.load(model)
     found = tagger.tag(documents)
-    scores = sorted(s.score for spans in found for s in spans)
+    scores = sorted(m.confidence for mentions in found for m in mentions)
     cut = scores[len(scores) // 2]  # the median: some spans on each side
     # A document's certainty: the lowest probability of a chosen label over all of its tokens.
     certainty = [
@@ -356,17 +360,24 @@ def test_min_score_drops_low_spans_and_review_flags_documents(
     review_cut = sorted(certainty)[len(certainty) // 2]  # the median: documents on each side
     everything = _records(_tag(str(model), str(source), "--review-below", str(review_cut)).stdout)
     filtered = _records(_tag(str(model), str(source), "--min-score", str(cut)).stdout)
-    for spans, full, kept, sure in zip(found, everything, filtered, certainty, strict=True):
-        assert [s["start"] for s in kept["spans"]] == [s.start for s in spans if s.score >= cut]
-        assert len(full["spans"]) == len(spans)
-        assert full["review"] == (sure < review_cut)
-        # every span below the threshold flags its document, as before the flag read all tokens
-        assert full["review"] or not any(s.score < review_cut for s in spans)
-    assert any(r["review"] for r in everything) and not all(r["review"] for r in everything)
+    for mentions, full, kept, sure in zip(found, everything, filtered, certainty, strict=True):
+        assert [m["at"][0] for m in kept["mentions"]] == [
+            m.start for m in mentions if m.confidence >= cut
+        ]
+        assert len(full["mentions"]) == len(mentions)
+        assert full["needs_review"] == (sure < review_cut)
+        # every mention below the threshold flags its document: the flag reads all tokens
+        assert full["needs_review"] or not any(m.confidence < review_cut for m in mentions)
+    flags = [r["needs_review"] for r in everything]
+    assert any(flags) and not all(flags)
     table = _tag(str(model), str(source), "--min-score", str(cut), "--output-format", "table")
     rows = table.stdout.splitlines()
-    assert rows[0].split("\t") == ["document", "start", "end", "label", "score", "text"]
-    assert len(rows) - 1 == sum(len(r["spans"]) for r in filtered)
+    assert rows[0].split("\t") == ["document", "from", "to", "type", "confidence", "quote"]
+    assert len(rows) - 1 == sum(len(r["mentions"]) for r in filtered)
+    written = [m for r in filtered for m in r["mentions"]]
+    assert [row.split("\t")[1:4] for row in rows[1:]] == [
+        [str(m["at"][0]), str(m["at"][1]), m["type"]] for m in written
+    ]
 
 
 def test_table_escapes_tabs_and_line_breaks(model: Path, tmp_path: Path) -> None:
@@ -405,11 +416,11 @@ def test_empty_documents_pass_through(model: Path, tmp_path: Path) -> None:
     source = _jsonl(tmp_path / "docs.jsonl", ["", "Crew A replaced the gearbox on T-9.", " \n "])
     records = _records(_tag(str(model), str(source)).stdout)
     assert [r["id"] for r in records] == ["doc0", "doc1", "doc2"]
-    assert records[0]["spans"] == [] and records[2]["spans"] == [] and records[1]["spans"]
+    assert records[0]["mentions"] == [] and records[2]["mentions"] == [] and records[1]["mentions"]
     empty = tmp_path / "empty.txt"
     empty.write_text("")
     (record,) = _records(_tag(str(model), str(empty)).stdout)
-    assert record == {"id": str(empty), "text": "", "spans": [], "review": False}
+    assert record == {"id": str(empty), "text": "", "mentions": [], "needs_review": False}
 
 
 def test_jsonl_keys_are_carried_through(model: Path, tmp_path: Path) -> None:
@@ -423,8 +434,37 @@ def test_jsonl_keys_are_carried_through(model: Path, tmp_path: Path) -> None:
     source = tmp_path / "d.jsonl"
     source.write_text(json.dumps(original) + "\n\n")  # a blank line is not a document
     (record,) = _records(_tag(str(model), str(source)).stdout)
-    assert list(record) == [*original, "spans", "review"]
+    assert list(record) == [*original, "mentions", "needs_review"]
     assert {k: record[k] for k in original} == original
+
+
+def test_records_written_under_the_earlier_keys_are_tagged_anew(
+    model: Path, tmp_path: Path
+) -> None:
+    earlier = [
+        {"id": "a", "text": "Oil on T-3.", "site": "N", "spans": [{"start": 7}], "review": True},
+        {"id": "b", "text": "Crew A replaced the gearbox on T-9.", "spans": [], "review": False},
+        {"id": "c", "text": "No fault.", "review": "kept: no spans key"},
+    ]
+    source = tmp_path / "earlier.jsonl"
+    source.write_text("".join(json.dumps(r) + "\n" for r in earlier))
+    result = _tag(str(model), str(source))
+    assert result.exit_code == 0, result.stderr
+    records = _records(result.stdout)
+    assert [list(r) for r in records] == [
+        ["id", "text", "site", "mentions", "needs_review"],
+        ["id", "text", "mentions", "needs_review"],
+        ["id", "text", "review", "mentions", "needs_review"],
+    ]
+    fresh = _records(
+        _tag(str(model), str(_jsonl(tmp_path / "d.jsonl", [earlier[1]["text"]]))).stdout
+    )
+    assert records[1]["mentions"] == fresh[0]["mentions"]
+    notes = [line for line in result.stderr.splitlines() if line.startswith("note: ")]
+    assert notes == [
+        f'note: {source} (from line 1) uses the earlier record keys "spans" and "review"; they '
+        'are dropped and the findings written anew as "mentions" and "needs_review"'
+    ]
 
 
 def test_input_format_from_the_file_name() -> None:
@@ -447,11 +487,11 @@ def test_tokenizer_settings_travel_in_the_model_file(model: Path, tmp_path: Path
     tokens = [line.split("\t")[0] for line in shown.stdout.splitlines() if line]
     assert tokens == [t.text for s in split_sentences(text, split) for t in s.tokens]
     assert "-" in tokens
-    spans = Tagger.load(tmp_path / "split.tagger").tag([text])[0]
-    # Hyphens split: no span can hold "T-14" as one token, so none starts at "14".
+    mentions = Tagger.load(tmp_path / "split.tagger").tag([text])[0]
+    # Hyphens split: no mention can hold "T-14" as one token, so none starts at "14".
     sentence_tokens = [t for s in split_sentences(text, split) for t in s.tokens]
     starts = {t.start for t in sentence_tokens}
-    assert all(s.start in starts for s in spans)
+    assert all(m.start in starts for m in mentions)
 
 
 def test_tokenize_prints_tokens_with_offsets(tmp_path: Path) -> None:
@@ -484,10 +524,10 @@ def test_tag_wants_a_list_of_texts_and_tag_text_takes_one(model: Path) -> None:
     text = "Crew A replaced the gearbox on T-9. Vibration hit 7.2 mm/s at T-14."
     with pytest.raises(TypeError, match="tag_text"):
         tagger.tag(text)
-    spans = tagger.tag_text(text)
-    assert spans, "the model should find spans in this text"
-    assert [s.to_dict() for s in spans] == [s.to_dict() for s in tagger.tag([text])[0]]
-    assert [s.to_dict() for s in tagger.tag(iter([text, ""]))[0]] == [s.to_dict() for s in spans]
+    mentions = tagger.tag_text(text)
+    assert mentions, "the model should find mentions in this text"
+    assert mentions == tagger.tag([text])[0]
+    assert tagger.tag(iter([text, ""]))[0] == mentions
 
 
 def test_tagger_tokenizes_with_its_stored_settings(model: Path, tmp_path: Path) -> None:

@@ -12,7 +12,11 @@ input, as text):
     lines           every line holding more than whitespace is a document of its own, with the
                     id "SOURCE:LINE" (its line number): logs and other line-per-record text
     jsonl           one JSON object per line with a "text" string and optionally an "id"; every
-                    other key is carried through to jsonl output untouched; blank lines are ignored
+                    other key is carried through to jsonl output untouched; blank lines are ignored.
+                    A record written by an earlier release of `tag` holds its findings under the
+                    keys "spans" and "review": they are dropped here (the new run writes
+                    "mentions" and "needs_review" in their place) and a note says so once per
+                    input. This reading of the earlier names lasts one release
     columns         a pre-tokenised column file (`tagger.data.corpus`); each sentence is one
                     document whose text is its tokens joined by single spaces; all its columns are
                     kept, and a model trained with extra feature columns reads them from it
@@ -60,6 +64,8 @@ class InputFormat(StrEnum):
 
 INPUT_FORMATS: tuple[str, ...] = tuple(f.value for f in InputFormat if f is not InputFormat.AUTO)
 PIECE_CHARS = 200_000  # characters of plain text read at a time
+# The keys under which an earlier release of `tag` wrote its findings; read for one release more.
+EARLIER_RECORD_KEYS = ("spans", "review")
 MAX_JSON_DEPTH = 100  # deepest nesting of arrays and objects a JSON Lines record may have
 
 _SUFFIX_FORMATS = {
@@ -186,7 +192,7 @@ def read_documents(
             if kind == "columns":
                 yield from _column_items(stream, path, token_column)
             elif kind == "jsonl":
-                yield from _jsonl_items(stream, name)
+                yield from _jsonl_items(stream, name, notes)
             elif kind == "lines":
                 yield from _line_items(stream, name)
             else:
@@ -294,8 +300,9 @@ def _line_items(stream: BinaryIO, name: str) -> Iterator[Item]:
             yield Document(f"{name}:{raw.number}", text, name, raw.number, input_format="lines")
 
 
-def _jsonl_items(stream: BinaryIO, name: str) -> Iterator[Item]:
+def _jsonl_items(stream: BinaryIO, name: str, notes: list[str] | None = None) -> Iterator[Item]:
     seen_content = False
+    noted_earlier_keys = False
     for raw in raw_lines(stream):
         number = raw.number
         try:
@@ -315,6 +322,16 @@ def _jsonl_items(stream: BinaryIO, name: str) -> Iterator[Item]:
         if isinstance(record, str):
             yield Skipped(name, number, record)
             continue
+        if "spans" in record:  # an earlier release's output: its findings are replaced
+            for key in EARLIER_RECORD_KEYS:
+                record.pop(key, None)
+            if not noted_earlier_keys and notes is not None:
+                notes.append(
+                    f'{name} (from line {number}) uses the earlier record keys "spans" and '
+                    '"review"; they are dropped and the findings written anew as "mentions" '
+                    'and "needs_review"'
+                )
+            noted_earlier_keys = True
         doc_id = record.get("id", f"{name}:{number}")
         yield Document(doc_id, record["text"], name, number, record=record, input_format="jsonl")
 

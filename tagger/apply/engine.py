@@ -7,8 +7,9 @@ while memory depends on the chunk size and the longest document, not on the inpu
 
 A span's score is the smallest, over its tokens, of the probability of the label chosen there
 (see `Tagger.predict_sentences`); a document's certainty, which the review flag reads, is the
-smallest over all of its tokens (`tagger.apply.review`). Offsets count characters of the
-document text, end exclusive: `text[start:end]` is the span's text.
+smallest over all of its tokens (`tagger.apply.review`). Each span found becomes a `Mention`,
+whose offsets count code points of the document text, end exclusive: `text[start:end]` is its
+quote.
 
 A sentence longer than the tokenizer's `max_sentence_tokens` makes its document a `Skipped` record
 (for a piece of a plain-text document, its whole document: see `tagger.apply.writing`). A
@@ -34,22 +35,23 @@ SCORE_DIGITS = 4  # scores are written rounded; filtering uses the exact value
 
 
 @dataclass(frozen=True)
-class TaggedSpan:
-    """One entity found in a document; `text == document[start:end]` (characters, end exclusive)."""
+class Mention:
+    """One entity found in a document: `quote == document[start:end]` (code points, end exclusive);
+    `confidence` is the span's score (see the module docstring)."""
 
+    type: str
     start: int
     end: int
-    label: str
-    text: str
-    score: float
+    quote: str
+    confidence: float
 
-    def to_dict(self) -> dict[str, Any]:
+    def to_record(self) -> dict[str, Any]:
+        """The mention as the `tag` command writes it in a JSON Lines record."""
         return {
-            "start": self.start,
-            "end": self.end,
-            "label": self.label,
-            "text": self.text,
-            "score": round(self.score, SCORE_DIGITS),
+            "type": self.type,
+            "at": [self.start, self.end],
+            "quote": self.quote,
+            "confidence": round(self.confidence, SCORE_DIGITS),
         }
 
 
@@ -66,7 +68,7 @@ class Analysed:
 @dataclass
 class TaggedDocument:
     document: Document
-    spans: list[TaggedSpan]  # every span found, before `min_score` filtering
+    mentions: list[Mention]  # every span found, before `min_score` filtering
     token_spans: list[list[ScoredSpan]]  # per sentence, token indices
     analysed: Analysed
     certainty: float = 1.0  # of its least certain sentence (tagger.apply.review)
@@ -183,16 +185,16 @@ class Engine:
                 results.append(entry)
                 continue
             text, offset = entry.doc.text, entry.doc.offset
-            spans: list[TaggedSpan] = []
+            mentions: list[Mention] = []
             sentences = [next(scored) for _ in entry.starts]
             for starts, ends, found in zip(entry.starts, entry.ends, sentences, strict=True):
                 for label, first, last, score in found.spans:
                     start, end = starts[first], ends[last - 1]
-                    spans.append(
-                        TaggedSpan(offset + start, offset + end, label, text[start:end], score)
+                    mentions.append(
+                        Mention(label, offset + start, offset + end, text[start:end], score)
                     )
             per_sentence = [found.spans for found in sentences]
             results.append(
-                TaggedDocument(entry.doc, spans, per_sentence, entry, least_certain(sentences))
+                TaggedDocument(entry.doc, mentions, per_sentence, entry, least_certain(sentences))
             )
         return results

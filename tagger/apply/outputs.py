@@ -1,16 +1,21 @@
 """Output formats of tagged documents: what each document, or piece of one, writes.
 
     jsonl    one object per document: its input keys (id first, added as "SOURCE:LINE" when the
-             input has none), "text", "spans" (start, end, label, text, score) and "review"
-             ("spans" and "review" keys of the input, e.g. from an earlier run, are replaced)
+             input has none), "text", "mentions" and "needs_review"; each mention is
+             {"type": "DRUG", "at": [start, end], "quote": "aspirin", "confidence": 0.97}, where
+             start and end count code points of "text", end exclusive, so that
+             text[start:end] == quote ("mentions" and "needs_review" keys of the input, e.g.
+             from an earlier run, are replaced; so are the earlier names "spans" and "review",
+             see `tagger.apply.documents`)
     columns  one token per line with the predicted label appended, in the training files' scheme
              (or `scheme`), columns separated as in the input column file (TAB or space); a
              blank line after each sentence; documents read from text, lines or jsonl start with
              a "-DOCSTART- ID" line
-    table    tab-separated spans with a header row: document, start, end, label, score, text;
+    table    tab-separated mentions with a header row: document, from, to, type, confidence,
+             quote (from and to as the jsonl "at");
              backslash, TAB, CR and LF in a field are written as \\\\ \\t \\r \\n
 
-Spans below `min_score` are left out; a document is flagged for review when the model is less
+Mentions below `min_score` are left out; a document is flagged for review when the model is less
 sure than `review_below` of the label it chose at any of its tokens, in a span (left out or kept)
 or outside one (`tagger.apply.review`); a document read in pieces, when any piece is.
 
@@ -26,7 +31,7 @@ from enum import StrEnum
 from typing import Any
 
 from tagger.apply.documents import Part, Skipped
-from tagger.apply.engine import SCORE_DIGITS, TaggedDocument
+from tagger.apply.engine import SCORE_DIGITS, Mention, TaggedDocument
 from tagger.apply.review import needs_review
 from tagger.data.corpus import Sentence, format_sentence
 from tagger.data.schemes import spans_to_tags
@@ -42,7 +47,9 @@ class OutputFormat(StrEnum):
 
 
 OUTPUT_FORMATS: tuple[str, ...] = tuple(f.value for f in OutputFormat)
-TABLE_HEADER = "document\tstart\tend\tlabel\tscore\ttext\n"
+TABLE_HEADER = "document\tfrom\tto\ttype\tconfidence\tquote\n"
+MENTIONS_KEY = "mentions"  # the jsonl keys the tag command writes
+REVIEW_KEY = "needs_review"
 
 _TABLE_ESCAPES = str.maketrans({"\\": "\\\\", "\t": "\\t", "\n": "\\n", "\r": "\\r"})
 
@@ -64,7 +71,7 @@ class Output:
     text: str  # the document's output; a piece's share of it (jsonl: its text, JSON-escaped)
     part: Part | None = None  # set on a piece of a document read in several pieces
     head: str = ""  # jsonl, a first piece: the record up to the opening quote of its text
-    spans_json: str = ""  # jsonl, a piece: its spans as JSON objects joined by ", "
+    mentions_json: str = ""  # jsonl, a piece: its mentions as JSON objects joined by ", "
     sentences: int = 0
     tokens: int = 0
     spans: int = 0  # spans written (at or above min_score)
@@ -109,7 +116,7 @@ class DocumentFormatter:
     def output(self, entry: TaggedDocument) -> Output:
         """A document's output and counts; a piece's share when the document has several."""
         doc = entry.document
-        kept = [s for s in entry.spans if s.score >= self.min_score]
+        kept = [m for m in entry.mentions if m.confidence >= self.min_score]
         output = Output(
             "",
             sentences=len(entry.analysed.tokens),
@@ -123,29 +130,29 @@ class DocumentFormatter:
             if doc.whole:
                 output.text = self._record(entry, kept, output.review)
             else:
-                # Only plain text comes in pieces: its record is id, text, spans, review.
+                # Only plain text comes in pieces: its record is id, text, mentions, needs_review.
                 output.head = '{"id": ' + _json(doc.id) + ', "text": "' if doc.first else ""
                 output.text = _json(doc.text)[1:-1]
-                output.spans_json = ", ".join(_json(s.to_dict()) for s in kept)
+                output.mentions_json = ", ".join(_json(m.to_record()) for m in kept)
         elif self.output_format == "table":
             name = table_field(doc.id)
             output.text = "".join(
-                f"{name}\t{s.start}\t{s.end}\t{table_field(s.label)}\t"
-                f"{round(s.score, SCORE_DIGITS)}\t{table_field(s.text)}\n"
-                for s in kept
+                f"{name}\t{m.start}\t{m.end}\t{table_field(m.type)}\t"
+                f"{round(m.confidence, SCORE_DIGITS)}\t{table_field(m.quote)}\n"
+                for m in kept
             )
         else:
             output.text = self._columns(entry)
         return output
 
-    def _record(self, entry: TaggedDocument, kept: list[Any], review: bool) -> str:
+    def _record(self, entry: TaggedDocument, kept: list[Mention], review: bool) -> str:
         doc = entry.document
         record: dict[str, Any] = (
             {"id": doc.id} if doc.record is None or "id" not in doc.record else {}
         )
         record.update(doc.record if doc.record is not None else {"text": doc.text})
-        record["spans"] = [s.to_dict() for s in kept]
-        record["review"] = review
+        record[MENTIONS_KEY] = [m.to_record() for m in kept]
+        record[REVIEW_KEY] = review
         return _json(record) + "\n"
 
     def _columns(self, entry: TaggedDocument) -> str:

@@ -16,7 +16,7 @@ from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
 from tagger.apply.documents import Document, Skipped
-from tagger.apply.engine import CHUNK_CHARS, Engine, TaggedSpan, chunks
+from tagger.apply.engine import CHUNK_CHARS, Engine, Mention, chunks
 from tagger.apply.review import ScoredSentence, ScoredSpan
 from tagger.config import Config
 from tagger.data.corpus import ColumnFormat
@@ -308,8 +308,10 @@ class Tagger:
 
     # --- raw texts -----------------------------------------------------------------------------
 
-    def tag(self, texts: Iterable[str], min_score: float = 0.0) -> list[list[TaggedSpan]]:
-        """Spans per text, in order, as the `tag` command finds them (in chunks, like it).
+    def tag(self, texts: Iterable[str], min_score: float = 0.0) -> list[list[Mention]]:
+        """Mentions per text, in order, as the `tag` command finds them (in chunks, like it):
+        each a `Mention(type, start, end, quote, confidence)`, offsets in code points of the text,
+        end exclusive; those with confidence below `min_score` are left out.
 
         Raises TypeError for a single string (use :meth:`tag_text`), DataError for a text holding
         a sentence longer than max_sentence_tokens, and FeatureInputError for a model that reads
@@ -324,15 +326,15 @@ class Tagger:
             raise self.features.refusal("raw text")
         engine = Engine(self, self.tokenizer_settings, PREDICT_BATCH)
         docs = (Document(i, text, f"text {i}", 1) for i, text in enumerate(texts))
-        found: list[list[TaggedSpan]] = []
+        found: list[list[Mention]] = []
         for chunk in chunks(docs, CHUNK_CHARS, stop_at_skip=False):
             for entry in engine.tag(chunk):
                 if isinstance(entry, Skipped):
                     raise DataError(entry.message, entry.source)
-                found.append([s for s in entry.spans if s.score >= min_score])
+                found.append([m for m in entry.mentions if m.confidence >= min_score])
         return found
 
-    def tag_text(self, text: str, min_score: float = 0.0) -> list[TaggedSpan]:
-        """The spans of one text (see :meth:`tag`)."""
-        (spans,) = self.tag([text], min_score)
-        return spans
+    def tag_text(self, text: str, min_score: float = 0.0) -> list[Mention]:
+        """The mentions of one text (see :meth:`tag`)."""
+        (mentions,) = self.tag([text], min_score)
+        return mentions

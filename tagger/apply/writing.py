@@ -4,7 +4,7 @@ A document read in pieces is written whole or not at all, as any other document:
 output is held aside (in memory up to `HELD_IN_MEMORY` characters, then in a temporary file) until
 its last piece arrives, and thrown away when a piece of it, or the rest of its input, is skipped.
 For jsonl the record is joined from the pieces as the whole document would have written it: the
-id, the text piece after piece, then the spans piece after piece, then the review flag.
+id, the text piece after piece, then the mentions piece after piece, then the review flag.
 
 Counts of sentences, tokens and spans grow piece by piece (progress stays live on a long text)
 and lose a document's share again when it is skipped; documents and review flags count when a
@@ -19,7 +19,7 @@ from dataclasses import dataclass, field
 from typing import IO, Any
 
 from tagger.apply.documents import Skipped
-from tagger.apply.outputs import ChunkResult, Output
+from tagger.apply.outputs import MENTIONS_KEY, REVIEW_KEY, ChunkResult, Output
 
 HELD_IN_MEMORY = 4_000_000  # characters of a held document kept in memory before a temporary file
 
@@ -49,18 +49,18 @@ class _HeldDocument:
         self.document = document
         self.head = head
         self.body = _held_file()
-        self.spans: IO[str] | None = None  # jsonl only, once a piece has spans
+        self.mentions: IO[str] | None = None  # jsonl only, once a piece has mentions
         self.review = False
         self.counts = Output("")  # this document's share of the tally so far
 
     def add(self, output: Output) -> None:
         self.body.write(output.text)
-        if output.spans_json:
-            if self.spans is None:
-                self.spans = _held_file()
+        if output.mentions_json:
+            if self.mentions is None:
+                self.mentions = _held_file()
             else:
-                self.spans.write(", ")
-            self.spans.write(output.spans_json)
+                self.mentions.write(", ")
+            self.mentions.write(output.mentions_json)
         self.review = self.review or output.review
         self.counts.sentences += output.sentences
         self.counts.tokens += output.tokens
@@ -71,15 +71,15 @@ class _HeldDocument:
             handle.write(self.head)
         _copy(self.body, handle)
         if jsonl:
-            handle.write('", "spans": [')
-            if self.spans is not None:
-                _copy(self.spans, handle)
-            handle.write(f'], "review": {"true" if self.review else "false"}}}\n')
+            handle.write(f'", "{MENTIONS_KEY}": [')
+            if self.mentions is not None:
+                _copy(self.mentions, handle)
+            handle.write(f'], "{REVIEW_KEY}": {"true" if self.review else "false"}}}\n')
 
     def close(self) -> None:
         self.body.close()
-        if self.spans is not None:
-            self.spans.close()
+        if self.mentions is not None:
+            self.mentions.close()
 
 
 def _copy(held: IO[str], handle: IO[str]) -> None:
