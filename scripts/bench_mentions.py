@@ -207,10 +207,12 @@ def run_tagger(args: list[str]) -> None:
 def train_model() -> Path:
     """Train the seed-1 BC5CDR model, or reuse (or resume) the one in runs/mentions/."""
     run = ROOT / RUN
-    if (run / "metrics.json").exists() and (run / "model.tagger").exists():
+    if (run / "outcome.json").exists() and (run / "model.tagger").exists():
         print(f"reusing the finished run in {RUN}", flush=True)
     else:
-        resume = ["--resume"] if (run / "checkpoint.tagger").exists() else []
+        # A run folder of the earlier names (checkpoint.tagger) is renamed by --resume.
+        states = ("resume-state.tagger", "checkpoint.tagger", "metrics.json")
+        resume = ["--resume"] if any((run / name).exists() for name in states) else []
         run_tagger([*TRAIN_ARGS, *resume])
     return run / "model.tagger"
 
@@ -227,7 +229,7 @@ def measure_recall(model: Path, train: set[Mention]) -> dict:
         ]
     )
     gold, predicted = sentence_mentions(BC5CDR.test), sentence_mentions(predictions)
-    history = model.parent / "history.json"
+    history = model.parent / "epochs.json"
     epochs = len(json.loads(history.read_text())) if history.exists() else None
     return {
         "machine": machine(),

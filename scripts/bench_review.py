@@ -77,13 +77,14 @@ def run_config(min_word_count: int, threads: int) -> Config:
 
 
 def trained(config: Config, folder: Path) -> dict[str, Any]:
-    """Train into `folder`, or reuse the finished run of the same config there."""
-    record = folder / "metrics.json"
-    if record.exists() and (folder / "config.toml").exists():
-        saved = tomllib.loads((folder / "config.toml").read_text(encoding="utf-8"))
+    """Train into `folder`, or reuse the finished run of the same config there (a folder of
+    the earlier file names is resumed, which renames its files, and then reused)."""
+    record = folder / "outcome.json"
+    if record.exists() and (folder / "resolved-config.toml").exists():
+        saved = tomllib.loads((folder / "resolved-config.toml").read_text(encoding="utf-8"))
         if same_config(saved, config):
             metrics = json.loads(record.read_text(encoding="utf-8"))
-            history = json.loads((folder / "history.json").read_text(encoding="utf-8"))
+            history = json.loads((folder / "epochs.json").read_text(encoding="utf-8"))
             print(f"[{folder.name}] reused", file=sys.stderr, flush=True)
             return {
                 "epochs": len(history),

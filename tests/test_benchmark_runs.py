@@ -58,9 +58,9 @@ def test_an_interrupted_run_goes_on_from_its_checkpoint(
     out = tmp_path / "run-seed1"
     bench_training.train_seed(config, [], 1, data, out)
     (out / bench_training.RUN_RECORD).unlink()  # as if stopped before its record was written
-    history = json.loads((out / "history.json").read_text())
+    history = json.loads((out / "epochs.json").read_text())
     resumed = bench_training.train_seed(config, [], 1, data, out)
     assert not resumed["reused"]
     # The checkpoint had both epochs: nothing is trained again, the history is the same.
-    assert json.loads((out / "history.json").read_text()) == history
+    assert json.loads((out / "epochs.json").read_text()) == history
     assert resumed["epochs"] == 2

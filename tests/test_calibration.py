@@ -118,7 +118,7 @@ def test_the_search_finds_a_known_minimum_and_stops_at_the_bounds() -> None:
 def test_training_fits_and_stores_a_temperature(run: Path, files: dict[str, Path]) -> None:
     tagger = Tagger.load(run / "model.tagger")
     stored = tagger.meta["calibration"]
-    assert stored == json.loads((run / "metrics.json").read_text())["calibration"]
+    assert stored == json.loads((run / "outcome.json").read_text())["calibration"]
     assert tagger.temperature == stored["temperature"] != 1.0
     assert stored["loss_after"] <= stored["loss_before"]
     dev = read_sentences(files["dev"])

@@ -56,7 +56,7 @@ def test_a_resumed_run_counts_the_time_used_before_it_was_interrupted(
 
     with pytest.raises(KeyboardInterrupt):
         train(config, tmp_path / "cut", progress=functools.partial(progress, kill_at=3))
-    _, meta = load_model_file(tmp_path / "cut" / "checkpoint.tagger")
+    _, meta = load_model_file(tmp_path / "cut" / "resume-state.tagger")
     assert meta["state"]["seconds_used"] == 50.0
     clock.time = 90_000.0  # another session, another reading of the clock
     notes: list[str] = []
@@ -77,7 +77,7 @@ def test_a_checkpoint_of_an_earlier_layout_is_refused(tmp_path: Path) -> None:
     data = write_columns_file(tmp_path / "train.txt", TINY)
     config = small_config(data, data, train={"epochs": 1})
     train(config, tmp_path / "run")
-    checkpoint = tmp_path / "run" / "checkpoint.tagger"
+    checkpoint = tmp_path / "run" / "resume-state.tagger"
     tensors, meta = load_model_file(checkpoint)
     del meta["checkpoint_format"]
     save_model_file(checkpoint, tensors, meta)

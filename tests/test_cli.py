@@ -481,14 +481,14 @@ def test_train_refuses_a_finished_run_unless_overwrite(
     refused = runner.invoke(app, _train_args(gold, run))
     assert refused.exit_code == 1
     assert _one_error_line(refused.stderr) == (
-        f"tagger: error: {run} holds a finished run (model.tagger, checkpoint.tagger, "
-        "metrics.json): replace it with --overwrite, or train into another folder with --out"
+        f"tagger: error: {run} holds a finished run (model.tagger, resume-state.tagger, "
+        "outcome.json): replace it with --overwrite, or train into another folder with --out"
     )
     assert (run / "model.tagger").read_bytes() == before
     replaced = runner.invoke(app, _train_args(gold, run, "--overwrite"))
     assert replaced.exit_code == 0, replaced.stderr
     assert (run / "model.tagger").read_bytes() != before
-    assert len(json.loads((run / "history.json").read_text())) == 1
+    assert len(json.loads((run / "epochs.json").read_text())) == 1
     assert not (run / ".lock").exists()
     both = runner.invoke(app, _train_args(gold, run, "--overwrite", "--resume"))
     assert both.exit_code == 2 and "give one of them" in _words(both.stderr)

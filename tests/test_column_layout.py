@@ -80,7 +80,7 @@ def label_first_run(tmp_path_factory: pytest.TempPathFactory) -> tuple[Path, Pat
 
 def test_train_reads_the_options_into_its_config(label_first_run: tuple[Path, Path, str]) -> None:
     out, _, _ = label_first_run
-    config = load_config(out / "config.toml")
+    config = load_config(out / "resolved-config.toml")
     assert (config.data.token_column, config.data.label_column) == (1, 0)
     assert (config.data.encoding, config.train.threads) == ("latin-1", 1)
 
@@ -175,7 +175,7 @@ def test_an_option_given_to_train_wins_over_set(tmp_path: Path) -> None:
          *TINY_MODEL, "--set", "train.epochs=1"],
     )  # fmt: skip
     assert result.exit_code == 0, result.stderr
-    config = load_config(tmp_path / "run" / "config.toml")
+    config = load_config(tmp_path / "run" / "resolved-config.toml")
     assert (config.data.token_column, config.train.threads) == (1, 1)
 
 

@@ -1,6 +1,7 @@
 """Tests for starting a run (tagger.training.run_folder, through `train`): what is checked before any
 work, a run folder holding a run is not trained into by accident, a failed start leaves nothing
-behind, a finished run leaves no lock file."""
+behind, a finished run leaves no lock file; the folder's README.txt, and folders written under
+the earlier file names."""
 
 from __future__ import annotations
 
@@ -15,6 +16,7 @@ from tagger.data.atomic import LOCK_NAME
 from tagger.data.corpus import Sentence
 from tagger.errors import ConfigError, DataError, OutputError
 from tagger.training.loop import train, train_on_sentences
+from tagger.training.records import EARLIER_NAMES, GUIDE_NAME
 from tagger.training.run_folder import RUN_FILES, check_named_files
 
 ROWS = [
@@ -57,11 +59,11 @@ def test_a_finished_run_is_not_replaced_without_overwrite(data: Path, tmp_path: 
     run = tmp_path / "run"
     train(_config(data), run)
     before = _snapshot(run)
-    assert "metrics.json" in before and LOCK_NAME not in before  # finished: no lock file
+    assert "outcome.json" in before and LOCK_NAME not in before  # finished: no lock file
     with pytest.raises(OutputError) as refused:
         train(_config(data, epochs=2), run)
     message = str(refused.value)
-    assert message.startswith(f"{run} holds a finished run (model.tagger, checkpoint.tagger")
+    assert message.startswith(f"{run} holds a finished run (model.tagger, resume-state.tagger")
     assert "--overwrite" in message and "another folder with --out" in message
     assert "--resume" not in message  # a finished run has nothing to continue
     assert _snapshot(run) == before
@@ -76,7 +78,7 @@ def test_an_unfinished_run_is_refused_naming_resume(data: Path, tmp_path: Path) 
 
     with pytest.raises(KeyboardInterrupt):
         train(_config(data, epochs=3), run, progress=stop_in_epoch_two)
-    assert not (run / "metrics.json").exists() and not (run / LOCK_NAME).exists()
+    assert not (run / "outcome.json").exists() and not (run / LOCK_NAME).exists()
     with pytest.raises(OutputError, match="holds an unfinished run") as refused:
         train(_config(data, epochs=3), run)
     assert "continue it with --resume" in str(refused.value)
@@ -91,7 +93,7 @@ def test_overwrite_replaces_the_run_and_keeps_other_files(data: Path, tmp_path: 
     (run / "notes.txt").write_text("mine")
     result = train(_config(data, epochs=1), run, overwrite=True)
     assert [row["epoch"] for row in result.history] == [1]
-    assert len(json.loads((run / "history.json").read_text())) == 1
+    assert len(json.loads((run / "epochs.json").read_text())) == 1
     assert (run / "notes.txt").read_text() == "mine"
     assert {p.name for p in run.iterdir()} == {"notes.txt", *RUN_FILES}
 
@@ -225,3 +227,77 @@ def test_config_values_must_be_finite(key: str, value: str) -> None:
         config_from_dict({"train": {key: float(value)}})
     # No time budget may be spelt as an infinite one.
     assert config_from_dict({"train": {"max_minutes": float("inf")}}).train.max_minutes > 1e308
+
+
+# --- the folder's file names, its README.txt and folders of the earlier names ----------------------
+
+
+def _stop_in_epoch_two(event: dict) -> None:
+    if event["event"] == "batch" and event["epoch"] == 2:
+        raise KeyboardInterrupt
+
+
+def _to_earlier_names(run: Path) -> list[str]:
+    """Give a run folder the names the release before this one wrote (the contents are alike)."""
+    (run / GUIDE_NAME).unlink()  # that release wrote no README.txt
+    present = []
+    for earlier, now in EARLIER_NAMES.items():
+        if (run / now).exists():
+            (run / now).rename(run / earlier)
+            present.append(earlier)
+    return present
+
+
+def test_readme_lists_every_file_and_says_how_the_run_ended(data: Path, tmp_path: Path) -> None:
+    stopped, finished = tmp_path / "stopped", tmp_path / "finished"
+    with pytest.raises(KeyboardInterrupt):
+        train(_config(data, epochs=3), stopped, progress=_stop_in_epoch_two)
+    result = train(_config(data, epochs=2), finished)
+    for run in (stopped, finished):
+        lines = (run / "README.txt").read_text().splitlines()
+        named = [line.split()[0] for line in lines if line.split() and line.split()[0] in RUN_FILES]
+        assert sorted(named) == sorted(RUN_FILES)
+    assert "--resume continues it" in (stopped / "README.txt").read_text()
+    ended = (finished / "README.txt").read_text().splitlines()[-1]
+    assert ended == f"The run has ended: {result.stop_reason}."
+    assert result.stop_reason == "reached train.epochs=2"
+
+
+def test_a_folder_of_the_earlier_names_resumes_and_is_renamed(data: Path, tmp_path: Path) -> None:
+    run = tmp_path / "run"
+    with pytest.raises(KeyboardInterrupt):
+        train(_config(data, epochs=3), run, progress=_stop_in_epoch_two)
+    earlier = _to_earlier_names(run)
+    assert earlier == ["config.toml", "history.json", "history.csv", "checkpoint.tagger"]
+    with pytest.raises(OutputError, match=r"holds an unfinished run \(model.tagger, checkpoint"):
+        train(_config(data, epochs=3), run)  # still a run, under its earlier names
+    events: list[dict] = []
+    resumed = train(_config(data, epochs=3), run, resume=True, progress=events.append)
+    notes = [e["message"] for e in events if e["event"] == "note"]
+    assert notes[0] == (
+        f"{run} uses the earlier file names (config.toml, history.json, history.csv, "
+        "checkpoint.tagger); they are renamed once to the new names (resolved-config.toml, "
+        "epochs.json, epochs.csv, resume-state.tagger)"
+    )
+    assert any(n.startswith("resuming after epoch 1 from ") for n in notes)
+    # Only epochs 2 and 3 ran: the earlier checkpoint and history were read, not started over.
+    assert [e["epoch"] for e in events if e["event"] == "epoch"] == [2, 3]
+    assert [row["epoch"] for row in resumed.history] == [1, 2, 3]
+    assert {p.name for p in run.iterdir()} == set(RUN_FILES)
+    assert len(json.loads((run / "epochs.json").read_text())) == 3
+
+
+def test_a_finished_run_of_the_earlier_names_is_refused_or_replaced(
+    data: Path, tmp_path: Path
+) -> None:
+    run = tmp_path / "run"
+    train(_config(data), run)
+    _to_earlier_names(run)
+    (run / "notes.txt").write_text("mine")
+    with pytest.raises(OutputError) as refused:
+        train(_config(data), run)
+    assert str(refused.value).startswith(
+        f"{run} holds a finished run (model.tagger, checkpoint.tagger, metrics.json)"
+    )
+    train(_config(data), run, overwrite=True)
+    assert {p.name for p in run.iterdir()} == {"notes.txt", *RUN_FILES}

@@ -213,7 +213,7 @@ def test_a_run_starts_with_its_header_and_warnings(tmp_path: Path) -> None:
     assert start["network"]["parameters"] == sum(p.numel() for p in model.net.parameters())
     assert (start["train"]["sentences"], start["dev"]["spans"]) == (6, 3)
     assert start["run_folder"] == str(tmp_path / "run")
-    metrics = json.loads((tmp_path / "run" / "metrics.json").read_text())
+    metrics = json.loads((tmp_path / "run" / "outcome.json").read_text())
     assert metrics["warnings"] == [seen[1]["message"]]
     assert "only 3 spans" in metrics["warnings"][0]
 

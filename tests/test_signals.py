@@ -105,7 +105,7 @@ def test_sigterm_while_training_keeps_the_last_epoch_and_no_lock(tmp_path: Path)
     for setting in settings:
         arguments += ["--set", setting]
     process = _tagger(*arguments, cwd=tmp_path)
-    _wait_for(lambda: (run / "checkpoint.tagger").exists(), process, "a checkpoint")
+    _wait_for(lambda: (run / "resume-state.tagger").exists(), process, "a checkpoint")
     process.send_signal(signal.SIGTERM)
     _, stderr = process.communicate(timeout=HANG_GUARD_SECONDS)
     assert process.returncode == 143, stderr
@@ -114,7 +114,7 @@ def test_sigterm_while_training_keeps_the_last_epoch_and_no_lock(tmp_path: Path)
         f"(run folder {run})"
     )
     assert _temporary_files(tmp_path) == [] and not (run / ".lock").exists()
-    assert (run / "checkpoint.tagger").exists() and not (run / "metrics.json").exists()
+    assert (run / "resume-state.tagger").exists() and not (run / "outcome.json").exists()
     # The unfinished run is kept from a plain retrain, which names the way on.
     again = _tagger(*arguments, cwd=tmp_path)
     _, stderr = again.communicate(timeout=HANG_GUARD_SECONDS)

@@ -175,15 +175,16 @@ def test_resume_after_a_kill_equals_an_uninterrupted_run(tiny_files: Path, tmp_p
     whole = train(config, tmp_path / "whole")
     with pytest.raises(KeyboardInterrupt):
         train(config, tmp_path / "cut", progress=_KillAt(epoch=3, batch=1))
-    assert [
-        row["epoch"] for row in json.loads((tmp_path / "cut" / "history.json").read_text())
-    ] == [1, 2]
+    assert [row["epoch"] for row in json.loads((tmp_path / "cut" / "epochs.json").read_text())] == [
+        1,
+        2,
+    ]
     resumed = train(config, tmp_path / "cut", resume=True)
     assert [r["train_loss_per_token"] for r in resumed.history] == [
         r["train_loss_per_token"] for r in whole.history
     ]
-    final_whole, _ = load_model_file(tmp_path / "whole" / "checkpoint.tagger")
-    final_resumed, _ = load_model_file(tmp_path / "cut" / "checkpoint.tagger")
+    final_whole, _ = load_model_file(tmp_path / "whole" / "resume-state.tagger")
+    final_resumed, _ = load_model_file(tmp_path / "cut" / "resume-state.tagger")
     for name, tensor in final_whole.items():
         assert torch.equal(tensor, final_resumed[name]), name
 
@@ -229,7 +230,7 @@ def test_without_a_dev_file_a_seeded_part_of_train_is_held_out(tmp_path: Path) -
         small_config(data, None, data={"dev_fraction": 0.2}, train={"epochs": 1}), tmp_path / "run"
     )
     assert any("held out" in note and "6 of 30" in note for note in result.notes)
-    meta = json.loads((tmp_path / "run" / "metrics.json").read_text())
+    meta = json.loads((tmp_path / "run" / "outcome.json").read_text())
     assert meta["notes"] == result.notes
 
 
@@ -244,24 +245,25 @@ def test_types_seen_only_in_dev_are_scored_not_a_crash(tiny_files: Path, tmp_pat
     assert result.best_dev["per_type"]["UNSEEN"]["correct"] == 0
 
 
-def test_run_folder_holds_config_history_and_metrics(tiny_files: Path, tmp_path: Path) -> None:
+def test_run_folder_holds_config_epochs_and_outcome(tiny_files: Path, tmp_path: Path) -> None:
     data = tiny_files / "train.txt"
     train(small_config(data, data, train={"epochs": 2}), tmp_path / "run")
     names = {p.name for p in (tmp_path / "run").iterdir()}
-    assert {
-        "config.toml",
-        "history.json",
-        "history.csv",
-        "metrics.json",
+    assert names == {
+        "README.txt",
+        "resolved-config.toml",
+        "epochs.json",
+        "epochs.csv",
+        "outcome.json",
         "model.tagger",
-        "checkpoint.tagger",
-    } <= names
+        "resume-state.tagger",
+    }
     from tagger.config import load_config
 
-    assert load_config(tmp_path / "run" / "config.toml") == small_config(
+    assert load_config(tmp_path / "run" / "resolved-config.toml") == small_config(
         data, data, train={"epochs": 2}
     )
-    assert (tmp_path / "run" / "history.csv").read_text().count("\n") == 3
+    assert (tmp_path / "run" / "epochs.csv").read_text().count("\n") == 3
 
 
 @pytest.mark.parametrize("header", [True, False], ids=["word2vec", "glove"])
@@ -291,7 +293,7 @@ def test_with_weight_averaging_the_model_file_holds_the_average(
     data = tiny_files / "train.txt"
     # One epoch: its dev score is the first, so the model saved is that epoch's average.
     train(small_config(data, data, train={"epochs": 1, "weight_average": 0.9}), tmp_path / "run")
-    tensors, _ = load_model_file(tmp_path / "run" / "checkpoint.tagger")
+    tensors, _ = load_model_file(tmp_path / "run" / "resume-state.tagger")
     # torch's AveragedModel counts the starting weights as the first model averaged.
     assert int(tensors["average.n_averaged"]) == 1 + 2  # 6 sentences in batches of 4: 2 steps
     saved = dict(Tagger.load(tmp_path / "run" / "model.tagger").net.named_parameters())
@@ -313,8 +315,8 @@ def test_resume_with_weight_averaging_equals_an_uninterrupted_run(
     with pytest.raises(KeyboardInterrupt):
         train(config, tmp_path / "cut", progress=_KillAt(epoch=3, batch=1))
     train(config, tmp_path / "cut", resume=True)
-    whole, _ = load_model_file(tmp_path / "whole" / "checkpoint.tagger")
-    resumed, _ = load_model_file(tmp_path / "cut" / "checkpoint.tagger")
+    whole, _ = load_model_file(tmp_path / "whole" / "resume-state.tagger")
+    resumed, _ = load_model_file(tmp_path / "cut" / "resume-state.tagger")
     assert any(name.startswith("average.") for name in whole)
     for name, tensor in whole.items():
         assert torch.equal(tensor, resumed[name]), name
@@ -348,7 +350,7 @@ def test_a_checkpoint_from_before_a_new_config_key_still_resumes(
     data = tiny_files / "train.txt"
     config = small_config(data, data, train={"epochs": 2})
     train(config, tmp_path / "run")
-    checkpoint = tmp_path / "run" / "checkpoint.tagger"
+    checkpoint = tmp_path / "run" / "resume-state.tagger"
     tensors, meta = load_model_file(checkpoint)
     del meta["config"]["train"]["weight_average"]  # as written before the key existed
     save_model_file(checkpoint, tensors, meta)
@@ -419,7 +421,7 @@ def test_resume_with_more_epochs_goes_on_as_one_longer_run(
     assert "resuming with train.epochs 2 -> 4" in notes
     from tagger.config import load_config
 
-    assert load_config(tmp_path / "cut" / "config.toml").train.epochs == 4
+    assert load_config(tmp_path / "cut" / "resolved-config.toml").train.epochs == 4
 
 
 def test_resume_with_more_patience_continues_a_run_patience_stopped(
@@ -497,7 +499,7 @@ def test_a_config_with_relative_paths_trains_from_any_folder(
     result = runner.invoke(app, ["train", "--config", "../project/configs/c.toml", "--out", "run"])
     assert result.exit_code == 0, result.stderr
     # A file named on the command line is read from the current folder; the run folder's
-    # config.toml names every file absolutely, so it reads back from anywhere too.
+    # resolved-config.toml names every file absolutely, so it reads back from anywhere too.
     write_columns_file(elsewhere / "mine.txt", TINY)
     result = runner.invoke(
         app,
@@ -505,6 +507,6 @@ def test_a_config_with_relative_paths_trains_from_any_folder(
     )
     assert result.exit_code == 0, result.stderr
     monkeypatch.chdir(tmp_path)
-    saved = load_config(elsewhere / "r2" / "config.toml")
+    saved = load_config(elsewhere / "r2" / "resolved-config.toml")
     assert saved.data.train == str(elsewhere / "mine.txt")
     assert saved.data.dev == str(project / "data" / "t.txt")

@@ -136,7 +136,7 @@ def test_in_memory_resume_refuses_other_sentences(tmp_path: Path) -> None:
     assert resumed.history == result.history  # the same data: taken over, nothing retrained
 
 
-def test_an_infinite_time_budget_round_trips_through_config_toml(tmp_path: Path) -> None:
+def test_an_infinite_time_budget_round_trips_through_the_resolved_config(tmp_path: Path) -> None:
     data = write_columns_file(tmp_path / "train.txt", TINY)
     config = apply_overrides(
         small_config(data, data, train={"epochs": 1}), ["train.max_minutes=inf"]
@@ -144,7 +144,7 @@ def test_an_infinite_time_budget_round_trips_through_config_toml(tmp_path: Path)
     assert config.train.max_minutes == float("inf")
     result = train(config, tmp_path / "run")
     assert result.stop_reason == "reached train.epochs=1"
-    assert load_config(tmp_path / "run" / "config.toml") == config
+    assert load_config(tmp_path / "run" / "resolved-config.toml") == config
 
 
 def test_the_shipped_default_config_holds_a_tenth_of_train_out(tmp_path: Path) -> None:

@@ -148,7 +148,7 @@ def train(
         # After --set: an option given by name wins over the same key set by --set.
         extra += [f"{key}={json.dumps(value)}" for key, value in given.items() if value is not None]
         # Paths in the config file are read from its folder; those given here, from the current
-        # one. Made absolute, so that the run folder's config.toml reads back from anywhere.
+        # one. Made absolute, so that the run folder's resolved-config.toml reads back from anywhere.
         config = resolve_paths(apply_overrides(config, extra), Path.cwd())
     with domain_errors(
         column_files=[name for name in (config.data.train, config.data.dev) if name]

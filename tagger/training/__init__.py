@@ -9,7 +9,8 @@
     checkpoint.py  saving and restoring a run after its last finished epoch
     events.py      the progress events the command line reads
     overview.py    what a run says before its first epoch (sizes, stopping rule, warnings)
-    records.py     config.toml, history.json/.csv and metrics.json in the run folder
+    records.py     the run folder's file names; README.txt, resolved-config.toml, epochs.json/.csv
+                   and outcome.json
     run_folder.py  starting a run: named files readable, the folder made, held and checked
     loop.py        `train` (files) and `train_on_sentences` (memory): the epochs
 

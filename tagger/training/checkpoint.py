@@ -1,6 +1,6 @@
 """The checkpoint: everything needed to resume a run after its last finished epoch.
 
-One model file (tensors + JSON, never pickled) holds
+It is the run folder's resume-state.tagger (`tagger.training.records`). One model file (tensors + JSON, never pickled) holds
 
     net.*           the live network's weights
     optimizer.*     the optimizer's tensors; its other values in the JSON as "optimizer"
@@ -32,7 +32,6 @@ from tagger.training.config_changes import RESUMABLE_KEYS, config_changes
 from tagger.training.schedule import load_schedule_state, schedule_state
 from tagger.training.step import StepTools
 
-CHECKPOINT_NAME = "checkpoint.tagger"
 # Checkpoints of an earlier layout (fingerprints of file bytes, a hand-made schedule and average)
 # cannot be resumed by this trainer.
 CHECKPOINT_FORMAT = 2

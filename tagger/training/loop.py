@@ -1,13 +1,14 @@
 """The training loop, as a function that returns its history.
 
-A run folder holds everything a run leaves behind:
+A run folder holds everything a run leaves behind (`tagger.training.records` names the files):
 
-    config.toml          the resolved config
-    model.tagger         the best model so far (by dev span F1), rewritten when dev F1 improves;
-                         with train.weight_average, the averaged weights
-    checkpoint.tagger    the state after the last finished epoch, for --resume (checkpoint.py)
-    history.json / .csv  one row per epoch
-    metrics.json         the best epoch's dev scores, how the run ended and the calibration
+    README.txt            what each file holds; written at the start and again at the end
+    resolved-config.toml  the resolved config
+    model.tagger          the best model so far (by dev span F1), rewritten when dev F1 improves;
+                          with train.weight_average, the averaged weights
+    resume-state.tagger   the state after the last finished epoch, for --resume (checkpoint.py)
+    epochs.json / .csv    one row per epoch
+    outcome.json          the best epoch's dev scores, how the run ended and the calibration
 
 `train` reads the files the config names; `train_on_sentences` takes sentences from memory. Both
 start in a run folder made, held and checked as `run_folder` says (a finished run is replaced only
@@ -37,12 +38,7 @@ from tagger.network.batching import EncodedSentence, bucketed_batches, collate
 from tagger.scoring.metrics import count_spans, summarise
 from tagger.training import events
 from tagger.training.budget import RunClock, now, seconds_left
-from tagger.training.checkpoint import (
-    CHECKPOINT_NAME,
-    RunState,
-    restore_checkpoint,
-    save_checkpoint,
-)
+from tagger.training.checkpoint import RunState, restore_checkpoint, save_checkpoint
 from tagger.training.data import (
     TRAIN_IN_MEMORY,
     PreparedData,
@@ -50,8 +46,15 @@ from tagger.training.data import (
     read_training_files,
 )
 from tagger.training.overview import data_warnings, earliest_stop, run_overview
-from tagger.training.records import write_config, write_history, write_metrics
-from tagger.training.run_folder import MODEL_NAME, RunFolder, check_named_files, run_folder
+from tagger.training.records import (
+    CHECKPOINT_NAME,
+    MODEL_NAME,
+    write_config,
+    write_guide,
+    write_history,
+    write_outcome,
+)
+from tagger.training.run_folder import RunFolder, check_named_files, run_folder
 from tagger.training.schedule import end_epoch, learning_rate, new_schedule
 from tagger.training.setup import TrainingSetup, new_network, setup_training, step_tools
 from tagger.training.step import LossNotFinite, StepTools, train_step
@@ -117,6 +120,8 @@ def _train(
     config: Config, data: PreparedData, folder: RunFolder, resume: bool, report: Progress
 ) -> TrainResult:
     run_dir = folder.path
+    if folder.renamed:
+        report(events.note(folder.renamed_note()))
     epochs = config.train.epochs
     if config.train.threads:
         torch.set_num_threads(config.train.threads)
@@ -131,6 +136,7 @@ def _train(
     schedule = new_schedule(config, tools.optimizer)
     state = _resume(run_dir, config, data, tools, schedule, report) if resume else RunState()
     folder.begin()
+    write_guide(run_dir, config)
     write_config(run_dir, config)
     parameters = sum(p.numel() for p in net.parameters())
     report(events.start(run_overview(config, data, parameters, run_dir, state.epoch + 1)))
@@ -188,7 +194,7 @@ def _train(
                     f"span scores calibrated on dev: temperature {calibration.temperature:.2f}"
                 )
             )
-    write_metrics(
+    write_outcome(
         run_dir,
         {
             "best_epoch": state.best_epoch,
@@ -201,6 +207,7 @@ def _train(
             "calibration": None if calibration is None else calibration.to_dict(),
         },
     )
+    write_guide(run_dir, config, stop_reason)
     return TrainResult(
         state.history,
         state.best_epoch,

@@ -9,6 +9,10 @@
   `overwrite`. The earlier run's files go only when the new run is about to write its first
   file (`RunFolder.begin`), so a start that fails keeps them.
 * A start that fails leaves behind no folder it made and no lock file.
+* A folder written by the release before this one holds the same files under earlier names
+  (`tagger.training.records.EARLIER_NAMES`): it counts as a run all the same, `overwrite`
+  removes those files too, and `resume` renames them to the new names once, before anything is
+  read, so that the run reads and writes only the new names (`RunFolder.renamed` lists them).
 """
 
 from __future__ import annotations
@@ -23,10 +27,14 @@ from tagger.config import Config
 from tagger.data.atomic import exclusive_folder
 from tagger.data.io import check_readable
 from tagger.errors import ConfigError, OutputError
-from tagger.training.checkpoint import CHECKPOINT_NAME
-from tagger.training.records import METRICS_NAME, RECORD_NAMES
+from tagger.training.records import (
+    CHECKPOINT_NAME,
+    EARLIER_NAMES,
+    MODEL_NAME,
+    OUTCOME_NAME,
+    RECORD_NAMES,
+)
 
-MODEL_NAME = "model.tagger"
 # Every file a run writes, and so every file that replacing a run removes; nothing else in the
 # folder (the user's own files, predictions written there) is touched.
 RUN_FILES = (MODEL_NAME, CHECKPOINT_NAME, *RECORD_NAMES)
@@ -51,13 +59,21 @@ class RunFolder:
 
     path: Path
     overwrite: bool
+    renamed: tuple[str, ...] = ()  # files under earlier names that resuming renamed
 
     def begin(self) -> None:
         """Called just before the run writes its first file: with `overwrite`, the earlier
         run's files are removed, so that none of them is left beside the new run's."""
         if self.overwrite:
-            for name in RUN_FILES:
+            for name in (*RUN_FILES, *EARLIER_NAMES):
                 (self.path / name).unlink(missing_ok=True)
+
+    def renamed_note(self) -> str:
+        """One line saying which files of an earlier release's run folder were renamed."""
+        return (
+            f"{self.path} uses the earlier file names ({', '.join(self.renamed)}); they are "
+            f"renamed once to the new names ({', '.join(EARLIER_NAMES[n] for n in self.renamed)})"
+        )
 
 
 @contextlib.contextmanager
@@ -74,7 +90,8 @@ def run_folder(path: Path, resume: bool = False, overwrite: bool = False) -> Ite
     try:
         with exclusive_folder(path):
             _refuse_an_earlier_run(path, resume, overwrite)
-            yield RunFolder(path, overwrite)
+            renamed = _rename_earlier_files(path) if resume else ()
+            yield RunFolder(path, overwrite, renamed)
     except BaseException:
         _remove_if_empty(made)
         raise
@@ -107,19 +124,49 @@ def _remove_if_empty(made: list[Path]) -> None:
             return
 
 
+def _rename_earlier_files(path: Path) -> tuple[str, ...]:
+    """Give the files of an earlier release's run their new names; the earlier names renamed.
+    A file whose new name is taken already stays as it is (the new one is the later)."""
+    renamed = []
+    for earlier, now in EARLIER_NAMES.items():
+        if (path / earlier).is_file() and not (path / now).exists():
+            try:
+                os.replace(path / earlier, path / now)
+            except OSError as error:
+                raise OutputError(
+                    f"{path / earlier}: cannot rename it to {now}: {error.strerror}"
+                ) from None
+            renamed.append(earlier)
+    return tuple(renamed)
+
+
+def _held_names(path: Path, names: tuple[str, ...]) -> list[str]:
+    """Those of `names` in the folder, under the new names or the earlier ones."""
+    earlier = {now: old for old, now in EARLIER_NAMES.items()}
+    held = []
+    for name in names:
+        if (path / name).exists():
+            held.append(name)
+        elif name in earlier and (path / earlier[name]).exists():
+            held.append(earlier[name])
+    return held
+
+
 def _refuse_an_earlier_run(path: Path, resume: bool, overwrite: bool) -> None:
     if resume or overwrite:
         return
-    held = [name for name in (MODEL_NAME, CHECKPOINT_NAME, METRICS_NAME) if (path / name).exists()]
+    held = _held_names(path, (MODEL_NAME, CHECKPOINT_NAME, OUTCOME_NAME))
     if not held:
         return
     files = ", ".join(held)
-    if METRICS_NAME in held:
+    finished = (OUTCOME_NAME, "metrics.json")
+    unfinished = (CHECKPOINT_NAME, "checkpoint.tagger")
+    if any(name in held for name in finished):
         raise OutputError(
             f"{path} holds a finished run ({files}): replace it with --overwrite, "
             "or train into another folder with --out"
         )
-    if CHECKPOINT_NAME in held:
+    if any(name in held for name in unfinished):
         raise OutputError(
             f"{path} holds an unfinished run ({files}): continue it with --resume, "
             "replace it with --overwrite, or train into another folder with --out"
