@@ -255,11 +255,25 @@ def test_readme_lists_every_file_and_says_how_the_run_ended(data: Path, tmp_path
     result = train(_config(data, epochs=2), finished)
     for run in (stopped, finished):
         lines = (run / "README.txt").read_text().splitlines()
-        named = [line.split()[0] for line in lines if line.split() and line.split()[0] in RUN_FILES]
-        assert sorted(named) == sorted(RUN_FILES)
-    assert "--resume continues it" in (stopped / "README.txt").read_text()
-    ended = (finished / "README.txt").read_text().splitlines()[-1]
-    assert ended == f"The run has ended: {result.stop_reason}."
+        assert all(len(line) <= 88 for line in lines)
+        # A line that starts at the margin names a file; its description may wrap under it.
+        listed = [line.split()[0] for line in lines[2:] if line and not line[0].isspace()]
+        assert listed[: len(RUN_FILES)] == [
+            "README.txt",
+            "resolved-config.toml",
+            "epochs.json",
+            "epochs.csv",
+            "outcome.json",
+            "resume-state.tagger",
+            "model.tagger",
+        ]
+        assert sorted(listed[: len(RUN_FILES)]) == sorted(RUN_FILES)
+    last = {
+        run: " ".join((run / "README.txt").read_text().split("\n\n")[-1].split())
+        for run in (stopped, finished)
+    }
+    assert "the same train command with --resume continues it" in last[stopped]
+    assert last[finished] == f"The run has ended: {result.stop_reason}."
     assert result.stop_reason == "reached train.epochs=2"
 
 

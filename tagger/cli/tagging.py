@@ -65,8 +65,8 @@ def tag(
     output_format: Annotated[
         OutputFormat,
         typer.Option(
-            help="jsonl (a record per document), columns (token and label per line) or "
-            "table (tab-separated spans with a header).",
+            help="jsonl (a record per document, its mentions and needs_review flag), columns "
+            "(token and label per line) or table (tab-separated mentions with a header).",
             case_sensitive=False,
         ),
     ] = OutputFormat.JSONL,
@@ -78,7 +78,9 @@ def tag(
         ),
     ] = None,
     token_column: TokenColumn = 0,
-    min_score: Annotated[float, typer.Option(help="Drop spans scoring below this (0 to 1).")] = 0.0,
+    min_score: Annotated[
+        float, typer.Option(help="Drop mentions whose confidence is below this (0 to 1).")
+    ] = 0.0,
     review_below: Annotated[
         float,
         typer.Option(

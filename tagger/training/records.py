@@ -18,6 +18,7 @@ from __future__ import annotations
 
 import csv
 import json
+import textwrap
 from pathlib import Path
 from typing import Any
 
@@ -31,6 +32,7 @@ HISTORY_NAMES = ("epochs.json", "epochs.csv")
 OUTCOME_NAME = "outcome.json"  # written when a run ends: its presence marks a finished run
 GUIDE_NAME = "README.txt"
 RECORD_NAMES = (GUIDE_NAME, CONFIG_NAME, *HISTORY_NAMES, OUTCOME_NAME)
+GUIDE_WIDTH = 88  # README.txt is wrapped to this many characters
 
 # The names of the release before this one -> the names now; read for one release more.
 EARLIER_NAMES = {
@@ -90,14 +92,13 @@ def guide_text(config: Config, ended: str = "") -> str:
         (CHECKPOINT_NAME, "everything --resume needs to continue after the last finished epoch"),
         (MODEL_NAME, f"the model of the epoch with the best dev span F1{averaged}"),
     ]
-    width = max(len(name) for name, _ in files)
-    lines = [
-        "A training run of tagger.",
-        "",
-        *(f"{name.ljust(width)}  {what}" for name, what in files),
-        "",
-        state,
-    ]
+    width = max(len(name) for name, _ in files) + 2
+    lines = ["A training run of tagger.", ""]
+    for name, what in files:  # the description wrapped under itself
+        lines += textwrap.wrap(
+            what, GUIDE_WIDTH, initial_indent=name.ljust(width), subsequent_indent=" " * width
+        )
+    lines += ["", *textwrap.wrap(state, GUIDE_WIDTH)]
     return "\n".join(lines) + "\n"
 
 
