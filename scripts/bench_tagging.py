@@ -168,18 +168,16 @@ def reference(model: Path, source: Path, threads: int, limit_sentences: int) -> 
         for line in lines:
             record = json.loads(line)
             text = record["text"]
-            spans = []
+            mentions = []
             for sentence in split_sentences(text, settings):
                 words = [t.text for t in sentence.tokens]
                 (found,) = tagger.predict_spans([words])
                 for label, first, last in found:
                     start, end = sentence.tokens[first].start, sentence.tokens[last - 1].end
-                    spans.append(
-                        {"start": start, "end": end, "label": label, "text": text[start:end]}
-                    )
+                    mentions.append({"type": label, "at": [start, end], "quote": text[start:end]})
                 tokens += len(words)
                 sentences += 1
-            sink.write(json.dumps({**record, "spans": spans}, ensure_ascii=False) + "\n")
+            sink.write(json.dumps({**record, "mentions": mentions}, ensure_ascii=False) + "\n")
             if sentences >= limit_sentences:
                 break
     seconds = time.perf_counter() - started

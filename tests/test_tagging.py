@@ -509,14 +509,19 @@ def test_tokenize_prints_tokens_with_offsets(tmp_path: Path) -> None:
         assert all(text[int(r[1]) : int(r[2])] == r[0] for r in rows)
 
 
+# The record of a mention: type, the pair of offsets, the quote, the confidence to four places.
+_MENTION_REPR = "{'type': 'DRUG', 'at': [0, 7], 'quote': 'aspirin', 'confidence': 0.9712}\n"
+
+
 def test_import_tagger_does_not_load_torch() -> None:
     code = (
         "import sys, tagger; light = 'torch' not in sys.modules\n"
-        "from tagger import Tagger\n"
-        "print(light, 'torch' in sys.modules, callable(Tagger.load), Tagger is tagger.Tagger)"
+        "from tagger import Mention, Tagger\n"
+        "print(light, 'torch' in sys.modules, callable(Tagger.load), Tagger is tagger.Tagger,\n"
+        "      Mention('DRUG', 0, 7, 'aspirin', 0.971234).to_record())"
     )
     done = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
-    assert done.stdout.split() == ["True", "False", "True", "True"]
+    assert done.stdout.split(maxsplit=4) == ["True", "False", "True", "True", _MENTION_REPR]
 
 
 def test_tag_wants_a_list_of_texts_and_tag_text_takes_one(model: Path) -> None:
