@@ -89,7 +89,7 @@ def learn_vectors(
     seed: Annotated[int, typer.Option(min=0, help="Seed (one thread repeats exactly).")] = 1,
     buckets: Annotated[
         int, typer.Option(min=1, help="Rows for character n-grams (hashed); sizes the file.")
-    ] = 100_000,
+    ] = 80_000,
 ) -> None:
     """Learn word vectors (with character n-grams, so every word gets one) from raw text.
 
@@ -119,12 +119,15 @@ def learn_vectors(
             digits_to_zero=config.model.digits_to_zero,
         )
         tokenizer = config.tokenizer_settings()
+        notes: list[str] = []
         try:
             vectors = learn_word_vectors(
-                names, settings, tokenizer, input_format, token_column, progress
+                names, settings, tokenizer, input_format, token_column, progress, notes
             )
         finally:
             progress.clear()
+            for note in notes:
+                say(f"note: {note}")
         save_vectors(out, vectors)
         save_word2vec_text(text_out, vectors)
     summary = vectors.summary

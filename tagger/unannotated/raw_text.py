@@ -22,11 +22,13 @@ def raw_sentences(
     settings: TokenizerSettings,
     input_format: str = "auto",
     token_column: int = 0,
+    notes: list[str] | None = None,
 ) -> Iterator[list[str]]:
     """The tokens of each sentence, input after input; the first unreadable item is a DataError
-    naming its file and line (raw text is meant to be read whole, not skipped through)."""
+    naming its file and line (raw text is meant to be read whole, not skipped through). Remarks
+    for people (a text input that looks like a column file) are appended to `notes`."""
     for item in read_documents(
-        list(inputs) or [STDIO], input_format, token_column, settings=settings
+        list(inputs) or [STDIO], input_format, token_column, notes, settings=settings
     ):
         if isinstance(item, Skipped):
             raise item.error()

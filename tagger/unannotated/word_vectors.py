@@ -37,7 +37,7 @@ class VectorSettings:
     epochs: int = 5
     threads: int = 2
     seed: int = 1
-    buckets: int = 100_000  # n-gram hash buckets: rows of the n-gram table
+    buckets: int = 80_000  # n-gram hash buckets: rows of the n-gram table
     min_n: int = 3
     max_n: int = 6
     negative: int = 5  # negative samples per context word
@@ -62,12 +62,14 @@ def learn_word_vectors(
     input_format: str = "auto",
     token_column: int = 0,
     progress: Progress | None = None,
+    notes: list[str] | None = None,
 ) -> SubwordVectors:
     """Vectors learnt from the sentences of `inputs`, as the tagger's tokenizer cuts them.
 
     `progress` receives {"event": "read", "sentences", "tokens"} once the text is read, then
     {"event": "progress", "epoch", "epochs", "done" (0..1 of the whole run), "words_per_second",
-    "seconds"} while learning. Raises DataError for unreadable or empty input.
+    "seconds"} while learning. Remarks on the inputs go to `notes`. Raises DataError for
+    unreadable or empty input.
     """
     try:
         from gensim.models import FastText
@@ -80,7 +82,7 @@ def learn_word_vectors(
     names = ", ".join(str(p) for p in inputs) or "<stdin>"
     with tempfile.TemporaryDirectory(prefix="tagger-vectors-") as folder:
         corpus = Path(folder) / "sentences.txt"
-        sentences = raw_sentences(inputs, tokenizer, input_format, token_column)
+        sentences = raw_sentences(inputs, tokenizer, input_format, token_column, notes)
         keys = SubwordSettings(lowercase=settings.lowercase, digits_to_zero=settings.digits_to_zero)
         size = write_sentence_lines(([keys.key(t) for t in s] for s in sentences), corpus)
         if size.tokens == 0:
