@@ -65,6 +65,14 @@ class CharEncoder(StrEnum):
     NONE = "none"
 
 
+class VectorUse(StrEnum):
+    """How the network reads model.pretrained_vectors (tagger.training.setup)."""
+
+    INITIALISE = "initialise"  # the trained word embedding starts from them
+    FIXED = "fixed"  # a frozen input beside the trained embedding, for every token
+    BOTH = "both"  # the frozen input, and the trained embedding starts from them
+
+
 class OptimizerKind(StrEnum):
     ADAM = "adam"
     SGD = "sgd"
@@ -117,7 +125,10 @@ class ModelConfig:
     lowercase: bool = False
     digits_to_zero: bool = True
     min_word_count: int = 1  # rarer words are not stored in the model file (read as unknown)
-    pretrained_vectors: str = ""  # word2vec/GloVe text file; empty for none
+    # a vectors file from `tagger learn-vectors`, or a word2vec/GloVe text file; empty for none
+    pretrained_vectors: str = ""
+    vectors_use: VectorUse = VectorUse.BOTH
+    vector_words: int = 50_000  # most frequent words of the vectors kept in a frozen table
     fast_kernels: bool = True  # use torch's fused kernels where a cell has one
     # Extra input features (tagger.text.features); none by default.
     feature_columns: tuple[int, ...] = ()  # 0-based columns of the input files read as features
@@ -155,6 +166,12 @@ class Config:
     model: ModelConfig = field(default_factory=ModelConfig)
     train: TrainConfig = field(default_factory=TrainConfig)
     tokenizer: TokenizerSettings = field(default_factory=TokenizerSettings)
+
+    def tokenizer_settings(self) -> TokenizerSettings:
+        """The tokenizer as training and tagging use it: one sentence limit, data's."""
+        return dataclasses.replace(
+            self.tokenizer, max_sentence_tokens=self.data.max_sentence_tokens
+        )
 
     def to_dict(self) -> dict[str, dict[str, Any]]:
         """Plain JSON-ready tables: list-valued keys come back as lists, choices as strings."""
@@ -194,6 +211,7 @@ _POSITIVE = {
     ("train", "batch_size"),
     ("model", "char_kernel"),
     ("model", "min_word_count"),
+    ("model", "vector_words"),
     ("model", "feature_dim"),
     ("model", "lexicon_dim"),
     ("model", "shape_dim"),

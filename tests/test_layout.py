@@ -27,6 +27,7 @@ STAGES = [
     "reports",
     "network",
     "apply",
+    "unannotated",
     "training",
     "cli",
     "__main__",

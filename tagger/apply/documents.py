@@ -46,7 +46,15 @@ from tagger.apply.column_input import CheckedColumnLines
 from tagger.apply.plaintext import text_pieces
 from tagger.data.column_lines import writing_delimiter
 from tagger.data.corpus import ColumnFormat, ColumnReader, Sentence
-from tagger.data.io import STDIO, decode_line, input_name, is_stdio, open_input, raw_lines
+from tagger.data.io import (
+    GZIP_SUFFIX,
+    STDIO,
+    decode_line,
+    input_name,
+    is_stdio,
+    open_input,
+    raw_lines,
+)
 from tagger.errors import ConfigError, DataError
 from tagger.text.tokenizer import TokenizerSettings
 
@@ -158,7 +166,10 @@ def detect_input_format(name: str | Path) -> str:
     """The input format a file name implies: .jsonl/.json, .conll/.bio/.iob/.tsv, else text."""
     if is_stdio(name):
         return "text"
-    return _SUFFIX_FORMATS.get(Path(name).suffix.lower(), "text")
+    path = Path(name)
+    if path.suffix.lower() == GZIP_SUFFIX:  # notes.jsonl.gz is JSON Lines, compressed
+        path = path.with_suffix("")
+    return _SUFFIX_FORMATS.get(path.suffix.lower(), "text")
 
 
 def read_documents(

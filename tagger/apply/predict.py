@@ -28,27 +28,34 @@ if TYPE_CHECKING:
 TOKEN_CACHE = 50_000  # distinct tokens whose ids are remembered between calls (a few MB)
 
 
+TokenIds = tuple[int, list[int], list[int] | None]  # word id, character ids, fixed-table rows
+
+
 def encode_cached(
     vocabs: Vocabularies,
-    cache: dict[str, tuple[int, list[int]]],
+    cache: dict[str, TokenIds],
     token_lists: Sequence[Sequence[str]],
 ) -> list[EncodedSentence]:
-    """Word and character ids of each sentence, through ``cache`` (token -> ids): looking up a
-    token's word and characters costs far more than a dict hit, and text repeats its tokens."""
+    """Word and character ids (and fixed-table rows) of each sentence, through ``cache`` (token
+    -> ids): looking up a token costs far more than a dict hit, and text repeats its tokens."""
     if len(cache) > TOKEN_CACHE:
         cache.clear()
     encoded = []
+    with_bags = vocabs.subwords is not None
     for tokens in token_lists:
         words: list[int] = []
         chars: list[list[int]] = []
+        bags: list[list[int]] = []
         for token in tokens:
             ids = cache.get(token)
             if ids is None:
                 one = encode_sentence([token], vocabs)
-                ids = cache[token] = (one.words[0], one.chars[0])
+                ids = cache[token] = (one.words[0], one.chars[0], one.bags[0] if one.bags else None)
             words.append(ids[0])
             chars.append(ids[1])
-        encoded.append(EncodedSentence(words, chars))
+            if with_bags:
+                bags.append(ids[2] or [])
+        encoded.append(EncodedSentence(words, chars, bags=bags if with_bags else None))
     return encoded
 
 
@@ -112,6 +119,7 @@ def emission_batches(
             )
             word_of = torch.tensor([0, *encoded.words])  # (N+1,) word id of each distinct token
             char_table = _char_features(net, [[0], *encoded.chars])  # (N+1, F) or None
+            fixed_table = _fixed_vectors(net, [[], *(encoded.bags or [])])  # (N+1, dim) or None
             real = [i for i, tokens in enumerate(token_lists) if len(tokens) > 0]
             real.sort(key=lambda i: len(token_lists[i]))  # similar lengths: little padding
         for first in range(0, len(real), batch_size):
@@ -124,6 +132,7 @@ def emission_batches(
                 ids_tensor = torch.from_numpy(ids)
                 mask = ids_tensor != 0  # (B, T)
                 char_features = None if char_table is None else char_table[ids_tensor]
+                fixed = None if fixed_table is None else fixed_table[ids_tensor]
                 feature_tensor = None
                 if tagger.features is not None:
                     slots = np.zeros((*ids.shape, net_slots(net)), dtype=np.int64)  # (B, T, K)
@@ -136,6 +145,7 @@ def emission_batches(
                     torch.tensor(lengths),
                     char_features,
                     feature_tensor,
+                    fixed,
                 )
             yield indices, emissions, mask
     finally:
@@ -201,3 +211,19 @@ def _char_features(
             out = features.new_empty((len(chars), features.shape[1]))
         out[torch.tensor(chosen)] = features
     return out
+
+
+def _fixed_vectors(net: TaggerNet, bags: list[list[int]], block: int = 4096) -> torch.Tensor | None:
+    """(N, dim): each token's vector from the frozen pretrained table (the mean of its bag's
+    rows), in blocks; None when the model has no such table."""
+    if net.fixed_vectors is None:
+        return None
+    parts = []
+    for first in range(0, len(bags), block):
+        chosen = bags[first : first + block]
+        width = max(1, max(len(bag) for bag in chosen))
+        padded = np.zeros((len(chosen), width), dtype=np.int64)
+        for row, bag in enumerate(chosen):
+            padded[row, : len(bag)] = bag
+        parts.append(net.fixed_vectors(torch.from_numpy(padded)))
+    return torch.cat(parts)

@@ -31,6 +31,7 @@ from tagger.version import __version__
 if TYPE_CHECKING:
     import torch
 
+    from tagger.apply.predict import TokenIds
     from tagger.network.batching import EncodedSentence
     from tagger.network.metadata import StoredModel
     from tagger.network.net import TaggerNet
@@ -238,7 +239,7 @@ class Tagger:
         return encode_cached(self.vocabs, self._token_ids, token_lists)
 
     @cached_property
-    def _token_ids(self) -> dict[str, tuple[int, list[int]]]:
+    def _token_ids(self) -> dict[str, TokenIds]:
         return {}
 
     @cached_property

@@ -14,6 +14,8 @@ The rules:
   that let the user name another encoding (column files: `ColumnFormat.encoding`) pass it down;
   it must write ASCII as ASCII (latin-1, cp1252...), since lines are split at LF bytes before
   they are decoded.
+* A path ending in ".gz" is read as the gzip-compressed bytes of the file it holds (a damaged or
+  cut-off archive raises DataError naming the file).
 * A file that cannot be opened raises DataError naming the file; `check_readable` finds that out
   before any work starts.
 
@@ -25,10 +27,12 @@ from __future__ import annotations
 
 import codecs
 import contextlib
+import gzip
 import io
 import os
 import stat
 import sys
+import zlib
 from collections.abc import Iterable, Iterator
 from dataclasses import dataclass
 from pathlib import Path
@@ -72,7 +76,45 @@ def open_input(path: str | Path) -> Iterator[BinaryIO]:
     except OSError as error:
         raise DataError(f"cannot open the file: {error.strerror}", str(path)) from None
     with stream:
-        yield stream
+        if str(path).lower().endswith(GZIP_SUFFIX):
+            with _GzipInput(stream, str(path)) as unpacked:
+                yield unpacked  # type: ignore[misc]
+        else:
+            yield stream
+
+
+GZIP_SUFFIX = ".gz"
+
+
+class _GzipInput(gzip.GzipFile):
+    """A gzip-compressed input read as its plain bytes; a damaged or cut-off archive is a
+    DataError naming the file, wherever the reading meets it."""
+
+    def __init__(self, stream: BinaryIO, name: str) -> None:
+        super().__init__(fileobj=stream, mode="rb")
+        self._input_name = name
+
+    def _failed(self, error: Exception) -> DataError:
+        reason = "it ends early" if isinstance(error, EOFError) else str(error) or "unreadable"
+        return DataError(f"cannot read the gzip file: {reason}", self._input_name)
+
+    def read(self, size: int | None = -1) -> bytes:
+        try:
+            return super().read(size)
+        except (OSError, EOFError, zlib.error) as error:
+            raise self._failed(error) from None
+
+    def readline(self, size: int | None = -1) -> bytes:
+        try:
+            return super().readline(size)
+        except (OSError, EOFError, zlib.error) as error:
+            raise self._failed(error) from None
+
+    def __next__(self) -> bytes:
+        line = self.readline()
+        if not line:
+            raise StopIteration
+        return line
 
 
 def check_readable(path: str | Path, what: str = "file") -> None:

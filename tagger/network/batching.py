@@ -7,6 +7,7 @@ A batch is right-padded: sentence b occupies positions [0, lengths[b]) of every 
     mask    (batch, time)        True at real tokens
     labels  (batch, time)        label ids (0 at padding, ignored through the mask), or None
     features (batch, time, slots) ids of the extra features (tagger.text.features), or None
+    bags    (batch, time, rows)  rows of the frozen pretrained table per token (0 padding), or None
 
 An encoded sentence holds its feature ids slot-major (one list per slot, as `FeatureSpec.encode`
 gives them); `collate` lays them out token-major:
@@ -39,6 +40,7 @@ class EncodedSentence:
     chars: list[list[int]]
     labels: list[int] | None = None
     features: list[list[int]] | None = None  # (slots, tokens) feature ids, or None
+    bags: list[list[int]] | None = None  # rows of the frozen vector table per token, or None
 
 
 @dataclass
@@ -50,6 +52,7 @@ class Batch:
     labels: torch.Tensor | None
     indices: list[int]  # position of each row in the list the batch was cut from
     features: torch.Tensor | None = None  # (batch, time, slots) feature ids
+    bags: torch.Tensor | None = None  # (batch, time, rows) of the frozen vector table, 0 padding
 
     @property
     def tokens(self) -> int:
@@ -78,7 +81,10 @@ def encode_sentence(
     if labels is not None:
         outside = vocabs.labels.stoi["O"]
         label_ids = [vocabs.labels.stoi.get(label, outside) for label in labels]
-    return EncodedSentence(words, chars, label_ids, features)
+    bags = None
+    if vocabs.subwords is not None:
+        bags = [vocabs.subwords.bag(t) for t in tokens]
+    return EncodedSentence(words, chars, label_ids, features, bags)
 
 
 def collate(sentences: Sequence[EncodedSentence], indices: Sequence[int]) -> Batch:
@@ -103,6 +109,13 @@ def collate(sentences: Sequence[EncodedSentence], indices: Sequence[int]) -> Bat
             labels[b, :n] = sentence.labels
         if features is not None and n:
             features[b, :n] = np.asarray(sentence.features, dtype=np.int64).T  # (n, slots)
+    bags = None
+    if chosen[0].bags is not None:
+        rows = max((len(bag) for s in chosen for bag in s.bags or ()), default=0)
+        bags = np.zeros((batch, time, max(rows, 1)), dtype=np.int64)
+        for b, sentence in enumerate(chosen):
+            for t, bag in enumerate(sentence.bags or ()):
+                bags[b, t, : len(bag)] = bag
     lengths_tensor = torch.tensor(lengths)
     mask = torch.arange(time)[None, :] < lengths_tensor[:, None]
     return Batch(
@@ -113,6 +126,7 @@ def collate(sentences: Sequence[EncodedSentence], indices: Sequence[int]) -> Bat
         None if labels is None else torch.from_numpy(labels),
         list(indices),
         None if features is None else torch.from_numpy(features),
+        None if bags is None else torch.from_numpy(bags),
     )
 
 

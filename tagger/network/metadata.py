@@ -36,12 +36,14 @@ from tagger.errors import ModelFileError, TaggerError
 from tagger.network.shapes import expected_tensors, tensor_count
 from tagger.text.features import ColumnFeature, FeatureSpec
 from tagger.text.lexicon import CASE_MODES, Lexicon
+from tagger.text.subword import SubwordIndex, SubwordSettings
 from tagger.text.tokenizer import TokenizerSettings
 from tagger.text.vocab import PAD, UNK, Vocab, Vocabularies
 
 if TYPE_CHECKING:
     import torch
 
+MAX_NGRAM = 32  # longest character n-gram a stored vector table may use
 _MESSAGE_LIMIT = 300  # characters of a refusal, the model file's name aside
 
 _quoting = reprlib.Repr()
@@ -155,19 +157,40 @@ class _Reader:
 
     def vocabularies(self, value: Any, config: Config) -> Vocabularies:
         key = "vocabularies"
-        table = self.table(value, key, ("words", "chars", "labels", "lowercase", "digits_to_zero"))
+        known = ("words", "chars", "labels", "lowercase", "digits_to_zero")
+        table = self.table(value, key, known if "subwords" not in value else (*known, "subwords"))
         vocabs = Vocabularies(
             words=self.vocab(table["words"], f"{key}.words", specials=True),
             chars=self.vocab(table["chars"], f"{key}.chars", specials=True),
             labels=self.vocab(table["labels"], f"{key}.labels", specials=False),
             lowercase=self.flag(table["lowercase"], f"{key}.lowercase"),
             digits_to_zero=self.flag(table["digits_to_zero"], f"{key}.digits_to_zero"),
+            subwords=self.subwords(table["subwords"]) if "subwords" in table else None,
         )
         model = config.model
         for name in ("lowercase", "digits_to_zero"):
             if getattr(vocabs, name) != getattr(model, name):
                 self.refuse(f"the stored {key}.{name} disagrees with the config's model.{name}")
         return vocabs
+
+    def subwords(self, value: Any) -> SubwordIndex:
+        key = "vocabularies.subwords"
+        names = ("words", "dim", "min_n", "max_n", "buckets", "lowercase", "digits_to_zero")
+        table = self.table(value, key, names)
+        words = self.strings(table["words"], f"{key}.words")
+        numbers = {name: self.count(table[name], f"{key}.{name}") for name in names[1:5]}
+        if not 1 <= numbers["min_n"] <= numbers["max_n"] <= MAX_NGRAM:
+            self.refuse(f"the stored {key} n-gram sizes must lie within 1..{MAX_NGRAM}")
+        if numbers["dim"] == 0:
+            self.refuse(f"the stored {key}.dim must be above 0")
+        settings = SubwordSettings(
+            min_n=numbers["min_n"],
+            max_n=numbers["max_n"],
+            buckets=numbers["buckets"],
+            lowercase=self.flag(table["lowercase"], f"{key}.lowercase"),
+            digits_to_zero=self.flag(table["digits_to_zero"], f"{key}.digits_to_zero"),
+        )
+        return SubwordIndex(words, settings, numbers["dim"])
 
     def labels(self, labels: list[str], scheme: str) -> None:
         """The labels must be those training stores: O, then every label the scheme writes for
@@ -292,6 +315,8 @@ def read_stored_model(meta: Any, where: str | Path) -> StoredModel:
     """The tagger a model file's metadata describes, every field checked (ModelFileError)."""
     reader = _Reader(str(where))
     table = reader.table(meta, "metadata")
+    if table.get("kind") == "word-vectors":
+        reader.refuse("this is a word vectors file (from tagger learn-vectors), not a model")
     config = reader.config(reader.required(table, "config"))
     model = config.model
     if model.char_encoder != "none" and (model.char_dim < 1 or model.char_features < 1):
@@ -328,7 +353,9 @@ def check_weights(
     reader = _Reader(str(where))
     model = stored.config.model
     slots = stored.feature_slots
-    needed = tensor_count(model, len(slots))
+    fixed = stored.vocabs.subwords
+    fixed_shape = (fixed.size, fixed.dim) if fixed is not None else None
+    needed = tensor_count(model, len(slots)) + (fixed is not None)
     if len(tensors) != needed:
         reader.refuse(
             f"the weights do not fit the stored config: the file holds {len(tensors)} tensors, "
@@ -336,7 +363,7 @@ def check_weights(
         )
     vocabs = stored.vocabs
     expected = expected_tensors(
-        model, len(vocabs.words), len(vocabs.chars), len(vocabs.labels), slots
+        model, len(vocabs.words), len(vocabs.chars), len(vocabs.labels), slots, fixed_shape
     )
     for name, (shape, dtype) in expected.items():
         tensor = tensors.get(name)

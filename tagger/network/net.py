@@ -2,8 +2,10 @@
 
 words (B,T) ──embed──┐
 chars (B,T,C) ─CNN/RNN┤
-features (B,T,K) ─────┴─ concat ─ dropout ─ BiResidualEncoder ─ dropout ─ linear ─> emissions (B,T,L)
+features (B,T,K) ─────┤
+fixed bags (B,T,K) ───┴─ concat ─ dropout ─ BiResidualEncoder ─ dropout ─ linear ─> emissions (B,T,L)
   one embedding per slot (optional)                                      └─ CRF or softmax
+  frozen pretrained table, mean of each bag (optional)
 
 The feature slots (extra columns, lexicon categories, word shape; see tagger.text.features) each get a
 small embedding; a model without them has no such modules, so its parameters are as they were.
@@ -79,6 +81,26 @@ class CharRNN(nn.Module):
         return out.reshape(batch, time, -1)
 
 
+class FixedVectors(nn.Module):
+    """A frozen table of pretrained vectors; a token's vector is the mean of the rows of its bag
+    (`tagger.text.subword.SubwordIndex.bag`): its word's row, or its n-grams' rows, or none
+    (zeros). The table is a buffer: saved with the model, never trained."""
+
+    def __init__(self, rows: int, dim: int) -> None:
+        super().__init__()
+        self.register_buffer("table", torch.zeros(rows, dim))
+        self.output_size = dim
+
+    def forward(self, bags: torch.Tensor) -> torch.Tensor:
+        """(..., K) row ids, 0 padding -> (..., dim)."""
+        flat = bags.reshape(-1, bags.shape[-1])
+        if flat.shape[1] == 0:
+            flat = flat.new_zeros(flat.shape[0], 1)
+        # mean over the bag's real rows; a bag of padding alone gives zeros
+        out = nn.functional.embedding_bag(flat, self.table, mode="mean", padding_idx=0)
+        return out.reshape(*bags.shape[:-1], self.output_size)
+
+
 class TaggerNet(nn.Module):
     def __init__(
         self,
@@ -88,8 +110,10 @@ class TaggerNet(nn.Module):
         n_labels: int,
         transitions: Transitions | None = None,
         feature_slots: Sequence[tuple[int, int]] = (),
+        fixed_vectors: tuple[int, int] | None = None,
     ) -> None:
-        """``feature_slots``: (number of ids, embedding size) of each feature slot, in slot order."""
+        """``feature_slots``: (number of ids, embedding size) of each feature slot, in slot order;
+        ``fixed_vectors``: (rows, dim) of a frozen pretrained table, or None."""
         super().__init__()
         self.config = config
         self.words = nn.Embedding(n_words, config.word_dim, padding_idx=0)
@@ -105,8 +129,9 @@ class TaggerNet(nn.Module):
             char_size = self.chars.output_size
         self.dropout = SharedDropout(config.dropout)
         feature_size = sum(dim for _, dim in feature_slots)
+        fixed_size = fixed_vectors[1] if fixed_vectors is not None else 0
         self.encoder = BiResidualEncoder(
-            config.word_dim + char_size + feature_size,
+            config.word_dim + char_size + feature_size + fixed_size,
             config.hidden_size,
             config.layers,
             config.cell,
@@ -125,6 +150,7 @@ class TaggerNet(nn.Module):
             with torch.no_grad():
                 for embedding in self.features:
                     embedding.weight[1].zero_()  # id 1, "nothing known", starts neutral
+        self.fixed_vectors = FixedVectors(*fixed_vectors) if fixed_vectors is not None else None
 
     def emissions(
         self,
@@ -133,10 +159,13 @@ class TaggerNet(nn.Module):
         lengths: torch.Tensor,
         char_features: torch.Tensor | None = None,
         features: torch.Tensor | None = None,
+        fixed: torch.Tensor | None = None,
     ) -> torch.Tensor:
         """(B, T, L) label scores. ``char_features`` (B, T, F), when given, replaces running the
         character encoder on ``chars``: prediction computes it once per distinct token.
-        ``features`` (B, T, K) holds the ids of the K feature slots of a model that has them."""
+        ``features`` (B, T, K) holds the ids of the K feature slots of a model that has them.
+        ``fixed``, for a model with a frozen vector table: each token's bag of rows (B, T, K)
+        (ids), or its vector (B, T, dim) (floats; prediction computes it per distinct token)."""
         parts = [self.words(words)]  # (B, T, word_dim)
         if self.chars is not None:
             if char_features is None:
@@ -147,6 +176,10 @@ class TaggerNet(nn.Module):
                 raise ValueError("this network reads feature ids; none were given")
             # (B, T, dim) per slot
             parts.extend(embed(features[:, :, k]) for k, embed in enumerate(self.features))
+        if self.fixed_vectors is not None:
+            if fixed is None:
+                raise ValueError("this network reads pretrained vectors; none were given")
+            parts.append(fixed if fixed.is_floating_point() else self.fixed_vectors(fixed))
         inputs = parts[0] if len(parts) == 1 else torch.cat(parts, dim=-1)
         h = self.encoder(self.dropout(inputs), lengths)  # (B, T, output_size)
         return self.output(self.dropout(h))  # (B, T, L)
@@ -189,6 +222,13 @@ def build_net(
     if config.model.output == "crf":
         transitions = allowed_transitions(vocabs.labels.itos, config.model.scheme)
     slots = features.slot_sizes(config.model) if features is not None else ()
+    fixed = (vocabs.subwords.size, vocabs.subwords.dim) if vocabs.subwords is not None else None
     return TaggerNet(
-        config.model, len(vocabs.words), len(vocabs.chars), len(vocabs.labels), transitions, slots
+        config.model,
+        len(vocabs.words),
+        len(vocabs.chars),
+        len(vocabs.labels),
+        transitions,
+        slots,
+        fixed,
     )

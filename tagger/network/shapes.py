@@ -65,9 +65,11 @@ def expected_tensors(
     n_chars: int,
     n_labels: int,
     feature_slots: Sequence[tuple[int, int]] = (),
+    fixed_vectors: tuple[int, int] | None = None,
 ) -> dict[str, TensorSpec]:
     """Name -> (shape, element type) of every tensor in the state_dict of
-    ``build_net`` for these sizes; ``feature_slots`` as `FeatureSpec.slot_sizes` gives them."""
+    ``build_net`` for these sizes; ``feature_slots`` as `FeatureSpec.slot_sizes` gives them;
+    ``fixed_vectors`` the (rows, dim) of a frozen pretrained table, or None."""
     found: dict[str, TensorSpec] = {"words.weight": ((n_words, model.word_dim), _FLOAT)}
     char_size = 0
     if model.char_encoder != "none":
@@ -85,6 +87,8 @@ def expected_tensors(
         )
         char_size = 2 * model.char_features
     input_size = model.word_dim + char_size + sum(dim for _, dim in feature_slots)
+    if fixed_vectors is not None:
+        input_size += fixed_vectors[1]
     found.update(
         _encoder(
             "encoder", input_size, model.hidden_size, model.layers, model.cell, model.bidirectional
@@ -102,4 +106,6 @@ def expected_tensors(
         found["crf.end_ok"] = ((n_labels,), "bool")
     for k, (ids, dim) in enumerate(feature_slots):
         found[f"features.{k}.weight"] = ((ids, dim), _FLOAT)
+    if fixed_vectors is not None:
+        found["fixed_vectors.table"] = (fixed_vectors, _FLOAT)
     return found

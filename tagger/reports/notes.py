@@ -20,6 +20,9 @@ def stored_text_note(meta: dict[str, Any]) -> str:
     features = meta.get("features") or {}
     seen = "every word of train" if least <= 1 else f"the words seen {least} times or more in train"
     held = [f"{count(words, 'word')} ({seen})"]
+    raw_words = len(meta.get("vocabularies", {}).get("subwords", {}).get("words", []))
+    if raw_words:
+        held.append(f"{count(raw_words, 'word')} of the word vectors' raw text")
     if features.get("columns"):
         held.append(f"the values of {count(len(features['columns']), 'feature column')}")
     if features.get("lexicons"):

@@ -5,6 +5,10 @@ from __future__ import annotations
 from collections import Counter
 from collections.abc import Iterable, Sequence
 from dataclasses import dataclass
+from typing import TYPE_CHECKING
+
+if TYPE_CHECKING:
+    from tagger.text.subword import SubwordIndex
 
 PAD = "<pad>"
 UNK = "<unk>"
@@ -64,6 +68,8 @@ class Vocabularies:
     labels: Vocab  # labels of the scheme the network learns, "O" first; no specials
     lowercase: bool
     digits_to_zero: bool
+    # the rows of a frozen vector table for any token (pretrained vectors); None: no such table
+    subwords: SubwordIndex | None = None
 
     def word_key(self, token: str) -> str:
         return normalise_word(token, self.lowercase, self.digits_to_zero)
@@ -75,16 +81,20 @@ class Vocabularies:
             "labels": self.labels.to_dict(),
             "lowercase": self.lowercase,
             "digits_to_zero": self.digits_to_zero,
+            **({"subwords": self.subwords.to_dict()} if self.subwords is not None else {}),
         }
 
     @classmethod
     def from_dict(cls, data: dict) -> Vocabularies:
+        from tagger.text.subword import SubwordIndex
+
         return cls(
             words=Vocab.from_dict(data["words"]),
             chars=Vocab.from_dict(data["chars"]),
             labels=Vocab.from_dict(data["labels"]),
             lowercase=data["lowercase"],
             digits_to_zero=data["digits_to_zero"],
+            subwords=SubwordIndex.from_dict(data["subwords"]) if "subwords" in data else None,
         )
 
 

@@ -7,23 +7,26 @@ The benchmarks build their training steps here too, so they train what a run tra
 from __future__ import annotations
 
 from collections import Counter
-from dataclasses import dataclass, replace
-from typing import Any
+from dataclasses import dataclass
 
+import numpy as np
 import torch
 
-from tagger.config import Config
+from tagger.config import Config, VectorUse
 from tagger.data.schemes import labels_for_types, spans_to_tags
-from tagger.errors import ConfigError
+from tagger.errors import ConfigError, DataError
 from tagger.network.batching import EncodedSentence, encode_sentence
 from tagger.network.net import TaggerNet, build_net
+from tagger.reports.layout import number
 from tagger.text.features import FeatureSpec, build_features, check_columns
+from tagger.text.subword import SubwordSettings, SubwordVectors
 from tagger.text.tokenizer import TokenizerSettings
 from tagger.text.vectors import read_word_vectors
 from tagger.text.vocab import Vocabularies, build_vocabularies
 from tagger.training.averaging import new_average
 from tagger.training.data import PreparedData, prepare_data
 from tagger.training.step import RareItems, StepTools
+from tagger.unannotated.vectors_file import is_vectors_file, load_vectors
 
 
 @dataclass
@@ -37,7 +40,7 @@ class TrainingSetup:
     encoded: list[EncodedSentence]  # the training sentences, labels in the model's scheme
     word_counts: Counter[str]
     value_counts: list[Counter[str]]
-    vectors: tuple[list[str], Any] | None
+    vectors: SubwordVectors | None  # model.pretrained_vectors, read
     tokenizer: TokenizerSettings
 
 
@@ -51,22 +54,22 @@ def setup_training(config: Config, data: PreparedData) -> TrainingSetup:
     internal = config.model.scheme
     types = sorted({span[0] for spans in data.train_spans for span in spans})
     labels = labels_for_types(types, internal)
-    vectors = (
-        read_word_vectors(config.model.pretrained_vectors)
-        if config.model.pretrained_vectors
-        else None
-    )
+    # The model stores its tokenizer settings ([tokenizer]), so tagging cuts text as training did;
+    # one sentence limit bounds annotated sentences and tagged text alike.
+    settings = config.tokenizer_settings()
+    vectors = read_pretrained(config.model.pretrained_vectors, settings)
+    use = config.model.vectors_use
     vocabs, word_counts = build_vocabularies(
         (s.tokens for s in data.train),
         labels,
         config.model.lowercase,
         config.model.digits_to_zero,
         config.model.min_word_count,
-        extra_words=vectors[0] if vectors else (),
+        # only the trained embedding can hold the vectors' other words
+        extra_words=vectors.words if vectors and use == VectorUse.INITIALISE else (),
     )
-    # The model stores its tokenizer settings ([tokenizer]), so tagging cuts text as training did;
-    # one sentence limit bounds annotated sentences and tagged text alike.
-    settings = replace(config.tokenizer, max_sentence_tokens=config.data.max_sentence_tokens)
+    if vectors is not None and use != VectorUse.INITIALISE:
+        vocabs.subwords = vectors.index(config.model.vector_words)
     features, value_counts = build_features(config.model, data.train, data.train_source, settings)
     if features is not None:
         check_columns(features, data.dev, data.dev_source)
@@ -102,33 +105,85 @@ def rare_items(setup: TrainingSetup) -> RareItems:
     return RareItems(words, values)
 
 
+def read_pretrained(path: str, tokenizer: TokenizerSettings) -> SubwordVectors | None:
+    """model.pretrained_vectors: a vectors file of ours (learnt with the same tokenizer settings)
+    or a word2vec/GloVe text file (words only, no n-grams); None when the config names none."""
+    if not path:
+        return None
+    if not is_vectors_file(path):
+        words, matrix = read_word_vectors(path)
+        empty = np.zeros((0, matrix.shape[1]), dtype=np.float32)
+        no_ngrams = SubwordSettings(buckets=0)
+        return SubwordVectors(words, [1] * len(words), matrix, empty, no_ngrams, {})
+    vectors = load_vectors(path)
+    ours = {k: v for k, v in tokenizer.to_dict().items() if k != "max_sentence_tokens"}
+    for key, value in ours.items():
+        if vectors.tokenizer.get(key) != value:
+            raise DataError(
+                f"the word vectors were learnt with tokenizer setting {key} = "
+                f"{vectors.tokenizer.get(key)!r}, the config has {value!r}: learn them again "
+                "with this config (learn-vectors --config) or change [tokenizer]",
+                path,
+            )
+    return vectors
+
+
 def new_network(config: Config, setup: TrainingSetup) -> tuple[TaggerNet, str | None]:
-    """A freshly initialised network (from torch's global generator), with the pretrained vectors
-    copied in; and a note saying how many words found one (None without vectors)."""
+    """A freshly initialised network (from torch's global generator) with the pretrained vectors
+    in it; and a note saying what they reach (None without vectors)."""
     net = build_net(config, setup.vocabs, setup.features)
-    if not setup.vectors:
+    vectors = setup.vectors
+    if vectors is None:
         return net, None
-    found = _initialise_embeddings(net, setup.vocabs, *setup.vectors)
-    return net, f"pretrained vectors for {found} of {len(setup.vocabs.words) - 2} words"
+    use = config.model.vectors_use
+    parts = []
+    index = setup.vocabs.subwords
+    if index is not None and net.fixed_vectors is not None:
+        with torch.no_grad():
+            net.fixed_vectors.table.copy_(
+                torch.from_numpy(vectors.table(config.model.vector_words))
+            )
+        parts.append(
+            f"a frozen table of {number(len(index.words))} words"
+            + (
+                f" and {number(index.settings.buckets)} n-gram rows"
+                if index.settings.buckets
+                else ""
+            )
+        )
+    if use != VectorUse.FIXED:
+        found = _initialise_embeddings(net, setup.vocabs, vectors, config.model.vectors_use)
+        words = len(setup.vocabs.words) - 2
+        parts.append(f"the trained embedding's start for {number(found)} of {number(words)} words")
+    return net, f"pretrained vectors ({vectors.dim} numbers): " + "; ".join(parts)
 
 
 def _initialise_embeddings(
-    net: TaggerNet, vocabs: Vocabularies, words: list[str], matrix: Any
+    net: TaggerNet, vocabs: Vocabularies, vectors: SubwordVectors, use: VectorUse
 ) -> int:
-    """Copy pretrained vectors into the word embedding; returns how many words found one."""
+    """Copy pretrained vectors into the trained word embedding; returns how many words got one
+    (with n-grams every word does; without, the words the vectors list)."""
     weight = net.words.weight
-    if matrix.shape[1] != weight.shape[1]:
+    if vectors.dim != weight.shape[1]:
+        hint = "" if use == VectorUse.INITIALISE else ', or set model.vectors_use = "fixed"'
         raise ConfigError(
-            f"model.word_dim is {weight.shape[1]} but the pretrained vectors have {matrix.shape[1]} dimensions"
+            f"model.word_dim is {weight.shape[1]} but the pretrained vectors have "
+            f"{vectors.dim} numbers: set model.word_dim = {vectors.dim}{hint}"
         )
-    rows: dict[str, int] = {}
-    for i, word in enumerate(words):
-        rows.setdefault(vocabs.word_key(word), i)
+    keys = vocabs.words.itos[2:]
+    if vectors.settings.buckets:
+        rows = range(2, len(vocabs.words))
+        with torch.no_grad():
+            weight[2:] = torch.from_numpy(vectors.vectors(keys))
+        return len(rows)
+    position: dict[str, int] = {}
+    for i, word in enumerate(vectors.words):
+        position.setdefault(vocabs.word_key(word), i)
     found = 0
     with torch.no_grad():
-        for index, word in enumerate(vocabs.words.itos[2:], start=2):
-            if word in rows:
-                weight[index] = torch.from_numpy(matrix[rows[word]])
+        for index, word in enumerate(keys, start=2):
+            if word in position:
+                weight[index] = torch.from_numpy(vectors.word_vectors[position[word]])
                 found += 1
     return found
 

@@ -92,7 +92,9 @@ def forward(tools: StepTools, work: StepWork) -> None:
     """The summed loss of the batch; raises LossNotFinite when it is NaN or infinite."""
     batch = work.batch
     assert work.words is not None, "read_rare_as_unknown runs first"
-    emissions = tools.net.emissions(work.words, batch.chars, batch.lengths, features=work.features)
+    emissions = tools.net.emissions(
+        work.words, batch.chars, batch.lengths, features=work.features, fixed=batch.bags
+    )
     assert batch.labels is not None, "a training batch has labels"
     work.loss = tools.net.loss(emissions, batch.labels, batch.mask)
     work.loss_value = work.loss.item()

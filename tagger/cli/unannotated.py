@@ -1,0 +1,139 @@
+"""Commands that learn from unannotated text: learn-vectors."""
+
+from __future__ import annotations
+
+import sys
+import time
+from pathlib import Path
+from typing import Annotated, Any
+
+import typer
+
+from tagger.apply.documents import InputFormat
+from tagger.cli.common import TokenColumn, app, domain_errors, say, usable_output
+from tagger.cli.progress import duration
+from tagger.cli.tagging import _document_inputs
+from tagger.reports.layout import count, number
+
+
+class VectorsProgress:
+    """A live line on a terminal (share done, words/s, time left); nothing otherwise."""
+
+    def __init__(self) -> None:
+        self.live = sys.stderr.isatty()
+        self.last_draw = 0.0
+
+    def __call__(self, event: dict[str, Any]) -> None:
+        if event["event"] == "read":
+            say(
+                f"read {count(event['sentences'], 'sentence')}, {count(event['tokens'], 'token')}; "
+                "learning vectors"
+            )
+        elif event["event"] == "progress" and self.live:
+            if time.monotonic() - self.last_draw < 0.2 and event["done"] < 1:
+                return
+            self.last_draw = time.monotonic()
+            done, seconds = event["done"], event["seconds"]
+            left = seconds * (1 - done) / done if done > 0 else 0.0
+            bar = "#" * int(20 * done)
+            sys.stderr.write(
+                f"\r\033[K[{bar:<20}] epoch {event['epoch']}/{event['epochs']}  "
+                f"{event['words_per_second']:,.0f} words/s  about {duration(left)} left"
+            )
+            sys.stderr.flush()
+
+    def clear(self) -> None:
+        if self.live:
+            sys.stderr.write("\r\033[K")
+
+
+@app.command("learn-vectors")
+def learn_vectors(
+    inputs: Annotated[
+        list[Path] | None,
+        typer.Argument(
+            help="Unannotated text, lines, jsonl or column files (.gz too); '-' or none reads "
+            "standard input."
+        ),
+    ] = None,
+    out: Annotated[
+        Path,
+        typer.Option(
+            "--out",
+            "-o",
+            dir_okay=False,
+            help="The vectors file a config names as model.pretrained_vectors; the word2vec "
+            "text format goes beside it (.txt added).",
+        ),
+    ] = Path("vectors.tagvec"),
+    config_path: Annotated[
+        Path | None,
+        typer.Option(
+            "--config",
+            exists=True,
+            dir_okay=False,
+            help="The training config: its [tokenizer] settings cut the text as tagging will.",
+        ),
+    ] = None,
+    input_format: Annotated[
+        InputFormat, typer.Option(help="How to read the inputs, as for tag.")
+    ] = InputFormat.AUTO,
+    token_column: TokenColumn = 0,
+    dim: Annotated[int, typer.Option(min=1, help="Numbers per vector.")] = 100,
+    window: Annotated[int, typer.Option(min=1, help="Context words on each side.")] = 5,
+    min_count: Annotated[
+        int, typer.Option(min=1, help="Words seen fewer times get no row (their n-grams do).")
+    ] = 3,
+    epochs: Annotated[int, typer.Option(min=1, help="Passes over the text.")] = 5,
+    threads: Annotated[int, typer.Option(min=1, help="Threads learning at once.")] = 2,
+    seed: Annotated[int, typer.Option(min=0, help="Seed (one thread repeats exactly).")] = 1,
+    buckets: Annotated[
+        int, typer.Option(min=1, help="Rows for character n-grams (hashed); sizes the file.")
+    ] = 80_000,
+) -> None:
+    """Learn word vectors (with character n-grams, so every word gets one) from raw text.
+
+    Example: tagger learn-vectors archive/*.txt.gz --config configs/default.toml --out
+    reports.tagvec, then train with --set model.pretrained_vectors=reports.tagvec
+    """
+    from tagger.config import load_config
+    from tagger.unannotated.vectors_file import save_vectors, save_word2vec_text
+    from tagger.unannotated.word_vectors import VectorSettings, learn_word_vectors
+
+    names = _document_inputs(inputs)
+    text_out = Path(f"{out}.txt")
+    usable_output(out, names or ["-"])
+    usable_output(text_out, names or ["-"])
+    progress = VectorsProgress()
+    with domain_errors():
+        config = load_config(config_path)
+        settings = VectorSettings(
+            dim=dim,
+            window=window,
+            min_count=min_count,
+            epochs=epochs,
+            threads=threads,
+            seed=seed,
+            buckets=buckets,
+            lowercase=config.model.lowercase,
+            digits_to_zero=config.model.digits_to_zero,
+        )
+        tokenizer = config.tokenizer_settings()
+        notes: list[str] = []
+        try:
+            vectors = learn_word_vectors(
+                names, settings, tokenizer, input_format, token_column, progress, notes
+            )
+        finally:
+            progress.clear()
+            for note in notes:
+                say(f"note: {note}")
+        save_vectors(out, vectors)
+        save_word2vec_text(text_out, vectors)
+    summary = vectors.summary
+    say(
+        f"learnt {count(len(vectors.words), 'word vector')} of {vectors.dim} numbers and "
+        f"{number(buckets)} n-gram rows from {count(summary['sentences'], 'sentence')}, "
+        f"{count(summary['tokens'], 'token')} in {duration(summary['seconds'])}: {out} "
+        f"(word2vec text: {text_out})"
+    )
