@@ -33,8 +33,7 @@ sys.path.insert(0, str(ROOT / "scripts"))
 from bench_mentions import BC5CDR, mention_set, recall_by_seen, sentence_mentions  # noqa: E402
 from benchlib import machine, portable_path  # noqa: E402
 
-from tagger.training.checkpoint import CHECKPOINT_NAME  # noqa: E402
-from tagger.training.records import HISTORY_NAMES, METRICS_NAME  # noqa: E402
+from tagger.training.records import CHECKPOINT_NAME, HISTORY_NAMES, OUTCOME_NAME  # noqa: E402
 
 CORPORA = ROOT.parent / "shared" / "corpora"
 RAW = CORPORA / "unlabeled" / "biomed.txt.gz"
@@ -95,7 +94,7 @@ def train_and_score(variant: str, seed: int, train_mentions: set) -> dict:
     if variant != "none":
         args += ["--set", f"model.pretrained_vectors={portable_path(VECTORS)}"]
         args += ["--set", f"model.vectors_use={variant}"]
-    if not (run / METRICS_NAME).exists():
+    if not (run / OUTCOME_NAME).exists():
         started = time.monotonic()
         tagger([*args, *(["--resume"] if (run / CHECKPOINT_NAME).exists() else [])])
         seconds = round(time.monotonic() - started)
