@@ -24,11 +24,20 @@ Beside the splits the script writes ``lexicon.tsv``, an invented parts-and-defec
 (``name<TAB>COMPONENT`` or ``name<TAB>DEFECT``): the plain names the generator draws from, the
 withheld ones included (so some occur only in dev and test), without the crews' shorthand, typos
 or case changes, and with a seeded share left out, as a real catalogue is never complete.
+
+It also writes ``unannotated.txt.gz``, the operator's archive of reports nobody annotated: about
+40,000 fresh sentences from the same generator and name pools, as plain text with no labels, a
+report a paragraph (its sentences one per line, a blank line after it). The withheld names occur
+in it at their share of each pool, as names annotation happened to miss would; no sentence of
+train, dev or test is repeated. Its sentences come from a ``random.Random`` of their own, seeded
+from the same seed, so the annotated files stay as they were; the gzip header holds no file name
+and no time, so the same seed gives the same bytes here too.
 """
 
 from __future__ import annotations
 
 import argparse
+import gzip
 import random
 import re
 import sys
@@ -47,8 +56,13 @@ HELDOUT_SITE_DRAW = 0.4
 # Share of modifier + head pairs (per modifier) and of whole names withheld from train.
 HELDOUT_FRACTION = 0.22
 HELDOUT_SITES = 7
+HELDOUT_POOLS = ("component_name", "component_pair", "defect_name", "defect_pair", "site")
 # Share of catalogue names left out of the demo lexicon (drawn from a stream of its own).
 LEXICON_DROP = 0.15
+# The unannotated archive: reports of one to four sentences, about 40,000 sentences in all.
+UNANNOTATED_FILE = "unannotated.txt.gz"
+UNANNOTATED_SENTENCES = 40_000
+REPORT_SIZES, REPORT_WEIGHTS = [1, 2, 3, 4], [35, 30, 22, 13]
 LEXICON_HEADER = (
     "# Invented catalogue of turbine components and defects for the demo corpus.\n"
     "# Written by scripts/make_demo_data.py; one name per line: name<TAB>type.\n"
@@ -504,9 +518,15 @@ def _parse_table(table: Sequence[tuple[int, str]]) -> _Table:
 class Generator:
     """Draws sentences; ``heldout`` says whether withheld names may be drawn (dev and test)."""
 
-    def __init__(self, rng: random.Random) -> None:
+    def __init__(self, rng: random.Random, draws: random.Random | None = None) -> None:
+        """Name pools come from ``rng``; sentences from ``draws`` if given, else from ``rng`` too
+        (a second stream keeps the pools, and the splits drawn from ``rng``, unchanged)."""
         self.rng = rng
         self.heldout = False
+        # How often each pool's withheld names are drawn once ``heldout`` is on: dev and test
+        # draw them often, so a score says much about unseen names; `archive` lowers the rates.
+        self.heldout_rates: dict[str, float] = dict.fromkeys(HELDOUT_POOLS, HELDOUT_DRAW)
+        self.heldout_rates["site"] = HELDOUT_SITE_DRAW
         self.components, self.heldout_components = self._split_pairs(
             [(m, h) for m, heads in COMPONENT_GRID.items() for h in heads]
         )
@@ -524,6 +544,8 @@ class Generator:
             SINGLE_COMPONENTS
         )
         self.single_defects, self.heldout_single_defects = self._split_singles(SINGLE_DEFECTS)
+        if draws is not None:
+            self.rng = draws
         self.clauses = _parse_table(CLAUSES)
         self.prefixes = _parse_table(PREFIXES)
         self.tails = _parse_table(TAILS)
@@ -589,8 +611,22 @@ class Generator:
         self.rng.shuffle(kept)
         return _Zipf(kept), _Zipf(held)
 
-    def _use_heldout(self, rate: float) -> bool:
-        return self.heldout and self.rng.random() < rate
+    def _use_heldout(self, pool: str) -> bool:
+        return self.heldout and self.rng.random() < self.heldout_rates[pool]
+
+    def archive(self) -> None:
+        """Draw withheld names as often as any other: each pool's withheld share of its names,
+        as in an operator's archive, where the names annotation happened to miss are no rarer."""
+        self.heldout = True
+        pools = {
+            "component_name": (self.single_components.names, self.heldout_single_components.names),
+            "component_pair": (self.components, self.heldout_components),
+            "defect_name": (self.single_defects.names, self.heldout_single_defects.names),
+            "defect_pair": (self.defects, self.heldout_defects),
+            "site": (self.sites, self.heldout_sites),
+        }
+        for pool, (kept, held) in pools.items():
+            self.heldout_rates[pool] = len(held) / (len(kept) + len(held))
 
     # -- surface forms ------------------------------------------------------------------------
     def roughen(self, phrase: str) -> str:
@@ -635,10 +671,11 @@ class Generator:
         # A position word goes in front of short names only, keeping spans to five tokens.
         position = f"{self.rng.choice(POSITIONS)} " if self.rng.random() < 0.07 else ""
         if self.rng.random() < 0.3:
-            held = self._use_heldout(HELDOUT_DRAW)
+            held = self._use_heldout("component_name")
             pool = self.heldout_single_components if held else self.single_components
             return self._place(position, self.roughen(pool.draw(self.rng)))
-        pool = self.heldout_components if self._use_heldout(HELDOUT_DRAW) else self.components
+        held = self._use_heldout("component_pair")
+        pool = self.heldout_components if held else self.components
         modifier, head = self.rng.choice(pool)
         words = f"{modifier} {head}"
         last = head.split(" ")[-1]
@@ -658,10 +695,10 @@ class Generator:
 
     def defect(self) -> str:
         if self.rng.random() < 0.35:
-            held = self._use_heldout(HELDOUT_DRAW)
+            held = self._use_heldout("defect_name")
             pool = self.heldout_single_defects if held else self.single_defects
             return self.roughen(pool.draw(self.rng))
-        pool = self.heldout_defects if self._use_heldout(HELDOUT_DRAW) else self.defects
+        pool = self.heldout_defects if self._use_heldout("defect_pair") else self.defects
         modifier, head, takes_severity = self.rng.choice(pool)
         phrase = f"{modifier} {head}"
         if takes_severity and self.rng.random() < 0.18:
@@ -669,7 +706,7 @@ class Generator:
         return self.roughen(phrase)
 
     def site(self) -> str:
-        pool = self.heldout_sites if self._use_heldout(HELDOUT_SITE_DRAW) else self.sites
+        pool = self.heldout_sites if self._use_heldout("site") else self.sites
         name = self.rng.choice(pool)
         return name.lower() if self.rng.random() < 0.06 else name
 
@@ -943,6 +980,94 @@ def format_lexicon(entries: Sequence[tuple[str, str]]) -> str:
     return LEXICON_HEADER + "".join(f"{name}\t{kind}\n" for name, kind in entries)
 
 
+# ---------------------------------------------------------------------------------------------
+# The unannotated archive: more reports from the same crews, with no labels.
+
+_NO_SPACE_BEFORE = frozenset(",.;:!?)")
+_NO_SPACE_AFTER = frozenset("(")
+
+
+def detokenise(tokens: Sequence[str]) -> str:
+    """Write tokens as a crew would type them: punctuation against the word before it, "(" against
+    the word after; `tokenise` gives the tokens back."""
+    parts: list[str] = []
+    for i, token in enumerate(tokens):
+        if i and token not in _NO_SPACE_BEFORE and tokens[i - 1] not in _NO_SPACE_AFTER:
+            parts.append(" ")
+        parts.append(token)
+    return "".join(parts)
+
+
+def generate_unannotated(
+    seed: int = DEFAULT_SEED,
+    exclude: set[tuple[str, ...]] | frozenset[tuple[str, ...]] = frozenset(),
+    sentences: int = UNANNOTATED_SENTENCES,
+) -> list[list[str]]:
+    """Reports (each a list of sentence texts) as an operator's archive holds them.
+
+    The name pools are those of `generate_corpus` (a Generator built from the same seed); the
+    sentences come from a stream of their own, so the annotated splits do not change. Withheld
+    names are drawn at their share of each pool (`Generator.archive`), and no sentence whose
+    tokens are in ``exclude`` (the annotated splits) is written.
+    """
+    gen = Generator(random.Random(seed), draws=random.Random(f"unannotated {seed}"))
+    gen.archive()
+    reports: list[list[str]] = []
+    written = 0
+    while written < sentences:
+        size = min(gen.rng.choices(REPORT_SIZES, weights=REPORT_WEIGHTS)[0], sentences - written)
+        report: list[str] = []
+        while len(report) < size:
+            tokens = [token for token, _ in gen.sentence()]
+            if tuple(tokens) in exclude:
+                continue
+            text = detokenise(tokens)
+            if tokenise(text) != tokens:  # never seen; a guard against a new token rule
+                raise ValueError(f"detokenised text does not give its tokens back: {text!r}")
+            report.append(text)
+        reports.append(report)
+        written += size
+    return reports
+
+
+def format_unannotated(reports: Sequence[Sequence[str]]) -> str:
+    """A report is a paragraph: its sentences one per line, then a blank line."""
+    return "".join("".join(f"{line}\n" for line in report) + "\n" for report in reports)
+
+
+def write_unannotated(reports: Sequence[Sequence[str]], path: Path) -> None:
+    """Gzip with no file name and mtime 0 in the header, so the same reports give the same bytes."""
+    data = format_unannotated(reports).encode("utf-8")
+    with open(path, "wb") as raw:
+        with gzip.GzipFile(filename="", mode="wb", fileobj=raw, compresslevel=9, mtime=0) as gz:
+            gz.write(data)
+
+
+def archive_summary(reports: Sequence[Sequence[str]], held: set[str]) -> str:
+    """Sizes, and how often the names withheld from train occur (case ignored, whole tokens)."""
+    wanted = {tuple(tokenise(name.lower())): name for name in held}
+    longest = max(len(key) for key in wanted)
+    counts = dict.fromkeys(held, 0)
+    n_sentences = n_tokens = 0
+    for report in reports:
+        for line in report:
+            tokens = tokenise(line.lower())
+            n_sentences += 1
+            n_tokens += len(tokens)
+            for i in range(len(tokens)):
+                for n in range(1, min(longest, len(tokens) - i) + 1):
+                    name = wanted.get(tuple(tokens[i : i + n]))
+                    if name is not None:
+                        counts[name] += 1
+    ranked = sorted((n, name) for name, n in counts.items())
+    rarest = ", ".join(f"{name} {n}" for n, name in ranked[:3])
+    return (
+        f"{UNANNOTATED_FILE}: {len(reports)} reports, {n_sentences} sentences, {n_tokens} tokens; "
+        f"{sum(n > 0 for n, _ in ranked)} of the {len(held)} names withheld from train occur in "
+        f"it (median {ranked[len(ranked) // 2][0]} times; rarest: {rarest})"
+    )
+
+
 def write_corpus(corpus: dict[str, list[Sentence]], out: Path) -> None:
     out.mkdir(parents=True, exist_ok=True)
     for split, sentences in corpus.items():
@@ -960,6 +1085,9 @@ def main(argv: Sequence[str] | None = None) -> int:
     entries, held = demo_lexicon(args.seed)
     with open(args.out / "lexicon.tsv", "w", encoding="utf-8", newline="\n") as f:
         f.write(format_lexicon(entries))
+    annotated = {tuple(t for t, _ in s) for sentences in corpus.values() for s in sentences}
+    reports = generate_unannotated(args.seed, annotated)
+    write_unannotated(reports, args.out / UNANNOTATED_FILE)
     print(summary(corpus))
     kinds = {kind: sum(k == kind for _, k in entries) for kind in ("COMPONENT", "DEFECT")}
     print(
@@ -967,6 +1095,7 @@ def main(argv: Sequence[str] | None = None) -> int:
         f"{kinds['DEFECT']} DEFECT), {sum(name in held for name, _ in entries)} of them "
         "withheld from train"
     )
+    print(archive_summary(reports, held))
     return 0
 
 
