@@ -1038,9 +1038,11 @@ def format_unannotated(reports: Sequence[Sequence[str]]) -> str:
 def write_unannotated(reports: Sequence[Sequence[str]], path: Path) -> None:
     """Gzip with no file name and mtime 0 in the header, so the same reports give the same bytes."""
     data = format_unannotated(reports).encode("utf-8")
-    with open(path, "wb") as raw:
-        with gzip.GzipFile(filename="", mode="wb", fileobj=raw, compresslevel=9, mtime=0) as gz:
-            gz.write(data)
+    with (
+        open(path, "wb") as raw,
+        gzip.GzipFile(filename="", mode="wb", fileobj=raw, compresslevel=9, mtime=0) as gz,
+    ):
+        gz.write(data)
 
 
 def archive_summary(reports: Sequence[Sequence[str]], held: set[str]) -> str:
