@@ -1,7 +1,9 @@
-"""Feature benchmark: what the demo lexicon does for names never seen in training, and what it costs.
+"""Feature benchmark: what the demo lexicon and vectors learnt from the demo's unannotated reports
+do for names never seen in training, and what they cost.
 
     .venv/bin/python scripts/bench_features.py                       # about 9 minutes on 2 cores
     .venv/bin/python scripts/bench_features.py --variants words lexicon shape --minutes 3
+    .venv/bin/python scripts/bench_features.py --variants words vectors vectors-lexicon
 
 Each variant trains configs/default.toml on the demo corpus (data/demo train and dev, one seed,
 train.max_minutes bounded by --minutes) and tags data/demo/test.txt:
@@ -9,6 +11,14 @@ train.max_minutes bounded by --minutes) and tags data/demo/test.txt:
     words     the default config: words and characters only
     lexicon   plus model.lexicons = ["data/demo/lexicon.tsv"], the invented catalogue
     shape     plus the lexicon and model.word_shape = true
+    vectors   plus model.pretrained_vectors: vectors learnt first by
+              `tagger learn-vectors data/demo/unannotated.txt.gz --config configs/default.toml`
+              (timed; --vector-dim and --vector-epochs pass on; --reuse-vectors keeps a file
+              learnt before), read the default way (model.vectors_use = both)
+    vectors-fixed, vectors-initialise
+              the same vectors with model.vectors_use = fixed or initialise
+    vectors-lexicon
+              the vectors and the lexicon
 
 Accuracy: strict span P/R/F1 on the whole test split, and on the spans "unseen in train": recall
 over the gold test spans whose (type, text) never occurs as a gold span in train, precision over
@@ -21,7 +31,8 @@ training tokens/s of full steps on the demo batches (collating a batch, then the
 and tagging tokens/s of `predict_scored_spans` (the `tag` command's path: feature ids, lexicon
 matching, character features per distinct token, CRF decoding and marginals) on the test split.
 
-Writes benchmarks/features.json and benchmarks/features.md (date, machine, commit, command).
+Writes benchmarks/features.json and benchmarks/features.md (date, machine, commit, command, and
+--note: what else ran on the machine, which makes the speed ratios and learning time unclean).
 """
 
 from __future__ import annotations
@@ -29,6 +40,7 @@ from __future__ import annotations
 import argparse
 import json
 import random
+import subprocess
 import sys
 import tempfile
 import time
@@ -42,7 +54,7 @@ ROOT = Path(__file__).resolve().parents[1]
 sys.path.insert(0, str(ROOT))
 sys.path.insert(0, str(ROOT / "scripts"))
 
-from benchlib import machine  # noqa: E402
+from benchlib import machine, portable_command  # noqa: E402
 
 from tagger.apply.tagger import Tagger  # noqa: E402
 from tagger.config import Config, apply_overrides, load_config  # noqa: E402
@@ -58,16 +70,28 @@ RESULTS = ROOT / "benchmarks" / "features.json"
 SUMMARY = ROOT / "benchmarks" / "features.md"
 DEMO = ROOT / "data" / "demo"
 LEXICON = "data/demo/lexicon.tsv"
+UNANNOTATED = "data/demo/unannotated.txt.gz"
+VECTORS = "runs/features/demo.tagvec"  # runs/ is not kept in git
+_WITH_LEXICON = f'model.lexicons=["{LEXICON}"]'
+_WITH_VECTORS = f'model.pretrained_vectors="{VECTORS}"'
 VARIANTS: dict[str, list[str]] = {
     "words": [],
-    "lexicon": [f'model.lexicons=["{LEXICON}"]'],
-    "shape": [f'model.lexicons=["{LEXICON}"]', "model.word_shape=true"],
+    "lexicon": [_WITH_LEXICON],
+    "shape": [_WITH_LEXICON, "model.word_shape=true"],
+    "vectors": [_WITH_VECTORS],
+    "vectors-fixed": [_WITH_VECTORS, 'model.vectors_use="fixed"'],
+    "vectors-initialise": [_WITH_VECTORS, 'model.vectors_use="initialise"'],
+    "vectors-lexicon": [_WITH_VECTORS, _WITH_LEXICON],
 }
 LEXICON_TYPES = ("COMPONENT", "DEFECT")
 
 
 def variant_config(name: str, threads: int, minutes: float) -> Config:
     config = load_config(ROOT / "configs" / "default.toml")
+    overrides = [
+        o.replace(LEXICON, str(ROOT / LEXICON)).replace(VECTORS, str(ROOT / VECTORS))
+        for o in VARIANTS[name]
+    ]
     return apply_overrides(
         config,
         [
@@ -75,9 +99,25 @@ def variant_config(name: str, threads: int, minutes: float) -> Config:
             f'data.dev="{DEMO / "dev.txt"}"',
             f"train.threads={threads}",
             f"train.max_minutes={minutes}",
-            *[o.replace(LEXICON, str(ROOT / LEXICON)) for o in VARIANTS[name]],
+            *overrides,
         ],
     )
+
+
+def learn_vectors(dim: int, epochs: int, reuse: bool) -> dict[str, Any]:
+    """Run `tagger learn-vectors` on the demo's unannotated reports as a user would; timed."""
+    out = ROOT / VECTORS
+    args = ["learn-vectors", UNANNOTATED, "--config", "configs/default.toml", "--out", VECTORS]
+    args += ["--dim", str(dim), "--epochs", str(epochs)]
+    command = portable_command(["tagger", *args])
+    if reuse and out.exists():
+        print(f"reusing {VECTORS}", file=sys.stderr, flush=True)
+        return {"command": command, "seconds": None, "file_bytes": out.stat().st_size}
+    out.parent.mkdir(parents=True, exist_ok=True)
+    started = time.monotonic()
+    subprocess.run([sys.executable, "-m", "tagger", *args], cwd=ROOT, check=True)
+    seconds = time.monotonic() - started
+    return {"command": command, "seconds": round(seconds, 1), "file_bytes": out.stat().st_size}
 
 
 # --- accuracy ------------------------------------------------------------------------------------
@@ -199,15 +239,30 @@ def tagging_run(tagger: Tagger) -> Any:
 def render(entry: dict[str, Any]) -> str:
     m = entry["machine"]
     lines = [
-        "# Feature benchmark: the demo lexicon and word shapes",
+        "# Feature benchmark: the demo lexicon, word shapes and vectors from unannotated text",
         "",
         f"- date: {m['date']}; commit {m['commit']}; command: `{m['command']}`",
         f"- machine: {m['cores']} cores, {m['cpu']}; torch {m['torch']}, python {m['python']}, "
-        f"{m['threads']} torch thread(s)",
+        f"{m['threads']} torch thread(s); load average {m['load_before']} before the run",
         f"- training: configs/default.toml on data/demo train/dev, seed 1, at most "
         f"{entry['minutes']} minutes a run; scores on data/demo/test.txt",
         "- unseen: spans whose (type, text) never occurs as a gold span in train; recall over such "
         "gold spans, precision over such predicted spans",
+    ]
+    learning = entry.get("learning")
+    if learning:
+        took = (
+            f"took {learning['seconds']:.0f} s"
+            if learning["seconds"] is not None
+            else "was learnt before this run"
+        )
+        lines.append(
+            f"- vectors: `{learning['command']}` {took}; the file holds "
+            f"{learning['file_bytes'] / 2**20:.1f} MB"
+        )
+    if entry.get("note"):
+        lines.append(f"- note: {entry['note']}")
+    lines += [
         "",
         "| variant | epochs (best) | test F1 | unseen: gold found | unseen R | unseen P | unseen F1 "
         "| COMPONENT+DEFECT unseen F1 |",
@@ -248,13 +303,20 @@ def main() -> int:
     parser.add_argument("--rounds", type=int, default=5, help="alternating speed rounds")
     parser.add_argument("--seconds", type=float, default=4.0, help="seconds per speed round")
     parser.add_argument("--runs", type=Path, default=None, help="keep the run folders here")
+    parser.add_argument("--vector-dim", type=int, default=100, help="learn-vectors --dim")
+    parser.add_argument("--vector-epochs", type=int, default=5, help="learn-vectors --epochs")
+    parser.add_argument("--reuse-vectors", action="store_true", help=f"keep {VECTORS} if it exists")
+    parser.add_argument("--note", default="", help="what else ran on the machine, say")
     args = parser.parse_args()
     torch.set_num_threads(args.threads)
     entry: dict[str, Any] = {
         "machine": {**machine(), "threads": args.threads},
         "minutes": args.minutes,
+        "note": args.note,
         "variants": {},
     }
+    if any(name.startswith("vectors") for name in args.variants):
+        entry["learning"] = learn_vectors(args.vector_dim, args.vector_epochs, args.reuse_vectors)
     taggers: dict[str, Tagger] = {}
     with tempfile.TemporaryDirectory(prefix="bench-features-") as scratch:
         folder = args.runs or Path(scratch)
