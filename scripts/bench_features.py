@@ -31,8 +31,9 @@ training tokens/s of full steps on the demo batches (collating a batch, then the
 and tagging tokens/s of `predict_scored_spans` (the `tag` command's path: feature ids, lexicon
 matching, character features per distinct token, CRF decoding and marginals) on the test split.
 
-Writes benchmarks/features.json and benchmarks/features.md (date, machine, commit, command, and
---note: what else ran on the machine, which makes the speed ratios and learning time unclean).
+Writes benchmarks/features.json and benchmarks/features.md, or under --record another name (date,
+machine, commit, command, and --note: what else ran on the machine, which makes the speed ratios
+and the learning time unclean).
 """
 
 from __future__ import annotations
@@ -66,8 +67,7 @@ from tagger.training.loop import train  # noqa: E402
 from tagger.training.setup import new_network, prepare_training, step_tools  # noqa: E402
 from tagger.training.step import train_step  # noqa: E402
 
-RESULTS = ROOT / "benchmarks" / "features.json"
-SUMMARY = ROOT / "benchmarks" / "features.md"
+RECORD = "features"  # benchmarks/features.json and .md; --record names others
 DEMO = ROOT / "data" / "demo"
 LEXICON = "data/demo/lexicon.tsv"
 UNANNOTATED = "data/demo/unannotated.txt.gz"
@@ -307,6 +307,11 @@ def main() -> int:
     parser.add_argument("--vector-epochs", type=int, default=5, help="learn-vectors --epochs")
     parser.add_argument("--reuse-vectors", action="store_true", help=f"keep {VECTORS} if it exists")
     parser.add_argument("--note", default="", help="what else ran on the machine, say")
+    parser.add_argument(
+        "--record",
+        default=RECORD,
+        help="write benchmarks/RECORD.json and .md (another name keeps the main record)",
+    )
     args = parser.parse_args()
     torch.set_num_threads(args.threads)
     entry: dict[str, Any] = {
@@ -345,9 +350,10 @@ def main() -> int:
     for name in args.variants:
         entry["variants"][name]["train_tokens_per_second"] = train_rates[name]
         entry["variants"][name]["tag_tokens_per_second"] = tag_rates[name]
-    RESULTS.parent.mkdir(exist_ok=True)
-    RESULTS.write_text(json.dumps(entry, indent=2) + "\n")
-    SUMMARY.write_text(render(entry))
+    folder = ROOT / "benchmarks"
+    folder.mkdir(exist_ok=True)
+    (folder / f"{args.record}.json").write_text(json.dumps(entry, indent=2) + "\n")
+    (folder / f"{args.record}.md").write_text(render(entry))
     print(render(entry))
     return 0
 
