@@ -284,11 +284,18 @@ def render(entry: dict[str, Any]) -> str:
     ]
     base = entry["variants"].get("words")
     for name, v in entry["variants"].items():
-        train_ratio = v["train_tokens_per_second"] / base["train_tokens_per_second"] if base else 1
-        tag_ratio = v["tag_tokens_per_second"] / base["tag_tokens_per_second"] if base else 1
+        # Without `words` in the run there is nothing to divide by: no ratio rather than 1.
+        ratios = (
+            (
+                f"{v['train_tokens_per_second'] / base['train_tokens_per_second']:.3f}",
+                f"{v['tag_tokens_per_second'] / base['tag_tokens_per_second']:.3f}",
+            )
+            if base
+            else ("-", "-")
+        )
         lines.append(
-            f"| {name} | {v['train_tokens_per_second']:,.0f} | {train_ratio:.3f} | "
-            f"{v['tag_tokens_per_second']:,.0f} | {tag_ratio:.3f} |"
+            f"| {name} | {v['train_tokens_per_second']:,.0f} | {ratios[0]} | "
+            f"{v['tag_tokens_per_second']:,.0f} | {ratios[1]} |"
         )
     return "\n".join(lines) + "\n"
 
