@@ -371,3 +371,20 @@ def test_context_decides_whether_a_word_is_an_entity(corpus: dict[str, list[Sent
     for token, label in train:
         if re.fullmatch(r"(WO|F|E)-\d+|\d{2}-\d{4}", token):
             assert label == "O", token
+
+
+def test_learn_vectors_reads_every_word_of_the_withheld_names_from_the_archive() -> None:
+    # The archive is read as `tagger learn-vectors` reads it: a .txt.gz file as one text, cut by
+    # the default config's tokenizer, which is not the script's tokeniser.
+    from tagger.config import load_config
+    from tagger.unannotated.raw_text import raw_sentences
+
+    settings = load_config(ROOT / "configs" / "default.toml").tokenizer_settings()
+    counts: dict[str, int] = {}
+    for tokens in raw_sentences([ARCHIVE], settings):
+        for token in tokens:
+            counts[token] = counts.get(token, 0) + 1
+    _, withheld = gen.demo_lexicon()
+    words = {word for name in withheld for word in gen.tokenise(name)}
+    # Well above learn-vectors' --min-count (3): each word gets a vector row of its own.
+    assert min(counts.get(word, 0) for word in words) >= 20
