@@ -216,25 +216,26 @@ def test_check_reads_a_lexicon_from_stdin(tmp_path: Path) -> None:
 @pytest.mark.parametrize(
     ("args", "second"),
     [
-        (["score", "-", "-"], "'PREDICTED'"),
-        (["check", "-", "-"], "'FILES'"),
-        (["check", "-", "--lexicon", "-"], "'FILES'"),
+        (["score", "-", "-"], "PREDICTED: "),
+        (["check", "-", "-"], "FILES: "),
+        (["check", "-", "--lexicon", "-"], "FILES: "),
     ],
 )
 def test_stdin_can_be_named_only_once(args: list[str], second: str) -> None:
     result = runner.invoke(app, args, input=GOLD)
     assert result.exit_code == 2
-    assert second in result.stderr and "only once" in result.stderr
+    (line,) = result.stderr.splitlines()
+    assert second in line and "only once" in line
 
 
 @pytest.mark.parametrize(
     ("command", "argument"),
     [
-        (["score", "{}", "{gold}"], "'GOLD'"),
-        (["score", "{gold}", "{}"], "'PREDICTED'"),
-        (["check", "{gold}", "{}"], "'FILES'"),
-        (["check", "{gold}", "--lexicon", "{}"], "'--lexicon'"),
-        (["convert", "{}", "out.txt", "--to", "IOB2"], "'SOURCE'"),
+        (["score", "{}", "{gold}"], "GOLD: "),
+        (["score", "{gold}", "{}"], "PREDICTED: "),
+        (["check", "{gold}", "{}"], "FILES: "),
+        (["check", "{gold}", "--lexicon", "{}"], "--lexicon: "),
+        (["convert", "{}", "out.txt", "--to", "IOB2"], "SOURCE: "),
     ],
 )
 @pytest.mark.parametrize("kind", ["missing", "folder"])
@@ -247,15 +248,15 @@ def test_a_missing_file_or_a_folder_is_a_usage_error_naming_the_argument(
     result = runner.invoke(app, args)
     assert result.exit_code == 2
     reason = "does not exist" if kind == "missing" else "is a directory"
-    shown = _words(result.stderr)
-    assert argument in shown and reason in shown
+    (line,) = result.stderr.splitlines()  # one line, the long file name never cut in two
+    assert f"{args[0]}: error: {argument}" in line and f"{bad}' {reason}" in line
 
 
 def test_evaluate_refuses_a_missing_gold_file_before_loading_the_model(tmp_path: Path) -> None:
     model = _write(tmp_path / "m.tagger", "not a model")
     result = runner.invoke(app, ["evaluate", str(model), str(tmp_path / "absent.txt")])
     assert result.exit_code == 2
-    assert "'FILES'" in result.stderr and "does not exist" in result.stderr
+    assert "error: FILES: " in result.stderr and "does not exist" in result.stderr
 
 
 # --- version and help ----------------------------------------------------------------------------

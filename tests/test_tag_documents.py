@@ -282,10 +282,10 @@ def test_a_json_array_file_and_paths_that_are_not_files(model: Path, tmp_path: P
     for command in (["tag", str(model)], ["tokenize"]):
         as_folder = _run(*command, str(folder))
         assert as_folder.exit_code == 2
-        assert "a folder, not a file; name the files in it" in _unboxed(as_folder.stderr)
+        assert "a folder, not a file; name the files in it" in as_folder.stderr
         as_glob = _run(*command, str(tmp_path / "*.txt"))
         assert as_glob.exit_code == 2
-        assert "holds a wildcard that no shell expanded" in _unboxed(as_glob.stderr)
+        assert "holds a wildcard that no shell expanded" in as_glob.stderr
 
 
 def _unboxed(text: str) -> str:

@@ -32,6 +32,7 @@ from tagger.data.corpus import ColumnFormat, Sentence, read_columns, write_colum
 from tagger.data.guards import check_sentences
 from tagger.data.io import input_name
 from tagger.data.schemes import Span, spans_lenient, spans_to_tags
+from tagger.errors import DataError
 from tagger.scoring.bootstrap import RESAMPLES, f1_interval
 from tagger.scoring.calibration import reliability, review_catch
 from tagger.scoring.examples import PER_KIND, PairedSentence, error_examples
@@ -95,6 +96,8 @@ def evaluate_files(
     side_sentences: list[Sentence] = []
     for path in paths:
         sentences = list(read_columns(path, fmt))
+        if not sentences:  # scores over nothing would read as a model that finds nothing
+            raise DataError("the gold file holds no sentences to score", input_name(path))
         check_sentences(sentences, input_name(path), limit, remedy)
         scored = tagger.predict_sentences(
             [s.tokens for s in sentences], rows=[s.rows for s in sentences]

@@ -11,6 +11,7 @@ from __future__ import annotations
 import io
 import json
 import os
+import re
 import signal
 import sys
 import threading
@@ -21,6 +22,7 @@ from types import FrameType
 from typing import Annotated, Any
 
 import typer
+from typer._click.exceptions import NoArgsIsHelpError, UsageError
 from typer.core import TyperGroup
 
 from tagger.cli.help import readable_placeholders
@@ -113,6 +115,26 @@ class _Commands(TyperGroup):
                 words, code = stopped_words(stop)
                 say(f"tagger: {words}; unfinished output files were removed")
                 raise typer.Exit(code) from None
+            except NoArgsIsHelpError:
+                raise  # a command given nothing shows its help
+            except UsageError as error:
+                say(usage_error_line(error))
+                raise typer.Exit(error.exit_code) from None
+
+
+def usage_error_line(error: UsageError) -> str:
+    """A usage error as one line, like every other error: the command, what was wrong with which
+    argument, and where the usage is shown. (The default is a framed box whose width cuts long
+    file names in two.)"""
+    command = error.ctx.command_path if error.ctx is not None else "tagger"
+    message = " ".join(error.format_message().split()).rstrip(".")
+    # "Invalid value for 'FILES': Value error, ..." -> "FILES: ..."
+    message = re.sub(
+        r"^Invalid value(?: for '?([^':]*)'?)?: (?:Value error, )?",
+        lambda found: f"{found[1]}: " if found[1] else "",
+        message,
+    )
+    return f"{command}: error: {message} (see {command} --help)"
 
 
 def _discard_stdout() -> None:

@@ -118,7 +118,7 @@ def check(
     verdict = format_verdict(report, code, REPORT_ONLY if report_only else "")
     if as_json:
         print_json(report)
-        say(verdict.strip())
+        say(" ".join(verdict.split()))  # one line beside the JSON on stdout
     else:
         print(format_check(report) + "\n\n" + verdict)
     if misread:

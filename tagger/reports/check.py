@@ -334,6 +334,8 @@ def format_verdict(report: dict[str, Any], exit_code: int, relaxed_by: str = "")
 
 def _describe_problem(problem: dict[str, Any]) -> str:
     n, name = problem["count"], problem["file"]
+    if problem["finding"] == "no_sentences":
+        return f"{name} holds no sentences"
     if problem["finding"] == "ill_formed":
         return f"{count(n, 'ill-formed transition')} in {name}"
     if problem["finding"] == "not_span_tags":
