@@ -286,8 +286,3 @@ def test_a_json_array_file_and_paths_that_are_not_files(model: Path, tmp_path: P
         as_glob = _run(*command, str(tmp_path / "*.txt"))
         assert as_glob.exit_code == 2
         assert "holds a wildcard that no shell expanded" in as_glob.stderr
-
-
-def _unboxed(text: str) -> str:
-    """A usage error's text without the frame and line breaks it is drawn with."""
-    return " ".join(text.replace("│", " ").split())
