@@ -1,8 +1,10 @@
-"""Notes that recur per document or sentence are said once per kind, with their count and where
-the first one is (reports/notes.py `RepeatedNotes`, as `tag` and `tokenize` print them)."""
+"""What `tag` and `tokenize` say on stderr beside their output: notes that recur per document or
+sentence said once per kind, with their count and where the first one is (reports/notes.py
+`RepeatedNotes`), and counts in the one number style of reports/layout.py."""
 
 from __future__ import annotations
 
+import re
 from pathlib import Path
 
 import pytest
@@ -76,3 +78,22 @@ def test_tag_says_once_that_text_inputs_look_like_column_files(tmp_path: Path, f
             f"note: 4 inputs were read as plain text but look like column files (first: "
             f"{inputs[0]}); pass --input-format columns to tag their tokens as they are"
         )
+
+
+def test_the_tag_summary_separates_thousands(tmp_path: Path) -> None:
+    model = tmp_path / "model.tagger"
+    tiny_tagger().save(model)
+    lines = tmp_path / "records.log"
+    lines.write_text("Anna met Bob .\n" * 1001)
+    result = runner.invoke(
+        app, ["tag", str(model), str(lines), "--input-format", "lines", "-o", str(tmp_path / "o")]
+    )
+    assert result.exit_code == 0, result.stderr
+    (summary,) = [line for line in result.stderr.splitlines() if line.startswith("tagged ")]
+    # Every count, the rate included, with its thousands separated (the rate and the review
+    # count depend on the model, so only their style is pinned).
+    assert re.fullmatch(
+        r"tagged 1,001 documents \((1,001|\d{1,3}) to review\), 1,001 sentences, 4,004 tokens, "
+        r"(\d{1,3}(,\d{3})*) spans in \d+\.\d s \((\d{1,3}(,\d{3})*) tokens/s\); 0 skipped",
+        summary,
+    ), summary

@@ -24,6 +24,7 @@ from tagger.cli.progress import TaggingProgress
 from tagger.data.io import is_stdio
 from tagger.data.scheme_rules import SchemeName
 from tagger.errors import TaggerError
+from tagger.reports.layout import number
 from tagger.reports.notes import CAUTION
 
 _TEXT_FORMATS = (
@@ -139,10 +140,10 @@ def tag(
     for note in summary.notes:
         say(f"note: {note}")
     say(
-        f"tagged {count(summary.documents, 'document')} ({summary.review:,} to review), "
+        f"tagged {count(summary.documents, 'document')} ({number(summary.review)} to review), "
         f"{count(summary.sentences, 'sentence')}, {count(summary.tokens, 'token')}, "
         f"{count(summary.spans, 'span')} in {summary.seconds:.1f} s "
-        f"({summary.tokens_per_second:,.0f} tokens/s); {len(summary.skipped)} skipped"
+        f"({number(round(summary.tokens_per_second))} tokens/s); {number(len(summary.skipped))} skipped"
     )
     for item in summary.skipped:
         say(f"  skipped {item}")
