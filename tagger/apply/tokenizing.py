@@ -4,6 +4,7 @@ with offsets."""
 from __future__ import annotations
 
 from collections.abc import Sequence
+from enum import StrEnum
 from pathlib import Path
 
 from tagger.apply.documents import STDIO, Skipped, detect_input_format, read_documents
@@ -17,6 +18,16 @@ from tagger.reports.notes import RepeatedNotes
 from tagger.text.tokenizer import TokenizerSettings
 
 ONE_DOCUMENT_FORMATS = ("text", "sentence-lines")  # an input of these is one document
+
+
+class TokenizeFormat(StrEnum):
+    """How `tokenize` reads an input: the input formats of `tag` but columns (already tokens)."""
+
+    AUTO = "auto"
+    TEXT = "text"
+    SENTENCE_LINES = "sentence-lines"
+    LINES = "lines"
+    JSONL = "jsonl"
 
 
 def tokenize_files(

@@ -25,7 +25,7 @@ import typer
 from typer._click.exceptions import NoArgsIsHelpError, UsageError
 from typer.core import TyperGroup
 
-from tagger.cli.help import readable_placeholders
+from tagger.cli.help import readable_placeholders, reflowed
 from tagger.data.atomic import check_output, refuse_input_as_output
 from tagger.data.column_lines import DelimiterChoice
 from tagger.data.corpus import ColumnFormat
@@ -100,7 +100,12 @@ class _Commands(TyperGroup):
         command = super().get_command(ctx, name)
         if command is not None:
             readable_placeholders(command, ctx)
+            reflowed(command)
         return command
+
+    def format_help(self, ctx: typer.Context, formatter: Any) -> None:
+        readable_placeholders(self, ctx)  # the options of the app itself (--version, --help)
+        super().format_help(ctx, formatter)
 
     def invoke(self, ctx: typer.Context) -> Any:
         with _sigterm_unwinds():

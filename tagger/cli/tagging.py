@@ -10,6 +10,7 @@ import typer
 from tagger.apply.documents import InputFormat
 from tagger.apply.outputs import OutputFormat
 from tagger.apply.tagging import OnError
+from tagger.apply.tokenizing import TokenizeFormat
 from tagger.cli.common import (
     ModelFile,
     TokenColumn,
@@ -20,6 +21,7 @@ from tagger.cli.common import (
     say,
     usable_output,
 )
+from tagger.cli.help import examples
 from tagger.cli.progress import TaggingProgress
 from tagger.data.io import is_stdio
 from tagger.data.scheme_rules import SchemeName
@@ -45,7 +47,12 @@ def _document_inputs(paths: list[Path] | None) -> list[str]:
     return input_names(paths)
 
 
-@app.command()
+@app.command(
+    epilog=examples(
+        "tagger tag runs/demo/model.tagger data/demo/new_reports.jsonl -o tagged.jsonl",
+        "tagger tag runs/demo/model.tagger app.log --input-format lines",
+    )
+)
 def tag(
     model: ModelFile,
     inputs: Annotated[
@@ -150,10 +157,12 @@ def tag(
     say(CAUTION)
 
 
-_TOKENIZE_FORMATS = ("auto", "text", "sentence-lines", "lines", "jsonl")
-
-
-@app.command()
+@app.command(
+    epilog=examples(
+        "tagger tokenize notes.txt",
+        "tagger tokenize app.log --input-format lines --model runs/demo/model.tagger",
+    )
+)
 def tokenize(
     inputs: Annotated[
         list[Path] | None,
@@ -166,8 +175,11 @@ def tokenize(
         ),
     ] = None,
     input_format: Annotated[
-        str, typer.Option(help=f"auto (from the file name), {_TEXT_FORMATS} or jsonl.")
-    ] = "auto",
+        TokenizeFormat,
+        typer.Option(
+            help=f"auto (from the file name), {_TEXT_FORMATS} or jsonl.", case_sensitive=False
+        ),
+    ] = TokenizeFormat.AUTO,
     out: Annotated[
         Path, typer.Option("--out", "-o", dir_okay=False, help="Output file ('-' for stdout).")
     ] = Path("-"),
@@ -177,11 +189,6 @@ def tokenize(
     from tagger.text.tokenizer import TokenizerSettings
 
     names = _document_inputs(inputs)
-    if input_format not in _TOKENIZE_FORMATS:
-        raise typer.BadParameter(
-            f"must be {', '.join(_TOKENIZE_FORMATS[:-1])} or jsonl, not {input_format!r}",
-            param_hint="--input-format",
-        )
     usable_output(out, [model, *(names or ["-"])])
     with domain_errors():
         settings = TokenizerSettings()
@@ -190,6 +197,6 @@ def tokenize(
             from tagger.apply.tagger import model_tokenizer_settings
 
             settings = model_tokenizer_settings(model, model_notes)
-        notes = model_notes + tokenize_files(names, out, settings, input_format)
+        notes = model_notes + tokenize_files(names, out, settings, input_format.value)
     for note in notes:
         say(f"note: {note}")
