@@ -7,6 +7,7 @@ import time
 from typing import Any
 
 from tagger.cli.common import say
+from tagger.reports.check import tokenizer_fit_finding
 from tagger.reports.layout import count, labelled, number
 
 
@@ -86,6 +87,10 @@ def run_header(event: dict[str, Any]) -> list[str]:
         f"{network['cell']}, {count(network['layers'], 'layer')} of {network['hidden_size']}"
         f"{directions}, {network['output']} output; {count(network['parameters'], 'parameter')}",
     )
+    fit = event.get("tokenizer_fit")
+    if fit and fit["split"]["count"] + fit["lost"]["count"]:
+        finding = tokenizer_fit_finding(fit, "the settings this run's model will keep")
+        lines += labelled("tokenizer", f"{finding}; tagger check lists each one")
     lines += labelled("stops", stopping_rule(event["stopping"]))
     return lines
 
