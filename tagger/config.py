@@ -381,6 +381,10 @@ def load_config(path: str | Path | None) -> Config:
         raise ConfigError(f"{path}: config file not found") from None
     except tomllib.TOMLDecodeError as error:
         raise ConfigError(f"{path}: not valid TOML ({error})") from None
+    except UnicodeDecodeError as error:  # TOML is UTF-8 text: a binary file or another encoding
+        raise ConfigError(
+            f"{path}: not a TOML config file: byte {error.start} is not UTF-8 text"
+        ) from None
     try:
         config = config_from_dict(raw)
     except ConfigError as error:

@@ -56,6 +56,8 @@ from tagger.data.io import (
     raw_lines,
 )
 from tagger.errors import ConfigError, DataError
+from tagger.reports.layout import count
+from tagger.reports.notes import RepeatedNotes
 from tagger.text.tokenizer import TokenizerSettings
 
 
@@ -176,7 +178,7 @@ def read_documents(
     inputs: Sequence[str | Path],
     input_format: str = "auto",
     token_column: int = 0,
-    notes: list[str] | None = None,
+    notes: RepeatedNotes | None = None,
     piece_chars: int = PIECE_CHARS,
     settings: TokenizerSettings | None = None,
 ) -> Iterator[Item]:
@@ -225,7 +227,7 @@ def unopenable(path: str | Path, message: str) -> str:
     return message
 
 
-def _noting_columns(items: Iterator[Item], notes: list[str] | None) -> Iterator[Item]:
+def _noting_columns(items: Iterator[Item], notes: RepeatedNotes | None) -> Iterator[Item]:
     for item in items:
         if (
             notes is not None
@@ -234,9 +236,16 @@ def _noting_columns(items: Iterator[Item], notes: list[str] | None) -> Iterator[
             and item.input_format == "text"
             and _looks_like_columns(item.text)
         ):
-            notes.append(
-                f"{item.source} was read as plain text but looks like a column file; "
-                "pass --input-format columns to tag its tokens as they are"
+            first = item.source
+            notes.add(
+                "looks like columns",
+                f"{first} was read as plain text but looks like a column file; "
+                "pass --input-format columns to tag its tokens as they are",
+                lambda n, first=first: (
+                    f"{count(n, 'input')} were read as plain text but look like column files "
+                    f"(first: {first}); pass --input-format columns to tag their tokens as "
+                    "they are"
+                ),
             )
         yield item
 
