@@ -124,7 +124,8 @@ def unigram_perplexity(train: np.ndarray, rows: np.ndarray, vocab_size: int) -> 
     """The perplexity of predicting every held-out character from training frequencies alone
     (add-one smoothed), over the characters the language model predicts."""
     counts = np.bincount(train[train != 0], minlength=vocab_size).astype(np.float64) + 1
-    log_p = np.log(counts / counts.sum())
+    counts[0] = 0  # padding is never predicted
+    log_p = np.log(np.maximum(counts, 1) / counts.sum())  # padding's entry is never read
     lengths = (rows != 0).sum(1)
     nll, n = 0.0, 0
     for row, length in zip(rows, lengths, strict=True):
