@@ -156,6 +156,15 @@ ROWS: list[tuple[str, int, str, str]] = [
     ("check {gold.txt} --model {truncated.tagger}", 1, "is truncated", "truncated.tagger"),
     ("tag {gold.txt} {gold.txt} -o {out}", 1, "not a tagger model file", "gold.txt"),
     ("train --config {model.tagger}", 1, "not a TOML config file", "model.tagger"),
+    # learning from unannotated text
+    ("learn-vectors {empty.txt} -o {out}", 1, "no words to learn from", "empty.txt"),
+    ("learn-vectors {binary.txt} -o {out}", 1, "UTF-8", "binary.txt"),
+    ("learn-vectors {array.json} -o {out}", 1, "JSON Lines", "array.json"),
+    ("learn-vectors {folder} -o {out}", 2, "folder", "folder"),
+    ("learn-vectors {missing} -o {out}", 2, "does not exist", "missing"),
+    ("learn-char-lm {empty.txt} -o {out}", 1, "no text to learn from", "empty.txt"),
+    ("learn-char-lm {binary.txt} -o {out}", 1, "UTF-8", "binary.txt"),
+    ("learn-char-lm {nested.jsonl} -o {out}", 1, "nested", "nested.jsonl"),
 ]
 
 

@@ -515,7 +515,17 @@ def test_train_checks_values_and_named_files_before_making_the_folder(
     assert not (tmp_path / "runs").exists()
 
 
-COMMANDS = ["check", "convert", "score", "train", "evaluate", "tag", "tokenize"]
+COMMANDS = [
+    "check",
+    "convert",
+    "score",
+    "train",
+    "evaluate",
+    "tag",
+    "tokenize",
+    "learn-vectors",
+    "learn-char-lm",
+]
 PYTHON_TYPES = ("<bool>", "<list[", "<str>", "<int", "<float>", "<path>", "<file>", "{")
 
 

@@ -11,6 +11,7 @@ import typer
 
 from tagger.apply.documents import InputFormat
 from tagger.cli.common import TokenColumn, app, domain_errors, say, usable_output
+from tagger.cli.help import examples
 from tagger.cli.progress import duration
 from tagger.cli.tagging import _document_inputs
 from tagger.reports.layout import count, number
@@ -47,7 +48,13 @@ class VectorsProgress:
             sys.stderr.write("\r\033[K")
 
 
-@app.command("learn-vectors")
+@app.command(
+    "learn-vectors",
+    epilog=examples(
+        "tagger learn-vectors archive.txt.gz --config configs/default.toml -o a.tagvec",
+        "tagger learn-vectors notes.jsonl --dim 50 --epochs 10 -o notes.tagvec",
+    ),
+)
 def learn_vectors(
     inputs: Annotated[
         list[Path] | None,
@@ -91,11 +98,8 @@ def learn_vectors(
         int, typer.Option(min=1, help="Rows for character n-grams (hashed); sizes the file.")
     ] = 80_000,
 ) -> None:
-    """Learn word vectors (with character n-grams, so every word gets one) from raw text.
-
-    Example: tagger learn-vectors archive/*.txt.gz --config configs/default.toml --out
-    reports.tagvec, then train with --set model.pretrained_vectors=reports.tagvec
-    """
+    """Learn word vectors (with character n-grams, so every word gets one) from raw text;
+    train with them through --set model.pretrained_vectors=FILE."""
     from tagger.config import load_config
     from tagger.unannotated.vectors_file import save_vectors, save_word2vec_text
     from tagger.unannotated.word_vectors import VectorSettings, learn_word_vectors
@@ -172,7 +176,13 @@ class CharLMProgress:
             sys.stderr.write("\r\033[K")
 
 
-@app.command("learn-char-lm")
+@app.command(
+    "learn-char-lm",
+    epilog=examples(
+        "tagger learn-char-lm archive.txt.gz --config configs/default.toml -o a.tagclm",
+        "tagger learn-char-lm archive.txt.gz -o a.tagclm --max-minutes 60 --resume",
+    ),
+)
 def learn_char_lm(
     inputs: Annotated[
         list[Path] | None,
@@ -218,11 +228,7 @@ def learn_char_lm(
     ] = False,
 ) -> None:
     """Learn a forward and a backward character language model from raw text; a tagger reads
-    them as word features (model.char_lm).
-
-    Example: tagger learn-char-lm archive/*.txt.gz --config configs/default.toml --out
-    reports.tagclm --max-minutes 60, then train with --set model.char_lm=reports.tagclm
-    """
+    them as word features through --set model.char_lm=FILE."""
     from tagger.config import load_config
     from tagger.unannotated.char_lm_training import CharLMSettings
     from tagger.unannotated.char_lm_training import learn_char_lm as learn
