@@ -57,6 +57,7 @@ from tagger.data.io import (
 )
 from tagger.errors import ConfigError, DataError
 from tagger.reports.layout import count
+from tagger.reports.layout import number as number_of
 from tagger.reports.notes import RepeatedNotes
 from tagger.text.tokenizer import TokenizerSettings
 
@@ -320,7 +321,7 @@ def _line_items(stream: BinaryIO, name: str) -> Iterator[Item]:
             yield Document(f"{name}:{raw.number}", text, name, raw.number, input_format="lines")
 
 
-def _jsonl_items(stream: BinaryIO, name: str, notes: list[str] | None = None) -> Iterator[Item]:
+def _jsonl_items(stream: BinaryIO, name: str, notes: RepeatedNotes | None = None) -> Iterator[Item]:
     seen_content = False
     noted_earlier_keys = False
     for raw in raw_lines(stream):
@@ -346,10 +347,16 @@ def _jsonl_items(stream: BinaryIO, name: str, notes: list[str] | None = None) ->
             for key in EARLIER_RECORD_KEYS:
                 record.pop(key, None)
             if not noted_earlier_keys and notes is not None:
-                notes.append(
+                notes.add(
+                    "earlier record keys",
                     f'{name} (from line {number}) uses the earlier record keys "spans" and '
                     '"review"; they are dropped and the findings written anew as "mentions" '
-                    'and "needs_review"'
+                    'and "needs_review"',
+                    lambda files, first=f"{name}:{number}": (
+                        f'{number_of(files)} files use the earlier record keys "spans" and '
+                        f'"review" (first: {first}); they are dropped and the findings written '
+                        'anew as "mentions" and "needs_review"'
+                    ),
                 )
             noted_earlier_keys = True
         doc_id = record.get("id", f"{name}:{number}")
