@@ -3,6 +3,7 @@ recall on test mentions seen and unseen in train, and what learning them costs.
 
     .venv/bin/python scripts/bench_vectors.py                         # every variant, seeds 1-3
     .venv/bin/python scripts/bench_vectors.py --seeds 1 --variants both fixed
+    .venv/bin/python scripts/bench_vectors.py --seeds 1 --variants char-lm both+char-lm
 
 1. `tagger learn-vectors ../shared/corpora/unlabeled/biomed.txt.gz --config configs/bc5cdr.toml`
    (3.8 million tokens of biomedical text holding none of BC5CDR), timed; reused when present.
@@ -10,6 +11,8 @@ recall on test mentions seen and unseen in train, and what learning them costs.
    devel.tsv as dev (the config's epochs and patience, one thread), `--set model.vectors_use=...`; then
    `tagger evaluate --predictions` on test.tsv, and recall on seen and unseen mentions computed
    by scripts/bench_mentions.py's counting. "none" is the same run without vectors.
+3. For the char-lm variants, first `tagger learn-char-lm` on the same text (an hour's budget,
+   one thread; resumed where it stopped), then training with `--set model.char_lm=...`.
 Runs live in runs/vectors/ (git ignores it); a finished run is reused, an interrupted one resumed,
 so the command goes on where it stopped. Writes benchmarks/vectors.json and benchmarks/vectors.md.
 Time figures mean something only when nothing else runs on the machine; the record says what
@@ -48,8 +51,12 @@ VARIANTS = {
     "starts from the vectors",
     "fixed": "frozen table only; the trained embedding starts random",
     "initialise": "the trained embedding starts from the vectors (train words only)",
+    "char-lm": "no vectors; the character language models' word states as features",
+    "both+char-lm": "both, and the character language models' word states",
 }
 LEARN_ARGS = ["--config", "configs/bc5cdr.toml", "--threads", "2", "--epochs", "5"]
+CHAR_LM = RUNS / "biomed.tagclm"
+CHAR_LM_ARGS = ["--config", "configs/bc5cdr.toml", "--threads", "1", "--max-minutes", "60"]
 
 
 def tagger(args: list[str]) -> None:
@@ -72,6 +79,28 @@ def learn_vectors() -> dict:
     }
 
 
+def learn_char_lm() -> dict:
+    """The character language models (an hour's budget on one thread), resumed if stopped."""
+    if CHAR_LM.exists() and not Path(f"{CHAR_LM}.resume").exists():
+        print(f"reusing {portable_path(CHAR_LM)}", flush=True)
+        return json.loads(RESULTS.read_text()).get("char_lm", {}) if RESULTS.exists() else {}
+    RUNS.mkdir(parents=True, exist_ok=True)
+    args = ["learn-char-lm", portable_path(RAW), *CHAR_LM_ARGS, "--out", portable_path(CHAR_LM)]
+    resume = ["--resume"] if Path(f"{CHAR_LM}.resume").exists() else []
+    started = time.monotonic()
+    tagger([*args, *resume])
+    from tagger.unannotated.char_lm_file import load_char_lm
+
+    learnt = load_char_lm(CHAR_LM)[1]["learnt"]
+    return {
+        "command": "tagger " + " ".join(args),
+        "seconds": round(time.monotonic() - started, 1),
+        "file_bytes": CHAR_LM.stat().st_size,
+        **{k: learnt[k] for k in ("characters", "held_out_perplexity", "unigram_perplexity")},
+        "stopped": learnt["stopped"],
+    }
+
+
 def train_and_score(variant: str, seed: int, train_mentions: set) -> dict:
     run = RUNS / f"{variant}-seed{seed}"
     args = [
@@ -91,9 +120,12 @@ def train_and_score(variant: str, seed: int, train_mentions: set) -> dict:
         "--set",
         "train.max_minutes=90",  # a safety net: the config's epochs and patience decide
     ]
-    if variant != "none":
+    use = variant.removesuffix("+char-lm")
+    if use in ("both", "fixed", "initialise"):
         args += ["--set", f"model.pretrained_vectors={portable_path(VECTORS)}"]
-        args += ["--set", f"model.vectors_use={variant}"]
+        args += ["--set", f"model.vectors_use={use}"]
+    if variant.endswith("char-lm"):
+        args += ["--set", f"model.char_lm={portable_path(CHAR_LM)}"]
     if not (run / OUTCOME_NAME).exists():
         started = time.monotonic()
         tagger([*args, *(["--resume"] if (run / CHECKPOINT_NAME).exists() else [])])
@@ -168,6 +200,15 @@ def render(record: dict) -> str:
             f"{learning['file_bytes'] / 2**20:.1f} MB.",
             "",
         ]
+    char_lm = record.get("char_lm") or {}
+    if char_lm:
+        lines += [
+            f"Character language models: `{char_lm['command']}` took {char_lm['seconds']:.0f} s "
+            f"({char_lm['stopped']}) over {char_lm['characters']:,} characters; held-out "
+            f"perplexity {char_lm['held_out_perplexity']:.2f} per character against "
+            f"{char_lm['unigram_perplexity']:.2f} for a unigram model.",
+            "",
+        ]
     header = ["variant", "seeds", "span F1", "Chemical seen", "Chemical unseen", "Disease seen"]
     header += ["Disease unseen"]
     lines += ["| " + " | ".join(header) + " |", "|" + "---|" * len(header)]
@@ -196,6 +237,7 @@ def main() -> int:
         print(f"skipped: {', '.join(map(str, missing))} absent", flush=True)
         return 0
     learning = learn_vectors()
+    char_lm = learn_char_lm() if any(v.endswith("char-lm") for v in args.variants) else {}
     train_mentions = mention_set(BC5CDR.train)
     for variant in args.variants:
         for seed in args.seeds:
@@ -203,6 +245,7 @@ def main() -> int:
             # read again just before writing: another process may run other variants beside
             record = json.loads(RESULTS.read_text()) if RESULTS.exists() else {"runs": {}}
             record["learning"] = learning or record.get("learning", {})
+            record["char_lm"] = char_lm or record.get("char_lm", {})
             record["runs"].setdefault(variant, {})[str(seed)] = result
             record["summary"] = summarise(record["runs"])
             record["machine"] = machine()

@@ -15,7 +15,8 @@ Unknown keys, wrong types and values outside the allowed set are rejected with t
 List-valued keys (e.g. `feature_columns = [1]`) are TOML arrays, held as tuples so that a config
 stays immutable; `Config.to_dict` gives them back as lists.
 
-File paths in a config file (data.train, data.dev, model.pretrained_vectors, model.lexicons) are
+File paths in a config file (data.train, data.dev, model.pretrained_vectors, model.char_lm,
+model.lexicons) are
 relative to the config file's folder, so a config works from any directory; `load_config` makes
 them absolute. Paths given as overrides are the caller's to resolve (`resolve_paths`).
 
@@ -129,6 +130,8 @@ class ModelConfig:
     pretrained_vectors: str = ""
     vectors_use: VectorUse = VectorUse.BOTH
     vector_words: int = 50_000  # most frequent words of the vectors kept in a frozen table
+    # a character language model file from `tagger learn-char-lm` (frozen features); empty: none
+    char_lm: str = ""
     fast_kernels: bool = True  # use torch's fused kernels where a cell has one
     # Extra input features (tagger.text.features); none by default.
     feature_columns: tuple[int, ...] = ()  # 0-based columns of the input files read as features
@@ -364,6 +367,7 @@ def resolve_paths(config: Config, folder: str | Path) -> Config:
         model=replace(
             model,
             pretrained_vectors=resolve(model.pretrained_vectors),
+            char_lm=resolve(model.char_lm),
             lexicons=tuple(resolve(path) for path in model.lexicons),
         ),
     )
@@ -381,6 +385,10 @@ def load_config(path: str | Path | None) -> Config:
         raise ConfigError(f"{path}: config file not found") from None
     except tomllib.TOMLDecodeError as error:
         raise ConfigError(f"{path}: not valid TOML ({error})") from None
+    except UnicodeDecodeError as error:  # TOML is UTF-8 text: a binary file or another encoding
+        raise ConfigError(
+            f"{path}: not a TOML config file: byte {error.start} is not UTF-8 text"
+        ) from None
     try:
         config = config_from_dict(raw)
     except ConfigError as error:

@@ -216,25 +216,26 @@ def test_check_reads_a_lexicon_from_stdin(tmp_path: Path) -> None:
 @pytest.mark.parametrize(
     ("args", "second"),
     [
-        (["score", "-", "-"], "'PREDICTED'"),
-        (["check", "-", "-"], "'FILES'"),
-        (["check", "-", "--lexicon", "-"], "'FILES'"),
+        (["score", "-", "-"], "PREDICTED: "),
+        (["check", "-", "-"], "FILES: "),
+        (["check", "-", "--lexicon", "-"], "FILES: "),
     ],
 )
 def test_stdin_can_be_named_only_once(args: list[str], second: str) -> None:
     result = runner.invoke(app, args, input=GOLD)
     assert result.exit_code == 2
-    assert second in result.stderr and "only once" in result.stderr
+    (line,) = result.stderr.splitlines()
+    assert second in line and "only once" in line
 
 
 @pytest.mark.parametrize(
     ("command", "argument"),
     [
-        (["score", "{}", "{gold}"], "'GOLD'"),
-        (["score", "{gold}", "{}"], "'PREDICTED'"),
-        (["check", "{gold}", "{}"], "'FILES'"),
-        (["check", "{gold}", "--lexicon", "{}"], "'--lexicon'"),
-        (["convert", "{}", "out.txt", "--to", "IOB2"], "'SOURCE'"),
+        (["score", "{}", "{gold}"], "GOLD: "),
+        (["score", "{gold}", "{}"], "PREDICTED: "),
+        (["check", "{gold}", "{}"], "FILES: "),
+        (["check", "{gold}", "--lexicon", "{}"], "--lexicon: "),
+        (["convert", "{}", "out.txt", "--to", "IOB2"], "SOURCE: "),
     ],
 )
 @pytest.mark.parametrize("kind", ["missing", "folder"])
@@ -247,15 +248,15 @@ def test_a_missing_file_or_a_folder_is_a_usage_error_naming_the_argument(
     result = runner.invoke(app, args)
     assert result.exit_code == 2
     reason = "does not exist" if kind == "missing" else "is a directory"
-    shown = _words(result.stderr)
-    assert argument in shown and reason in shown
+    (line,) = result.stderr.splitlines()  # one line, the long file name never cut in two
+    assert f"{args[0]}: error: {argument}" in line and f"{bad}' {reason}" in line
 
 
 def test_evaluate_refuses_a_missing_gold_file_before_loading_the_model(tmp_path: Path) -> None:
     model = _write(tmp_path / "m.tagger", "not a model")
     result = runner.invoke(app, ["evaluate", str(model), str(tmp_path / "absent.txt")])
     assert result.exit_code == 2
-    assert "'FILES'" in result.stderr and "does not exist" in result.stderr
+    assert "error: FILES: " in result.stderr and "does not exist" in result.stderr
 
 
 # --- version and help ----------------------------------------------------------------------------
@@ -514,12 +515,58 @@ def test_train_checks_values_and_named_files_before_making_the_folder(
     assert not (tmp_path / "runs").exists()
 
 
-@pytest.mark.parametrize(
-    "command", ["check", "convert", "score", "train", "evaluate", "tag", "tokenize"]
-)
+COMMANDS = [
+    "check",
+    "convert",
+    "score",
+    "train",
+    "evaluate",
+    "tag",
+    "tokenize",
+    "learn-vectors",
+    "learn-char-lm",
+]
+PYTHON_TYPES = ("<bool>", "<list[", "<str>", "<int", "<float>", "<path>", "<file>", "{")
+
+
+def test_help_lists_every_command() -> None:
+    group = typer.main.get_command(app)
+    assert sorted(group.commands) == sorted(COMMANDS)
+    result = runner.invoke(app, ["--help"])
+    assert result.exit_code == 0
+    for python_type in PYTHON_TYPES:  # the app's own options (--version, --help) too
+        assert python_type not in result.stdout, python_type
+
+
+@pytest.mark.parametrize("command", COMMANDS)
 def test_help_shows_placeholders_a_person_reads(command: str) -> None:
     # No Python types (<bool>, <list[Path]>, <str>, <int range>) and no {REQUIRED} braces.
     result = runner.invoke(app, [command, "--help"], terminal_width=120)
     assert result.exit_code == 0
-    for python_type in ("<bool>", "<list[", "<str>", "<int", "<float>", "<path>", "<file>", "{"):
+    for python_type in PYTHON_TYPES:
         assert python_type not in result.stdout, python_type
+
+
+@pytest.mark.parametrize("command", COMMANDS)
+def test_help_ends_with_examples_each_on_one_line(command: str) -> None:
+    # At the default width of 80 columns, so that each example can be copied whole.
+    lines = [line.strip() for line in runner.invoke(app, [command, "--help"]).stdout.splitlines()]
+    shown = lines[lines.index("Examples:") + 1 :]
+    examples = shown[: shown.index("")] if "" in shown else shown
+    assert 1 <= len(examples) <= 2
+    for example in examples:
+        assert example.startswith(f"tagger {command} "), example
+        arguments = example.split(">")[0].split()[2:]  # what a shell would pass, before ">"
+        options = {word for word in arguments if word.startswith("--")}
+        # Every option an example uses is one the command has.
+        help_text = runner.invoke(app, [command, "--help"], terminal_width=200).stdout
+        assert all(option in help_text for option in options), options
+
+
+def test_help_paragraphs_flow_without_the_source_line_breaks() -> None:
+    # The docstrings are wrapped in the source (convert's after "every other column",
+    # evaluate's after "unless the column"); wide help screens must not be.
+    listed = runner.invoke(app, ["--help"], env={"COLUMNS": "200"}).stdout
+    assert "keeping every other column (written as UTF-8)." in listed
+    evaluate = runner.invoke(app, ["evaluate", "--help"], env={"COLUMNS": "200"}).stdout
+    assert "unless the column options say otherwise." in evaluate

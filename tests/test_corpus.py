@@ -314,7 +314,9 @@ def test_label_column_out_of_range(tmp_path: Path) -> None:
 
 def test_single_column_file_needs_has_labels_false(tmp_path: Path) -> None:
     path = write_bytes(tmp_path, "a\nb\n", "one.conll")
-    with pytest.raises(DataError, match=r"one\.conll:1: .*has_labels=False"):
+    with pytest.raises(
+        DataError, match=r"one\.conll:1: .*both be column 0, as the line has 1 column; an annotated"
+    ):
         read_sentences(path)
 
 

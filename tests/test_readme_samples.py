@@ -136,3 +136,34 @@ def test_tab_separated_tables_are_aligned_by_column(samples) -> None:
         "SR-1      19     COMPONENT",
         "SR-22     7      ASSET",
     ]
+
+
+def test_the_readme_s_first_log_example_reads_a_line_per_record(
+    tmp_path: Path, monkeypatch: pytest.MonkeyPatch
+) -> None:
+    # The README's first command on a log, run as written in a folder holding its files (a tiny
+    # untrained model stands in for the demo's).
+    import shlex
+
+    from model_files import tiny_tagger
+    from typer.testing import CliRunner
+
+    from tagger.cli import app
+
+    commands = [
+        line.split("#")[0].strip()
+        for line in README.read_text(encoding="utf-8").splitlines()
+        if line.startswith("tagger ") and ".log" in line.split("#")[0]
+    ]
+    first = shlex.split(commands[0])
+    assert first[1] == "tag" and "--input-format" in first
+    assert first[first.index("--input-format") + 1] == "lines"
+    monkeypatch.chdir(tmp_path)
+    (tmp_path / first[2]).parent.mkdir(parents=True)
+    tiny_tagger().save(tmp_path / first[2])
+    log = [f"2026-03-0{day} pump {day} tripped on low oil pressure" for day in range(1, 6)]
+    (tmp_path / first[3]).write_text("\n".join(log) + "\n", encoding="utf-8")
+    result = CliRunner().invoke(app, first[1:])
+    assert result.exit_code == 0, result.stderr
+    assert len(result.stdout.splitlines()) == len(log)  # a record per line of the log
+    assert f"tagged {len(log)} documents" in result.stderr

@@ -154,6 +154,25 @@ def test_header_lines_say_what_a_user_checks_before_waiting() -> None:
     assert "stops        after epoch 30 (train.epochs), or earlier after 6 epochs" in text
 
 
+def test_the_header_names_training_tokens_the_tagging_tokenizer_would_cut() -> None:
+    reading = Sentence.from_tokens(["Temp", "106.9°C", "on", "T-14"], ["O", "B-READ", "O", "O"])
+    dev = _sentences_with_spans(2)
+    cut = prepare_sentences(Config(), [*TRAIN, reading, reading], dev, "train.txt", "dev.txt")
+    overview = run_overview(Config(), cut, 1, Path("r"), 1)
+    assert overview["tokenizer_fit"]["split"]["count"] == 2
+    text = " ".join(" ".join(run_header({"event": "start", **overview})).split())
+    assert (
+        "tokenizer 2 of 19 annotated tokens (10.5%) would not come back whole from the tagging "
+        "tokenizer (with the settings this run's model will keep): 2 cut into pieces, 0 not read "
+        "as a token at all; most often '106.9°C' -> '106.9' '°C' (2 times); tagger check lists "
+        "each one stops"
+    ) in text
+    # Tokens that all come back whole (T-14 included) add no line.
+    whole = prepare_sentences(Config(), TRAIN, dev, "train.txt", "dev.txt")
+    lines = run_header({"event": "start", **run_overview(Config(), whole, 1, Path("r"), 1)})
+    assert not any(line.lstrip().startswith("tokenizer") for line in lines)
+
+
 def test_stopping_rule_names_only_the_rules_that_can_stop_the_run() -> None:
     rule = {"epochs": 30, "patience": 6, "max_minutes": 0, "first_epoch": 1}
     assert "train.patience" in stopping_rule(rule)

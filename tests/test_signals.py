@@ -120,3 +120,38 @@ def test_sigterm_while_training_keeps_the_last_epoch_and_no_lock(tmp_path: Path)
     _, stderr = again.communicate(timeout=HANG_GUARD_SECONDS)
     assert again.returncode == 1
     assert "holds an unfinished run" in stderr and "continue it with --resume" in stderr
+
+
+@pytest.mark.slow
+def test_ctrl_c_while_workers_tag_is_one_line_and_exits_130(model: Path, tmp_path: Path) -> None:
+    # Ctrl-C at a terminal signals the whole process group: the command and its two workers.
+    # The input is generated and fed through a FIFO kept open, so the run cannot end before the
+    # signal; it is sent once tagged output reaches the output's temporary file.
+    feed = tmp_path / "in.jsonl"
+    os.mkfifo(feed)
+    out = tmp_path / "out.jsonl"
+    environment = {**os.environ, "PYTHONPATH": str(ROOT)}
+    arguments = ["tag", str(model), str(feed), "--out", str(out), "--workers", "2"]
+    process = subprocess.Popen(
+        [sys.executable, "-m", "tagger", *arguments, "--chunk-chars", "200"],
+        cwd=tmp_path,
+        env=environment,
+        stdout=subprocess.PIPE,
+        stderr=subprocess.PIPE,
+        text=True,
+        start_new_session=True,  # its own process group, as a terminal's foreground job has
+    )
+    record = json.dumps({"text": "Crew swapped the pitch bearing on T-14. Oil leak found."})
+
+    def tagged_output_written() -> bool:
+        writer.write((record + "\n") * 50)
+        writer.flush()
+        return any((tmp_path / name).stat().st_size for name in _temporary_files(tmp_path))
+
+    with open(feed, "w", encoding="utf-8") as writer:
+        _wait_for(tagged_output_written, process, "tagged output")
+        os.killpg(process.pid, signal.SIGINT)
+        _, stderr = process.communicate(timeout=HANG_GUARD_SECONDS)
+    assert process.returncode == 130, stderr
+    assert stderr == "tagger: interrupted; unfinished output files were removed\n"
+    assert _temporary_files(tmp_path) == [] and not out.exists()

@@ -510,3 +510,19 @@ def test_a_config_with_relative_paths_trains_from_any_folder(
     saved = load_config(elsewhere / "r2" / "resolved-config.toml")
     assert saved.data.train == str(elsewhere / "mine.txt")
     assert saved.data.dev == str(project / "data" / "t.txt")
+
+
+def test_the_final_scores_count_dev_tokens_as_evaluate_does(
+    tiny_files: Path, tmp_path: Path
+) -> None:
+    from tagger.training.records import OUTCOME_NAME
+
+    data = tiny_files / "train.txt"
+    result = train(small_config(data, data, train={"epochs": 3}), tmp_path / "run")
+    dev = json.loads((tmp_path / "run" / OUTCOME_NAME).read_text())["dev"]
+    assert dev["tokens"] == sum(len(sentence) for sentence in TINY)
+    assert dev == result.best_dev
+    evaluated = evaluate_files(Tagger.load(result.model_path), [data])["overall"]
+    assert evaluated["tokens"] == dev["tokens"]
+    assert dev["token_accuracy"] == pytest.approx(evaluated["token_accuracy"])
+    assert dev["token_accuracy"] > 0

@@ -56,6 +56,9 @@ from tagger.data.io import (
     raw_lines,
 )
 from tagger.errors import ConfigError, DataError
+from tagger.reports.layout import count
+from tagger.reports.layout import number as number_of
+from tagger.reports.notes import RepeatedNotes
 from tagger.text.tokenizer import TokenizerSettings
 
 
@@ -176,7 +179,7 @@ def read_documents(
     inputs: Sequence[str | Path],
     input_format: str = "auto",
     token_column: int = 0,
-    notes: list[str] | None = None,
+    notes: RepeatedNotes | None = None,
     piece_chars: int = PIECE_CHARS,
     settings: TokenizerSettings | None = None,
 ) -> Iterator[Item]:
@@ -225,7 +228,7 @@ def unopenable(path: str | Path, message: str) -> str:
     return message
 
 
-def _noting_columns(items: Iterator[Item], notes: list[str] | None) -> Iterator[Item]:
+def _noting_columns(items: Iterator[Item], notes: RepeatedNotes | None) -> Iterator[Item]:
     for item in items:
         if (
             notes is not None
@@ -234,9 +237,16 @@ def _noting_columns(items: Iterator[Item], notes: list[str] | None) -> Iterator[
             and item.input_format == "text"
             and _looks_like_columns(item.text)
         ):
-            notes.append(
-                f"{item.source} was read as plain text but looks like a column file; "
-                "pass --input-format columns to tag its tokens as they are"
+            first = item.source
+            notes.add(
+                "looks like columns",
+                f"{first} was read as plain text but looks like a column file; "
+                "pass --input-format columns to tag its tokens as they are",
+                lambda n, first=first: (
+                    f"{count(n, 'input')} were read as plain text but look like column files "
+                    f"(first: {first}); pass --input-format columns to tag their tokens as "
+                    "they are"
+                ),
             )
         yield item
 
@@ -311,7 +321,7 @@ def _line_items(stream: BinaryIO, name: str) -> Iterator[Item]:
             yield Document(f"{name}:{raw.number}", text, name, raw.number, input_format="lines")
 
 
-def _jsonl_items(stream: BinaryIO, name: str, notes: list[str] | None = None) -> Iterator[Item]:
+def _jsonl_items(stream: BinaryIO, name: str, notes: RepeatedNotes | None = None) -> Iterator[Item]:
     seen_content = False
     noted_earlier_keys = False
     for raw in raw_lines(stream):
@@ -337,10 +347,16 @@ def _jsonl_items(stream: BinaryIO, name: str, notes: list[str] | None = None) ->
             for key in EARLIER_RECORD_KEYS:
                 record.pop(key, None)
             if not noted_earlier_keys and notes is not None:
-                notes.append(
+                notes.add(
+                    "earlier record keys",
                     f'{name} (from line {number}) uses the earlier record keys "spans" and '
                     '"review"; they are dropped and the findings written anew as "mentions" '
-                    'and "needs_review"'
+                    'and "needs_review"',
+                    lambda files, first=f"{name}:{number}": (
+                        f'{number_of(files)} files use the earlier record keys "spans" and '
+                        f'"review" (first: {first}); they are dropped and the findings written '
+                        'anew as "mentions" and "needs_review"'
+                    ),
                 )
             noted_earlier_keys = True
         doc_id = record.get("id", f"{name}:{number}")

@@ -25,6 +25,7 @@ from typing import TYPE_CHECKING, Any
 from tagger.apply.documents import Document, Item, Skipped
 from tagger.apply.plaintext import document_sentences
 from tagger.apply.review import least_certain
+from tagger.reports.layout import count
 from tagger.text.tokenizer import TokenizerSettings
 
 if TYPE_CHECKING:
@@ -137,7 +138,7 @@ class Engine:
                 return Skipped(
                     doc.source,
                     doc.line,
-                    f"a sentence of {len(tokens)} tokens is longer than "
+                    f"a sentence of {count(len(tokens), 'token')} is longer than "
                     f"max_sentence_tokens={limit}",
                 )
             starts, position = [], 0

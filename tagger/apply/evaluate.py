@@ -32,6 +32,7 @@ from tagger.data.corpus import ColumnFormat, Sentence, read_columns, write_colum
 from tagger.data.guards import check_sentences
 from tagger.data.io import input_name
 from tagger.data.schemes import Span, spans_lenient, spans_to_tags
+from tagger.errors import DataError
 from tagger.scoring.bootstrap import RESAMPLES, f1_interval
 from tagger.scoring.calibration import reliability, review_catch
 from tagger.scoring.examples import PER_KIND, PairedSentence, error_examples
@@ -95,6 +96,8 @@ def evaluate_files(
     side_sentences: list[Sentence] = []
     for path in paths:
         sentences = list(read_columns(path, fmt))
+        if not sentences:  # scores over nothing would read as a model that finds nothing
+            raise DataError("the gold file holds no sentences to score", input_name(path))
         check_sentences(sentences, input_name(path), limit, remedy)
         scored = tagger.predict_sentences(
             [s.tokens for s in sentences], rows=[s.rows for s in sentences]
@@ -178,3 +181,33 @@ def _side_by_side(sentence: Sentence, tagged: Sequence[str]) -> Sentence:
         document=sentence.document,
         prefix_lines=sentence.prefix_lines,
     )
+
+
+def score_sentences(
+    tagger: Tagger, sentences: Sequence[Sentence], gold: Sequence[list[Span]]
+) -> dict:
+    """Scores of the model on labelled sentences (the dev pass of training): the spans it finds
+    against `gold`, and token accuracy over the labels in the training files' scheme, as
+    `evaluate_files` counts them."""
+    rows = [s.rows for s in sentences] if tagger.needs_columns else None
+    predicted = tagger.predict_spans([s.tokens for s in sentences], rows=rows)
+    counts = SpanCounts()
+    for sentence, gold_spans, spans in zip(sentences, gold, predicted, strict=True):
+        gold_labels, labels = _labels_of_both(sentence, gold_spans, spans, tagger.input_scheme)
+        count_sentence(counts, gold_spans, spans, gold_labels, labels)
+    return summarise(counts)
+
+
+def _labels_of_both(
+    sentence: Sentence, gold: Sequence[Span], predicted: Sequence[Span], scheme: str
+) -> tuple[Sequence[str], list[str]]:
+    """The gold labels and the predicted spans as labels, in one scheme: the training files'
+    own, or BIOES for both when that scheme cannot hold the predicted spans (IO, and touching
+    spans of one type), so that a dev pass never stops a run."""
+    try:
+        return sentence.labels, spans_to_tags(predicted, len(sentence), scheme)
+    except DataError:
+        return (
+            spans_to_tags(gold, len(sentence), "BIOES"),
+            spans_to_tags(predicted, len(sentence), "BIOES"),
+        )

@@ -8,8 +8,11 @@ at a time, so memory stays flat however long the input is.
 from __future__ import annotations
 
 import multiprocessing
+import signal
+import threading
 from collections import deque
 from collections.abc import Callable, Iterator
+from contextlib import contextmanager
 from typing import Any
 
 from tagger.apply.documents import Item
@@ -27,6 +30,9 @@ _JOB_FAILURE: BaseException | None = None
 
 def _start_worker(factory: JobFactory, args: tuple[Any, ...]) -> None:
     global _JOB, _JOB_FAILURE
+    # Ctrl-C reaches every process of the terminal's group: the parent stops the run (and the
+    # pool with it); a worker that raised KeyboardInterrupt too would print its own traceback.
+    signal.signal(signal.SIGINT, signal.SIG_IGN)
     try:
         _JOB = factory(*args)
     except BaseException as error:  # a failing initializer would be restarted forever
@@ -50,7 +56,9 @@ def pooled(
     # spawn, not fork: a forked child of a process that has used OpenMP threads can hang.
     context = multiprocessing.get_context("spawn")
     window = 2 * workers
-    with context.Pool(workers, _start_worker, (factory, args)) as pool:
+    with _sigint_ignored():  # inherited by the workers from their first instruction
+        pool = context.Pool(workers, _start_worker, (factory, args))
+    with pool:
         pending: deque[Any] = deque()
         for chunk in chunks:
             pending.append(pool.apply_async(_run_in_worker, (chunk,)))
@@ -58,3 +66,19 @@ def pooled(
                 yield pending.popleft().get()
         while pending:
             yield pending.popleft().get()
+
+
+@contextmanager
+def _sigint_ignored() -> Iterator[None]:
+    """SIGINT ignored while the block runs, in the main thread (only it may set handlers).
+
+    A process started meanwhile inherits the ignored SIGINT, and Python keeps it ignored, so a
+    Ctrl-C while a worker is still importing cannot print a traceback either."""
+    if threading.current_thread() is not threading.main_thread():
+        yield
+        return
+    previous = signal.signal(signal.SIGINT, signal.SIG_IGN)
+    try:
+        yield
+    finally:
+        signal.signal(signal.SIGINT, previous)

@@ -17,7 +17,7 @@ import numpy as np
 import torch
 
 from tagger.apply.review import ScoredSentence
-from tagger.network.batching import EncodedSentence, encode_sentence
+from tagger.network.batching import EncodedSentence, collate_lm, encode_sentence
 from tagger.network.crf import CRF
 from tagger.network.net import TaggerNet
 from tagger.text.vocab import Vocabularies
@@ -133,6 +133,10 @@ def emission_batches(
                 mask = ids_tensor != 0  # (B, T)
                 char_features = None if char_table is None else char_table[ids_tensor]
                 fixed = None if fixed_table is None else fixed_table[ids_tensor]
+                lm = None
+                if tagger.vocabs.char_lm is not None:
+                    reading = tagger.vocabs.char_lm.encode
+                    lm = collate_lm([reading(token_lists[i]) for i in indices])
                 feature_tensor = None
                 if tagger.features is not None:
                     slots = np.zeros((*ids.shape, net_slots(net)), dtype=np.int64)  # (B, T, K)
@@ -146,6 +150,7 @@ def emission_batches(
                     char_features,
                     feature_tensor,
                     fixed,
+                    lm,
                 )
             yield indices, emissions, mask
     finally:

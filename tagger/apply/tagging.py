@@ -37,6 +37,7 @@ from tagger.apply.writing import OutputWriter, Tally
 from tagger.data.atomic import atomic_output
 from tagger.data.schemes import normalise_scheme_name
 from tagger.errors import ConfigError
+from tagger.reports.notes import RepeatedNotes
 
 
 class OnError(StrEnum):
@@ -165,11 +166,12 @@ def tag_files(
                 raise tagger.features.refusal(f"{name} ({kind} input)")
     job = _job(tagger, options)
     summary = TagSummary(notes=list(tagger.notes))
+    input_notes = RepeatedNotes()
     items = read_documents(
         inputs,
         options.input_format,
         options.token_column,
-        summary.notes,
+        input_notes,
         piece_chars=options.chunk_chars,
         settings=job.engine.settings,
     )
@@ -196,4 +198,5 @@ def tag_files(
         finally:
             writer.close()
     summary.seconds = time.monotonic() - started
+    summary.notes += input_notes.lines()
     return summary

@@ -4,6 +4,7 @@ with offsets."""
 from __future__ import annotations
 
 from collections.abc import Sequence
+from enum import StrEnum
 from pathlib import Path
 
 from tagger.apply.documents import STDIO, Skipped, detect_input_format, read_documents
@@ -12,9 +13,21 @@ from tagger.apply.outputs import table_field
 from tagger.apply.plaintext import document_sentences
 from tagger.data.atomic import atomic_output
 from tagger.errors import ConfigError
+from tagger.reports.layout import count
+from tagger.reports.notes import RepeatedNotes
 from tagger.text.tokenizer import TokenizerSettings
 
 ONE_DOCUMENT_FORMATS = ("text", "sentence-lines")  # an input of these is one document
+
+
+class TokenizeFormat(StrEnum):
+    """How `tokenize` reads an input: the input formats of `tag` but columns (already tokens)."""
+
+    AUTO = "auto"
+    TEXT = "text"
+    SENTENCE_LINES = "sentence-lines"
+    LINES = "lines"
+    JSONL = "jsonl"
 
 
 def tokenize_files(
@@ -36,7 +49,7 @@ def tokenize_files(
     sources = list(inputs) or [STDIO]
     kind = input_format if input_format != "auto" else detect_input_format(sources[0])
     single = len(sources) == 1 and kind in ONE_DOCUMENT_FORMATS
-    notes: list[str] = []
+    notes = RepeatedNotes()
     with atomic_output(out, "w") as handle:
         for item in read_documents(sources, input_format, settings=settings):
             if isinstance(item, Skipped):
@@ -52,11 +65,16 @@ def tokenize_files(
                         item.text.count("\n", 0, start) if item.record is None else 0
                     )
                     cut_at = offset + shift + sentence.tokens[-1].end
-                    notes.append(
-                        f"{item.source}:{line}: "
-                        f"{too_long(settings.max_sentence_tokens, offset + start, None)} and was "
-                        f"cut at character {cut_at}; tag reports it as bad input"
-                        + line_inputs_hint(item.input_format)
+                    limit, hint = settings.max_sentence_tokens, line_inputs_hint(item.input_format)
+                    first = f"{item.source}:{line}"
+                    notes.add(
+                        f"cut {hint}",
+                        f"{first}: {too_long(limit, offset + start, None)} and was cut at "
+                        f"character {cut_at}; tag reports it as bad input{hint}",
+                        lambda n, first=first, limit=limit, hint=hint: (
+                            f"{count(n, 'sentence')} were cut at max_sentence_tokens={limit} "
+                            f"tokens (first: {first}); tag reports them as bad input{hint}"
+                        ),
                     )
                 parts.extend(
                     f"{t.text}\t{offset + shift + t.start}\t{offset + shift + t.end}\n"
@@ -64,4 +82,4 @@ def tokenize_files(
                 )
                 parts.append("\n")
             handle.write("".join(parts))
-    return notes
+    return notes.lines()

@@ -11,6 +11,7 @@ from __future__ import annotations
 import io
 import json
 import os
+import re
 import signal
 import sys
 import threading
@@ -21,9 +22,10 @@ from types import FrameType
 from typing import Annotated, Any
 
 import typer
+from typer._click.exceptions import NoArgsIsHelpError, UsageError
 from typer.core import TyperGroup
 
-from tagger.cli.help import readable_placeholders
+from tagger.cli.help import readable_placeholders, reflowed
 from tagger.data.atomic import check_output, refuse_input_as_output
 from tagger.data.column_lines import DelimiterChoice
 from tagger.data.corpus import ColumnFormat
@@ -98,7 +100,12 @@ class _Commands(TyperGroup):
         command = super().get_command(ctx, name)
         if command is not None:
             readable_placeholders(command, ctx)
+            reflowed(command)
         return command
+
+    def format_help(self, ctx: typer.Context, formatter: Any) -> None:
+        readable_placeholders(self, ctx)  # the options of the app itself (--version, --help)
+        super().format_help(ctx, formatter)
 
     def invoke(self, ctx: typer.Context) -> Any:
         with _sigterm_unwinds():
@@ -113,6 +120,26 @@ class _Commands(TyperGroup):
                 words, code = stopped_words(stop)
                 say(f"tagger: {words}; unfinished output files were removed")
                 raise typer.Exit(code) from None
+            except NoArgsIsHelpError:
+                raise  # a command given nothing shows its help
+            except UsageError as error:
+                say(usage_error_line(error))
+                raise typer.Exit(error.exit_code) from None
+
+
+def usage_error_line(error: UsageError) -> str:
+    """A usage error as one line, like every other error: the command, what was wrong with which
+    argument, and where the usage is shown. (The default is a framed box whose width cuts long
+    file names in two.)"""
+    command = error.ctx.command_path if error.ctx is not None else "tagger"
+    message = " ".join(error.format_message().split()).rstrip(".")
+    # "Invalid value for 'FILES': Value error, ..." -> "FILES: ..."
+    message = re.sub(
+        r"^Invalid value(?: for '?([^':]*)'?)?: (?:Value error, )?",
+        lambda found: f"{found[1]}: " if found[1] else "",
+        message,
+    )
+    return f"{command}: error: {message} (see {command} --help)"
 
 
 def _discard_stdout() -> None:

@@ -27,6 +27,7 @@ from tagger.cli.common import (
     say,
     usable_output,
 )
+from tagger.cli.help import examples
 from tagger.data.convert import REPAIR_OPTION  # the option its refusal names
 from tagger.data.file_scan import LONG_SENTENCE
 from tagger.data.scheme_rules import SchemeName
@@ -48,7 +49,11 @@ REPORT_ONLY = "--report-only"
     "forbids, or labels that are neither O nor PREFIX-TYPE) or a dev/test file shares a sentence "
     f"of {LONG_SENTENCE} tokens or more with train, so that check can stop a pipeline; "
     f"{REPORT_ONLY} reports them and exits 0. Exit code 1 when a file cannot be read. The last "
-    "line of the report says why."
+    "line of the report says why.",
+    epilog=examples(
+        "tagger check data/demo/train.txt data/demo/dev.txt data/demo/test.txt",
+        "tagger check train.txt --lexicon parts.tsv --json > check.json",
+    ),
 )
 def check(
     files: Annotated[
@@ -118,7 +123,7 @@ def check(
     verdict = format_verdict(report, code, REPORT_ONLY if report_only else "")
     if as_json:
         print_json(report)
-        say(verdict.strip())
+        say(" ".join(verdict.split()))  # one line beside the JSON on stdout
     else:
         print(format_check(report) + "\n\n" + verdict)
     if misread:
@@ -151,7 +156,12 @@ def _tagging_tokenizer(model: Path | None) -> tuple[Tokenizer, str]:
     return offsets, described
 
 
-@app.command()
+@app.command(
+    epilog=examples(
+        "tagger convert train.txt train.bioes.txt --to bioes",
+        "tagger convert old.conll fixed.conll --from iob1 --to iob2 --repair",
+    )
+)
 def convert(
     source: Annotated[
         Path, input_argument("Annotated column file to rewrite ('-' for standard input).")
@@ -212,7 +222,12 @@ def convert(
     say(format_conversion(summary))
 
 
-@app.command()
+@app.command(
+    epilog=examples(
+        "tagger score test.txt test.predicted.txt",
+        "tagger score gold.tsv both.tsv --predicted-label-column 2 --json",
+    )
+)
 def score(
     gold: Annotated[
         Path, input_argument("Column file holding the gold labels ('-' for standard input).")

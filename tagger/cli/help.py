@@ -1,10 +1,11 @@
-"""Placeholders in help screens that read like the README: `FILE`, `N`, `auto|tab|space`, nothing
-after a flag, instead of the Python types typer shows by default (`<bool>`, `<list[str]>`,
-`<int range>`)."""
+"""Help screens that read like the README: placeholders such as `FILE`, `N`, `auto|tab|space` and
+nothing after a flag, instead of the Python types typer shows by default (`<bool>`,
+`<list[str]>`, `<int range>`); paragraphs as flowing text; examples under each command."""
 
 from __future__ import annotations
 
 import enum
+import inspect
 import typing
 from pathlib import Path
 from typing import Any
@@ -56,3 +57,17 @@ def _placeholder(descriptor: Any) -> str | None:
         info = getattr(descriptor, "parameter_info", None)
         return "FOLDER" if getattr(info, "file_okay", True) is False else "FILE"
     return _WORDS.get(annotation)
+
+
+def reflowed(command: Any) -> None:
+    """The command's help with each paragraph on one line, for the help screen to wrap: the
+    line breaks of a docstring would otherwise show where the source wrapped it."""
+    if command.help:
+        paragraphs = inspect.cleandoc(command.help).split("\n\n")
+        command.help = "\n\n".join(" ".join(paragraph.split()) for paragraph in paragraphs)
+
+
+def examples(*lines: str) -> str:
+    """A command's epilog: example command lines, one a line (each short enough not to wrap at
+    80 columns, so that it can be copied whole)."""
+    return "Examples:\n" + "\n".join(lines)

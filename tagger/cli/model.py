@@ -25,6 +25,7 @@ from tagger.cli.common import (
     stopped_words,
     usable_output,
 )
+from tagger.cli.help import examples
 from tagger.cli.progress import TrainingProgress
 from tagger.data.column_lines import DelimiterChoice
 
@@ -60,7 +61,12 @@ GivenDelimiter = Annotated[
 ]
 
 
-@app.command()
+@app.command(
+    epilog=examples(
+        "tagger train --config configs/default.toml --train train.txt --out runs/demo",
+        "tagger train --train train.txt --out runs/gru --set model.cell=gru",
+    )
+)
 def train(
     config_path: Annotated[
         Path | None, typer.Option("--config", exists=True, dir_okay=False, help="TOML config file.")
@@ -180,7 +186,12 @@ def train(
             say(stored_text_note(load_model_file(result.model_path)[1]))
 
 
-@app.command()
+@app.command(
+    epilog=examples(
+        "tagger evaluate runs/demo/model.tagger data/demo/test.txt",
+        "tagger evaluate runs/demo/model.tagger test.txt --predictions test.tagged.txt",
+    )
+)
 def evaluate(
     model: ModelFile,
     files: Annotated[

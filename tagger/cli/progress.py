@@ -7,6 +7,7 @@ import time
 from typing import Any
 
 from tagger.cli.common import say
+from tagger.reports.check import tokenizer_fit_finding
 from tagger.reports.layout import count, labelled, number
 
 
@@ -41,7 +42,7 @@ class TrainingProgress:
             mark = " *best*" if event["best"] else ""
             say(
                 f"epoch {event['epoch']:>3}  loss/token {event['train_loss_per_token']:.4f}  "
-                f"dev F1 {100 * event['dev_f1']:.2f}{mark}  {event['train_tokens_per_second']:,.0f} tok/s  "
+                f"dev F1 {100 * event['dev_f1']:.2f}{mark}  {number(round(event['train_tokens_per_second']))} tok/s  "
                 f"{event['epoch_seconds']:.0f}s  (elapsed {time.monotonic() - self.started:.0f}s)"
             )
 
@@ -64,7 +65,7 @@ def batch_line(event: dict[str, Any]) -> str:
         left = f"about {duration(event['run_seconds_left'])} left"
     return (
         f"{epoch} [{bar:<20}] loss {event['loss']:.4f}, "
-        f"{event['tokens_per_second']:,.0f} tok/s, {best_text}{left}"
+        f"{number(round(event['tokens_per_second']))} tok/s, {best_text}{left}"
     )
 
 
@@ -78,7 +79,7 @@ def run_header(event: dict[str, Any]) -> list[str]:
     lines += labelled("dev", f"{where}: {_size(dev)}")
     types = ", ".join(f"{name} {number(n)}" for name, n in event["types"].items())
     lines += labelled(
-        "types", f"{len(event['types'])} in train: {types}" if types else "none in train"
+        "types", f"{number(len(event['types']))} in train: {types}" if types else "none in train"
     )
     directions = " per direction" if network["bidirectional"] else ""
     lines += labelled(
@@ -86,6 +87,10 @@ def run_header(event: dict[str, Any]) -> list[str]:
         f"{network['cell']}, {count(network['layers'], 'layer')} of {network['hidden_size']}"
         f"{directions}, {network['output']} output; {count(network['parameters'], 'parameter')}",
     )
+    fit = event.get("tokenizer_fit")
+    if fit and fit["split"]["count"] + fit["lost"]["count"]:
+        finding = tokenizer_fit_finding(fit, "the settings this run's model will keep")
+        lines += labelled("tokenizer", f"{finding}; tagger check lists each one")
     lines += labelled("stops", stopping_rule(event["stopping"]))
     return lines
 
@@ -127,8 +132,8 @@ class TaggingProgress:
             return
         self.last_draw = time.monotonic()
         sys.stderr.write(
-            f"\r{summary.documents:,} documents, {summary.tokens:,} tokens, "
-            f"{summary.tokens_per_second:,.0f} tokens/s "
+            f"\r{count(summary.documents, 'document')}, {count(summary.tokens, 'token')}, "
+            f"{number(round(summary.tokens_per_second))} tokens/s "
         )
         sys.stderr.flush()
 

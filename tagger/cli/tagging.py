@@ -10,6 +10,7 @@ import typer
 from tagger.apply.documents import InputFormat
 from tagger.apply.outputs import OutputFormat
 from tagger.apply.tagging import OnError
+from tagger.apply.tokenizing import TokenizeFormat
 from tagger.cli.common import (
     ModelFile,
     TokenColumn,
@@ -20,10 +21,12 @@ from tagger.cli.common import (
     say,
     usable_output,
 )
+from tagger.cli.help import examples
 from tagger.cli.progress import TaggingProgress
 from tagger.data.io import is_stdio
 from tagger.data.scheme_rules import SchemeName
 from tagger.errors import TaggerError
+from tagger.reports.layout import number
 from tagger.reports.notes import CAUTION
 
 _TEXT_FORMATS = (
@@ -44,7 +47,12 @@ def _document_inputs(paths: list[Path] | None) -> list[str]:
     return input_names(paths)
 
 
-@app.command()
+@app.command(
+    epilog=examples(
+        "tagger tag runs/demo/model.tagger data/demo/new_reports.jsonl -o tagged.jsonl",
+        "tagger tag runs/demo/model.tagger app.log --input-format lines",
+    )
+)
 def tag(
     model: ModelFile,
     inputs: Annotated[
@@ -141,20 +149,22 @@ def tag(
     for note in summary.notes:
         say(f"note: {note}")
     say(
-        f"tagged {count(summary.documents, 'document')} ({summary.review:,} to review), "
+        f"tagged {count(summary.documents, 'document')} ({number(summary.review)} to review), "
         f"{count(summary.sentences, 'sentence')}, {count(summary.tokens, 'token')}, "
         f"{count(summary.spans, 'span')} in {summary.seconds:.1f} s "
-        f"({summary.tokens_per_second:,.0f} tokens/s); {len(summary.skipped)} skipped"
+        f"({number(round(summary.tokens_per_second))} tokens/s); {number(len(summary.skipped))} skipped"
     )
     for item in summary.skipped:
         say(f"  skipped {item}")
     say(CAUTION)
 
 
-_TOKENIZE_FORMATS = ("auto", "text", "sentence-lines", "lines", "jsonl")
-
-
-@app.command()
+@app.command(
+    epilog=examples(
+        "tagger tokenize notes.txt",
+        "tagger tokenize app.log --input-format lines --model runs/demo/model.tagger",
+    )
+)
 def tokenize(
     inputs: Annotated[
         list[Path] | None,
@@ -167,8 +177,11 @@ def tokenize(
         ),
     ] = None,
     input_format: Annotated[
-        str, typer.Option(help=f"auto (from the file name), {_TEXT_FORMATS} or jsonl.")
-    ] = "auto",
+        TokenizeFormat,
+        typer.Option(
+            help=f"auto (from the file name), {_TEXT_FORMATS} or jsonl.", case_sensitive=False
+        ),
+    ] = TokenizeFormat.AUTO,
     out: Annotated[
         Path, typer.Option("--out", "-o", dir_okay=False, help="Output file ('-' for stdout).")
     ] = Path("-"),
@@ -178,11 +191,6 @@ def tokenize(
     from tagger.text.tokenizer import TokenizerSettings
 
     names = _document_inputs(inputs)
-    if input_format not in _TOKENIZE_FORMATS:
-        raise typer.BadParameter(
-            f"must be {', '.join(_TOKENIZE_FORMATS[:-1])} or jsonl, not {input_format!r}",
-            param_hint="--input-format",
-        )
     usable_output(out, [model, *(names or ["-"])])
     with domain_errors():
         settings = TokenizerSettings()
@@ -191,6 +199,6 @@ def tokenize(
             from tagger.apply.tagger import model_tokenizer_settings
 
             settings = model_tokenizer_settings(model, model_notes)
-        notes = model_notes + tokenize_files(names, out, settings, input_format)
+        notes = model_notes + tokenize_files(names, out, settings, input_format.value)
     for note in notes:
         say(f"note: {note}")

@@ -11,6 +11,7 @@ import typer
 
 from tagger.apply.documents import InputFormat
 from tagger.cli.common import TokenColumn, app, domain_errors, say, usable_output
+from tagger.cli.help import examples
 from tagger.cli.progress import duration
 from tagger.cli.tagging import _document_inputs
 from tagger.reports.layout import count, number
@@ -47,7 +48,13 @@ class VectorsProgress:
             sys.stderr.write("\r\033[K")
 
 
-@app.command("learn-vectors")
+@app.command(
+    "learn-vectors",
+    epilog=examples(
+        "tagger learn-vectors archive.txt.gz --config configs/default.toml -o a.tagvec",
+        "tagger learn-vectors notes.jsonl --dim 50 --epochs 10 -o notes.tagvec",
+    ),
+)
 def learn_vectors(
     inputs: Annotated[
         list[Path] | None,
@@ -91,11 +98,8 @@ def learn_vectors(
         int, typer.Option(min=1, help="Rows for character n-grams (hashed); sizes the file.")
     ] = 80_000,
 ) -> None:
-    """Learn word vectors (with character n-grams, so every word gets one) from raw text.
-
-    Example: tagger learn-vectors archive/*.txt.gz --config configs/default.toml --out
-    reports.tagvec, then train with --set model.pretrained_vectors=reports.tagvec
-    """
+    """Learn word vectors (with character n-grams, so every word gets one) from raw text;
+    train with them through --set model.pretrained_vectors=FILE."""
     from tagger.config import load_config
     from tagger.unannotated.vectors_file import save_vectors, save_word2vec_text
     from tagger.unannotated.word_vectors import VectorSettings, learn_word_vectors
@@ -136,4 +140,130 @@ def learn_vectors(
         f"{number(buckets)} n-gram rows from {count(summary['sentences'], 'sentence')}, "
         f"{count(summary['tokens'], 'token')} in {duration(summary['seconds'])}: {out} "
         f"(word2vec text: {text_out})"
+    )
+
+
+class CharLMProgress:
+    """A live line on a terminal (share done, characters/s, loss, time left); nothing otherwise."""
+
+    def __init__(self) -> None:
+        self.live = sys.stderr.isatty()
+        self.last_draw = 0.0
+
+    def __call__(self, event: dict[str, Any]) -> None:
+        if event["event"] == "read":
+            say(
+                f"read {count(event['sentences'], 'sentence')}, "
+                f"{count(event['characters'], 'character')} to learn from "
+                f"({count(event['chars_known'], 'distinct character')} kept)"
+            )
+        elif event["event"] == "batch" and self.live:
+            if time.monotonic() - self.last_draw < 0.2:
+                return
+            self.last_draw = time.monotonic()
+            done, seconds = event["done"], event["seconds"]
+            left = seconds * (1 - done) / done if done > 0 else 0.0
+            bar = "#" * int(20 * done)
+            sys.stderr.write(
+                f"\r\033[K[{bar:<20}] epoch {event['epoch']}/{event['epochs']}  "
+                f"loss/char {event['loss_per_char']:.3f}  "
+                f"{event['chars_per_second']:,.0f} chars/s  about {duration(left)} left"
+            )
+            sys.stderr.flush()
+
+    def clear(self) -> None:
+        if self.live:
+            sys.stderr.write("\r\033[K")
+
+
+@app.command(
+    "learn-char-lm",
+    epilog=examples(
+        "tagger learn-char-lm archive.txt.gz --config configs/default.toml -o a.tagclm",
+        "tagger learn-char-lm archive.txt.gz -o a.tagclm --max-minutes 60 --resume",
+    ),
+)
+def learn_char_lm(
+    inputs: Annotated[
+        list[Path] | None,
+        typer.Argument(
+            help="Unannotated text, lines, jsonl or column files (.gz too); '-' or none reads "
+            "standard input."
+        ),
+    ] = None,
+    out: Annotated[
+        Path,
+        typer.Option(
+            "--out",
+            "-o",
+            dir_okay=False,
+            help="The model file a config names as model.char_lm; its resume state is OUT.resume.",
+        ),
+    ] = Path("chars.tagclm"),
+    config_path: Annotated[
+        Path | None,
+        typer.Option(
+            "--config",
+            exists=True,
+            dir_okay=False,
+            help="The training config: its [tokenizer] settings cut the text as tagging will.",
+        ),
+    ] = None,
+    input_format: Annotated[
+        InputFormat, typer.Option(help="How to read the inputs, as for tag.")
+    ] = InputFormat.AUTO,
+    token_column: TokenColumn = 0,
+    hidden_size: Annotated[int, typer.Option(min=1, help="Units per direction.")] = 256,
+    layers: Annotated[int, typer.Option(min=1, help="Residual layers per direction.")] = 1,
+    epochs: Annotated[int, typer.Option(min=1, help="Passes over the text.")] = 1,
+    seq_len: Annotated[int, typer.Option(min=3, help="Characters per training piece.")] = 250,
+    batch_size: Annotated[int, typer.Option(min=1, help="Pieces per step.")] = 32,
+    threads: Annotated[int, typer.Option(min=1, help="Threads torch uses.")] = 1,
+    seed: Annotated[int, typer.Option(min=0, help="Seed of the data order and dropout.")] = 1,
+    max_minutes: Annotated[
+        float, typer.Option(min=0, help="Stop after this long (0: no budget); resumable.")
+    ] = 0.0,
+    resume: Annotated[
+        bool, typer.Option("--resume", help="Go on from OUT.resume, where a run stopped.")
+    ] = False,
+) -> None:
+    """Learn a forward and a backward character language model from raw text; a tagger reads
+    them as word features through --set model.char_lm=FILE."""
+    from tagger.config import load_config
+    from tagger.unannotated.char_lm_training import CharLMSettings
+    from tagger.unannotated.char_lm_training import learn_char_lm as learn
+
+    names = _document_inputs(inputs)
+    usable_output(out, names or ["-"])
+    progress = CharLMProgress()
+    with domain_errors():
+        config = load_config(config_path)
+        settings = CharLMSettings(
+            hidden_size=hidden_size,
+            layers=layers,
+            epochs=epochs,
+            seq_len=seq_len,
+            batch_size=batch_size,
+            threads=threads,
+            seed=seed,
+            max_minutes=max_minutes,
+        )
+        try:
+            learnt = learn(
+                names,
+                out,
+                settings,
+                config.tokenizer_settings(),
+                input_format,
+                token_column,
+                resume,
+                progress,
+            )
+        finally:
+            progress.clear()
+    stopped = "" if learnt["stopped"] == "finished" else f"; stopped by the {learnt['stopped']}"
+    say(
+        f"learnt from {count(learnt['characters'], 'character')} in "
+        f"{duration(learnt['seconds'])}: held-out perplexity {learnt['held_out_perplexity']:.2f} "
+        f"per character (a unigram model: {learnt['unigram_perplexity']:.2f}){stopped}: {out}"
     )

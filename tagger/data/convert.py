@@ -20,6 +20,7 @@ from tagger.data.schemes import (
     detect_scheme,
     ill_formed_transitions,
     normalise_scheme_name,
+    split_tag,
 )
 from tagger.errors import DataError
 
@@ -109,8 +110,16 @@ def convert_file(
 
 
 def _detect(source: ColumnSource, src: str | Path) -> SchemeGuess:
-    with _located(src):
-        return detect_scheme(s.labels for s in source.sentences())
+    return detect_scheme(_span_tags(source, src))
+
+
+def _span_tags(source: ColumnSource, src: str | Path) -> Iterator[list[str]]:
+    """Each sentence's labels, a label that is not a span tag refused with its line."""
+    for sentence in source.sentences():
+        for label, line in zip(sentence.labels, sentence.line_numbers, strict=True):
+            with _located(src, line):
+                split_tag(label)
+        yield sentence.labels
 
 
 def _ill_formed(

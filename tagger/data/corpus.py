@@ -401,8 +401,9 @@ def _resolve_columns(
     label = resolve(fmt.label_column, "label")
     if label == token:
         raise DataError(
-            f"token and label would both be column {token} of {columns}; "
-            "for a file without labels, read it with has_labels=False",
+            f"token and label would both be column {token}, as the line has {columns} "
+            f"column{'s' if columns != 1 else ''}; an annotated file holds a token and a label "
+            "on each line",
             name,
             number,
         )

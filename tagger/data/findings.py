@@ -99,13 +99,16 @@ def gate_problems(
 ) -> list[dict[str, Any]]:
     """The findings that make data unfit to train or score on, as [{"file", "finding", "count"}].
 
-    "ill_formed": transitions the file's scheme forbids; "not_span_tags": sentences holding labels
+    "no_sentences": an empty file (or one of blank lines and comments alone); "ill_formed":
+    transitions the file's scheme forbids; "not_span_tags": sentences holding labels
     that are neither O nor PREFIX-TYPE; "also_in_train": dev/test sentences that train holds too,
     counting those of `tagger.data.file_scan.LONG_SENTENCE` tokens or more only (shorter ones, such
     as "1 .", recur in any large corpus).
     """
     problems: list[dict[str, Any]] = []
     for entry in files:
+        if not entry["sentences"]:  # an empty file passes no pipeline: nothing to learn or score
+            problems.append({"file": entry["file"], "finding": "no_sentences", "count": 0})
         ill_formed = entry.get("ill_formed") or {"count": 0}
         not_tags = entry.get("not_span_tags") or {"count": 0}
         for finding, found in (("ill_formed", ill_formed), ("not_span_tags", not_tags)):

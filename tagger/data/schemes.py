@@ -327,12 +327,14 @@ def detect_scheme(tag_sequences: Iterable[Sequence[str]]) -> SchemeGuess:
     fitting = tuple(name for name in DETECTION_ORDER if misses[name] == (0, 0))
     if not marks:
         return SchemeGuess(
-            fitting, f"no span tags in {sentences} sentences (only O), so any scheme fits"
+            fitting,
+            f"no span tags in {sentences:,} sentence{'' if sentences == 1 else 's'} (only O), "
+            "so any scheme fits",
         )
     if len(fitting) == 1:
         return SchemeGuess(
             fitting,
-            f"all {sentences} sentences are well-formed {fitting[0]} and fit no other scheme",
+            f"all {sentences:,} sentences are well-formed {fitting[0]} and fit no other scheme",
         )
     if fitting:
         return SchemeGuess(

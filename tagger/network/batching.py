@@ -41,6 +41,33 @@ class EncodedSentence:
     labels: list[int] | None = None
     features: list[list[int]] | None = None  # (slots, tokens) feature ids, or None
     bags: list[list[int]] | None = None  # rows of the frozen vector table per token, or None
+    # a character language model's reading: (character ids, token starts, token ends), or None
+    lm: tuple[list[int], list[int], list[int]] | None = None
+
+
+@dataclass
+class LMInput:
+    """A batch as a character language model reads it (`tagger.text.char_context`)."""
+
+    ids: torch.Tensor  # (batch, chars) character ids, 0 padding
+    lengths: torch.Tensor  # (batch,)
+    starts: torch.Tensor  # (batch, time) index of each token's first character
+    ends: torch.Tensor  # (batch, time) index of each token's last character
+
+
+def collate_lm(readings: Sequence[tuple[list[int], list[int], list[int]]]) -> LMInput:
+    """Pad sentences' language model readings into one LMInput (padding tokens point at 0)."""
+    width = max(len(ids) for ids, _, _ in readings)
+    time = max(len(starts) for _, starts, _ in readings)
+    ids = np.zeros((len(readings), width), dtype=np.int64)
+    starts = np.zeros((len(readings), time), dtype=np.int64)
+    ends = np.zeros((len(readings), time), dtype=np.int64)
+    for b, (chars, first, last) in enumerate(readings):
+        ids[b, : len(chars)] = chars
+        starts[b, : len(first)] = first
+        ends[b, : len(last)] = last
+    lengths = torch.tensor([len(chars) for chars, _, _ in readings])
+    return LMInput(torch.from_numpy(ids), lengths, torch.from_numpy(starts), torch.from_numpy(ends))
 
 
 @dataclass
@@ -53,6 +80,7 @@ class Batch:
     indices: list[int]  # position of each row in the list the batch was cut from
     features: torch.Tensor | None = None  # (batch, time, slots) feature ids
     bags: torch.Tensor | None = None  # (batch, time, rows) of the frozen vector table, 0 padding
+    lm: LMInput | None = None  # what a character language model reads
 
     @property
     def tokens(self) -> int:
@@ -84,7 +112,8 @@ def encode_sentence(
     bags = None
     if vocabs.subwords is not None:
         bags = [vocabs.subwords.bag(t) for t in tokens]
-    return EncodedSentence(words, chars, label_ids, features, bags)
+    lm = vocabs.char_lm.encode(tokens) if vocabs.char_lm is not None else None
+    return EncodedSentence(words, chars, label_ids, features, bags, lm)
 
 
 def collate(sentences: Sequence[EncodedSentence], indices: Sequence[int]) -> Batch:
@@ -127,6 +156,7 @@ def collate(sentences: Sequence[EncodedSentence], indices: Sequence[int]) -> Bat
         list(indices),
         None if features is None else torch.from_numpy(features),
         None if bags is None else torch.from_numpy(bags),
+        None if chosen[0].lm is None else collate_lm([s.lm for s in chosen if s.lm]),
     )
 
 

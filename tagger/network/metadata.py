@@ -33,7 +33,8 @@ from tagger.data.schemes import (
     split_tag,
 )
 from tagger.errors import ModelFileError, TaggerError
-from tagger.network.shapes import expected_tensors, tensor_count
+from tagger.network.shapes import GATES, char_lm_tensor_count, expected_tensors, tensor_count
+from tagger.text.char_context import CharLMSpec
 from tagger.text.features import ColumnFeature, FeatureSpec
 from tagger.text.lexicon import CASE_MODES, Lexicon
 from tagger.text.subword import SubwordIndex, SubwordSettings
@@ -158,7 +159,10 @@ class _Reader:
     def vocabularies(self, value: Any, config: Config) -> Vocabularies:
         key = "vocabularies"
         known = ("words", "chars", "labels", "lowercase", "digits_to_zero")
-        table = self.table(value, key, known if "subwords" not in value else (*known, "subwords"))
+        optional = tuple(
+            k for k in ("subwords", "char_lm") if isinstance(value, dict) and k in value
+        )
+        table = self.table(value, key, (*known, *optional))
         vocabs = Vocabularies(
             words=self.vocab(table["words"], f"{key}.words", specials=True),
             chars=self.vocab(table["chars"], f"{key}.chars", specials=True),
@@ -166,6 +170,7 @@ class _Reader:
             lowercase=self.flag(table["lowercase"], f"{key}.lowercase"),
             digits_to_zero=self.flag(table["digits_to_zero"], f"{key}.digits_to_zero"),
             subwords=self.subwords(table["subwords"]) if "subwords" in table else None,
+            char_lm=self.char_lm(table["char_lm"]) if "char_lm" in table else None,
         )
         model = config.model
         for name in ("lowercase", "digits_to_zero"):
@@ -191,6 +196,20 @@ class _Reader:
             digits_to_zero=self.flag(table["digits_to_zero"], f"{key}.digits_to_zero"),
         )
         return SubwordIndex(words, settings, numbers["dim"])
+
+    def char_lm(self, value: Any) -> CharLMSpec:
+        key = "vocabularies.char_lm"
+        names = ("chars", "char_dim", "hidden_size", "layers", "cell")
+        table = self.table(value, key, names)
+        chars = self.strings(table["chars"], f"{key}.chars")
+        if any(len(ch) != 1 for ch in chars):
+            self.refuse(f"the stored {key}.chars must be single characters")
+        sizes = [self.count(table[name], f"{key}.{name}") for name in names[1:4]]
+        if min(sizes) < 1:
+            self.refuse(f"the stored {key} sizes must be 1 or more")
+        if table["cell"] not in GATES:
+            self.refuse(f"the stored {key}.cell {quoted(table['cell'])} is not a cell kind")
+        return CharLMSpec(chars, *sizes, table["cell"])
 
     def labels(self, labels: list[str], scheme: str) -> None:
         """The labels must be those training stores: O, then every label the scheme writes for
@@ -355,7 +374,12 @@ def check_weights(
     slots = stored.feature_slots
     fixed = stored.vocabs.subwords
     fixed_shape = (fixed.size, fixed.dim) if fixed is not None else None
-    needed = tensor_count(model, len(slots)) + (fixed is not None)
+    lm = stored.vocabs.char_lm
+    lm_sizes = (
+        (lm.vocab_size, lm.char_dim, lm.hidden_size, lm.layers, lm.cell) if lm is not None else None
+    )
+    lm_count = char_lm_tensor_count(lm.layers) if lm is not None else 0
+    needed = tensor_count(model, len(slots)) + (fixed is not None) + lm_count
     if len(tensors) != needed:
         reader.refuse(
             f"the weights do not fit the stored config: the file holds {len(tensors)} tensors, "
@@ -363,7 +387,13 @@ def check_weights(
         )
     vocabs = stored.vocabs
     expected = expected_tensors(
-        model, len(vocabs.words), len(vocabs.chars), len(vocabs.labels), slots, fixed_shape
+        model,
+        len(vocabs.words),
+        len(vocabs.chars),
+        len(vocabs.labels),
+        slots,
+        fixed_shape,
+        lm_sizes,
     )
     for name, (shape, dtype) in expected.items():
         tensor = tensors.get(name)

@@ -22,11 +22,14 @@ from torch import nn
 
 from tagger.config import ModelConfig
 from tagger.data.schemes import allowed_transitions
+from tagger.network.batching import LMInput
+from tagger.network.char_lm import FrozenCharLM
 from tagger.network.crf import CRF
 from tagger.network.encoder import BiResidualEncoder, SharedDropout
 
 if TYPE_CHECKING:
     from tagger.config import Config
+    from tagger.text.char_context import CharLMSpec
     from tagger.text.features import FeatureSpec
     from tagger.text.vocab import Vocabularies
 
@@ -111,9 +114,11 @@ class TaggerNet(nn.Module):
         transitions: Transitions | None = None,
         feature_slots: Sequence[tuple[int, int]] = (),
         fixed_vectors: tuple[int, int] | None = None,
+        char_lm: CharLMSpec | None = None,
     ) -> None:
         """``feature_slots``: (number of ids, embedding size) of each feature slot, in slot order;
-        ``fixed_vectors``: (rows, dim) of a frozen pretrained table, or None."""
+        ``fixed_vectors``: (rows, dim) of a frozen pretrained table, or None; ``char_lm``: the
+        characters and sizes of a frozen character language model, or None."""
         super().__init__()
         self.config = config
         self.words = nn.Embedding(n_words, config.word_dim, padding_idx=0)
@@ -130,8 +135,9 @@ class TaggerNet(nn.Module):
         self.dropout = SharedDropout(config.dropout)
         feature_size = sum(dim for _, dim in feature_slots)
         fixed_size = fixed_vectors[1] if fixed_vectors is not None else 0
+        lm_size = char_lm.output_size if char_lm is not None else 0
         self.encoder = BiResidualEncoder(
-            config.word_dim + char_size + feature_size + fixed_size,
+            config.word_dim + char_size + feature_size + fixed_size + lm_size,
             config.hidden_size,
             config.layers,
             config.cell,
@@ -151,6 +157,7 @@ class TaggerNet(nn.Module):
                 for embedding in self.features:
                     embedding.weight[1].zero_()  # id 1, "nothing known", starts neutral
         self.fixed_vectors = FixedVectors(*fixed_vectors) if fixed_vectors is not None else None
+        self.char_lm = FrozenCharLM(char_lm) if char_lm is not None else None
 
     def emissions(
         self,
@@ -160,12 +167,15 @@ class TaggerNet(nn.Module):
         char_features: torch.Tensor | None = None,
         features: torch.Tensor | None = None,
         fixed: torch.Tensor | None = None,
+        lm: LMInput | torch.Tensor | None = None,
     ) -> torch.Tensor:
         """(B, T, L) label scores. ``char_features`` (B, T, F), when given, replaces running the
         character encoder on ``chars``: prediction computes it once per distinct token.
         ``features`` (B, T, K) holds the ids of the K feature slots of a model that has them.
         ``fixed``, for a model with a frozen vector table: each token's bag of rows (B, T, K)
-        (ids), or its vector (B, T, dim) (floats; prediction computes it per distinct token)."""
+        (ids), or its vector (B, T, dim) (floats; prediction computes it per distinct token).
+        ``lm``, for a model with a character language model: the batch as it reads it, or its
+        word states (B, T, 2*hidden) computed already."""
         parts = [self.words(words)]  # (B, T, word_dim)
         if self.chars is not None:
             if char_features is None:
@@ -180,6 +190,12 @@ class TaggerNet(nn.Module):
             if fixed is None:
                 raise ValueError("this network reads pretrained vectors; none were given")
             parts.append(fixed if fixed.is_floating_point() else self.fixed_vectors(fixed))
+        if self.char_lm is not None:
+            if lm is None:
+                raise ValueError("this network reads a character language model; no input given")
+            if isinstance(lm, LMInput):
+                lm = self.char_lm(lm.ids, lm.lengths, lm.starts, lm.ends)
+            parts.append(lm[:, : words.shape[1]])  # (B, T, 2*hidden)
         inputs = parts[0] if len(parts) == 1 else torch.cat(parts, dim=-1)
         h = self.encoder(self.dropout(inputs), lengths)  # (B, T, output_size)
         return self.output(self.dropout(h))  # (B, T, L)
@@ -223,6 +239,7 @@ def build_net(
         transitions = allowed_transitions(vocabs.labels.itos, config.model.scheme)
     slots = features.slot_sizes(config.model) if features is not None else ()
     fixed = (vocabs.subwords.size, vocabs.subwords.dim) if vocabs.subwords is not None else None
+    lm = vocabs.char_lm
     return TaggerNet(
         config.model,
         len(vocabs.words),
@@ -231,4 +248,5 @@ def build_net(
         transitions,
         slots,
         fixed,
+        lm,
     )

@@ -66,10 +66,12 @@ def expected_tensors(
     n_labels: int,
     feature_slots: Sequence[tuple[int, int]] = (),
     fixed_vectors: tuple[int, int] | None = None,
+    char_lm: tuple[int, int, int, int, str] | None = None,
 ) -> dict[str, TensorSpec]:
     """Name -> (shape, element type) of every tensor in the state_dict of
     ``build_net`` for these sizes; ``feature_slots`` as `FeatureSpec.slot_sizes` gives them;
-    ``fixed_vectors`` the (rows, dim) of a frozen pretrained table, or None."""
+    ``fixed_vectors`` the (rows, dim) of a frozen pretrained table, or None; ``char_lm`` the
+    (characters, char_dim, hidden, layers, cell) of a frozen character language model, or None."""
     found: dict[str, TensorSpec] = {"words.weight": ((n_words, model.word_dim), _FLOAT)}
     char_size = 0
     if model.char_encoder != "none":
@@ -89,6 +91,8 @@ def expected_tensors(
     input_size = model.word_dim + char_size + sum(dim for _, dim in feature_slots)
     if fixed_vectors is not None:
         input_size += fixed_vectors[1]
+    if char_lm is not None:
+        input_size += 2 * char_lm[2]
     found.update(
         _encoder(
             "encoder", input_size, model.hidden_size, model.layers, model.cell, model.bidirectional
@@ -108,4 +112,23 @@ def expected_tensors(
         found[f"features.{k}.weight"] = ((ids, dim), _FLOAT)
     if fixed_vectors is not None:
         found["fixed_vectors.table"] = (fixed_vectors, _FLOAT)
+    if char_lm is not None:
+        found.update(char_lm_tensors("char_lm.model", *char_lm))
+    return found
+
+
+def char_lm_tensor_count(layers: int) -> int:
+    """Tensors of a `CharLanguageModel` with `layers` layers: counted before they are listed."""
+    return 1 + 2 + 2 * layers * _CELL_TENSORS + 4  # embedding, projection, cells, two outputs
+
+
+def char_lm_tensors(
+    prefix: str, n_chars: int, char_dim: int, hidden: int, layers: int, cell: str
+) -> dict[str, TensorSpec]:
+    """The tensors of a `CharLanguageModel` (tagger.network.char_lm) of these sizes."""
+    found: dict[str, TensorSpec] = {f"{prefix}.embed.weight": ((n_chars, char_dim), _FLOAT)}
+    found.update(_encoder(f"{prefix}.encoder", char_dim, hidden, layers, cell, True))
+    for name in ("next_char", "previous_char"):
+        found[f"{prefix}.{name}.weight"] = ((n_chars, hidden), _FLOAT)
+        found[f"{prefix}.{name}.bias"] = ((n_chars,), _FLOAT)
     return found

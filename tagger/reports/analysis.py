@@ -60,7 +60,7 @@ def example_lines(summary: dict[str, Any]) -> list[str]:
     for kind, found in kinds.items():
         shown = found["examples"]
         held = count(found["sentences"], "sentence")
-        lines += ["", *labelled(KIND_NAMES.get(kind, kind), f"{held}, {len(shown)} shown")]
+        lines += ["", *labelled(KIND_NAMES.get(kind, kind), f"{held}, {number(len(shown))} shown")]
         for example in shown:
             start, end = _window(example)
             lines += labelled(

@@ -230,14 +230,15 @@ def _describe_typo(typo: dict[str, Any]) -> str:
     )
 
 
-def _format_tokenizer_fit(fit: dict[str, Any], settings: str) -> list[str]:
+def tokenizer_fit_finding(fit: dict[str, Any], settings: str) -> str:
+    """The tokenizer finding in one sentence (`check` lists examples under it; `train` shows it
+    in its header): how many annotated tokens the tagging tokenizer with `settings` would not
+    give back whole, and the most frequent of them."""
     split, lost, tokens = fit["split"], fit["lost"], fit["tokens"]
     differ = split["count"] + lost["count"]
     tokenizer = f"the tagging tokenizer (with {settings})"
     if not differ:
-        return labelled(
-            "tokenizer", f"all {count(tokens, 'annotated token')} come back whole from {tokenizer}"
-        )
+        return f"all {count(tokens, 'annotated token')} come back whole from {tokenizer}"
     text = (
         f"{number(differ)} of {count(tokens, 'annotated token')} ({share(differ, tokens)}) "
         f"would not come back whole from {tokenizer}: {number(split['count'])} cut into "
@@ -247,8 +248,14 @@ def _format_tokenizer_fit(fit: dict[str, Any], settings: str) -> list[str]:
         f"{form['token']!r} -> {_pieces(form['pieces'])} ({_times(form['count'])})"
         for form in fit["most_frequent"]
     ]
-    text += "; most often " + ", ".join(common) + ":"
-    out = labelled("tokenizer", text)
+    return text + "; most often " + ", ".join(common)
+
+
+def _format_tokenizer_fit(fit: dict[str, Any], settings: str) -> list[str]:
+    if not fit["split"]["count"] + fit["lost"]["count"]:
+        return labelled("tokenizer", tokenizer_fit_finding(fit, settings))
+    split, lost = fit["split"], fit["lost"]
+    out = labelled("tokenizer", tokenizer_fit_finding(fit, settings) + ":")
     for found in (split, lost):
         out += _examples(
             found, lambda e: f"line {e['line']}: {e['token']!r} -> {_pieces(e['pieces'])}"
@@ -334,6 +341,8 @@ def format_verdict(report: dict[str, Any], exit_code: int, relaxed_by: str = "")
 
 def _describe_problem(problem: dict[str, Any]) -> str:
     n, name = problem["count"], problem["file"]
+    if problem["finding"] == "no_sentences":
+        return f"{name} holds no sentences"
     if problem["finding"] == "ill_formed":
         return f"{count(n, 'ill-formed transition')} in {name}"
     if problem["finding"] == "not_span_tags":

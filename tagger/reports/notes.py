@@ -1,9 +1,12 @@
 """The short notes commands print where their output leaves the tool: the caution under the
-summary of `tag` and `evaluate`, and what a model file reveals, under `train`'s summary."""
+summary of `tag` and `evaluate`, what a model file reveals, under `train`'s summary, and notes
+that recur per document or sentence, said once per kind with their count (`RepeatedNotes`)."""
 
 from __future__ import annotations
 
 import textwrap
+from collections.abc import Callable
+from dataclasses import dataclass
 from typing import Any
 
 from tagger.reports.layout import WIDTH, count
@@ -33,3 +36,27 @@ def stored_text_note(meta: dict[str, Any]) -> str:
         "model.min_word_count=K keeps the words seen fewer than K times out of it"
     )
     return "\n".join(textwrap.wrap(text, WIDTH, initial_indent="note: ", subsequent_indent=" " * 6))
+
+
+@dataclass
+class _Kind:
+    note: str  # in full, as said when it is the only one of its kind
+    counted: Callable[[int], str]  # the note for n > 1 of its kind, naming where the first is
+    times: int = 0
+
+
+class RepeatedNotes:
+    """Notes that may recur for every document or sentence of a run (a thousand cut sentences,
+    a thousand text files that look like column files), said once per kind: in full when the
+    kind occurred once, else as one counted line naming the first occurrence. Kinds keep the
+    order they first occurred in."""
+
+    def __init__(self) -> None:
+        self._kinds: dict[str, _Kind] = {}
+
+    def add(self, kind: str, note: str, counted: Callable[[int], str]) -> None:
+        """One occurrence of `kind`; `note` and `counted` are kept from its first occurrence."""
+        self._kinds.setdefault(kind, _Kind(note, counted)).times += 1
+
+    def lines(self) -> list[str]:
+        return [k.note if k.times == 1 else k.counted(k.times) for k in self._kinds.values()]

@@ -8,6 +8,7 @@ from dataclasses import dataclass
 from typing import TYPE_CHECKING
 
 if TYPE_CHECKING:
+    from tagger.text.char_context import CharLMSpec
     from tagger.text.subword import SubwordIndex
 
 PAD = "<pad>"
@@ -70,6 +71,8 @@ class Vocabularies:
     digits_to_zero: bool
     # the rows of a frozen vector table for any token (pretrained vectors); None: no such table
     subwords: SubwordIndex | None = None
+    # the characters and sizes of a frozen character language model; None: no such model
+    char_lm: CharLMSpec | None = None
 
     def word_key(self, token: str) -> str:
         return normalise_word(token, self.lowercase, self.digits_to_zero)
@@ -82,10 +85,12 @@ class Vocabularies:
             "lowercase": self.lowercase,
             "digits_to_zero": self.digits_to_zero,
             **({"subwords": self.subwords.to_dict()} if self.subwords is not None else {}),
+            **({"char_lm": self.char_lm.to_dict()} if self.char_lm is not None else {}),
         }
 
     @classmethod
     def from_dict(cls, data: dict) -> Vocabularies:
+        from tagger.text.char_context import CharLMSpec
         from tagger.text.subword import SubwordIndex
 
         return cls(
@@ -95,6 +100,7 @@ class Vocabularies:
             lowercase=data["lowercase"],
             digits_to_zero=data["digits_to_zero"],
             subwords=SubwordIndex.from_dict(data["subwords"]) if "subwords" in data else None,
+            char_lm=CharLMSpec.from_dict(data["char_lm"]) if "char_lm" in data else None,
         )
 
 

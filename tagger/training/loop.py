@@ -30,12 +30,11 @@ import torch
 from torch.optim.lr_scheduler import LRScheduler
 
 from tagger.apply.calibration import calibrate_model_file
+from tagger.apply.evaluate import score_sentences
 from tagger.apply.tagger import COLUMN_LAYOUT_KEY, Tagger
 from tagger.config import Config
 from tagger.data.corpus import Sentence
-from tagger.data.schemes import Span
 from tagger.network.batching import EncodedSentence, bucketed_batches, collate
-from tagger.scoring.metrics import count_spans, summarise
 from tagger.training import events
 from tagger.training.budget import RunClock, now, seconds_left
 from tagger.training.checkpoint import RunState, restore_checkpoint, save_checkpoint
@@ -168,7 +167,7 @@ def _train(
             stop_reason = _diverged_reason(totals.not_finite, epoch, state, run_dir)
             break
         train_seconds = now() - started
-        dev = evaluate_spans(scored, data.dev, data.dev_spans)
+        dev = score_sentences(scored, data.dev, data.dev_spans)
         improved = state.score(epoch, dev)
         if improved:
             scored.save(run_dir / MODEL_NAME, {**meta, "epoch": epoch, "dev_metrics": dev})
@@ -273,14 +272,6 @@ def _train_epoch(
             )
         )
     return totals
-
-
-def evaluate_spans(
-    tagger: Tagger, sentences: Sequence[Sentence], gold: Sequence[list[Span]]
-) -> dict:
-    rows = [s.rows for s in sentences] if tagger.needs_columns else None
-    predicted = tagger.predict_spans([s.tokens for s in sentences], rows=rows)
-    return summarise(count_spans(gold, predicted))
 
 
 def _resume(

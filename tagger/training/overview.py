@@ -1,5 +1,6 @@
 """What a run tells before its first epoch: the size of its train and dev data, the types, the
-network, the run folder and the stopping rule; the warnings about data that cannot teach the
+network, the run folder, the stopping rule, and the annotated tokens the tagging tokenizer would
+not give back whole (as `check` reports them); the warnings about data that cannot teach the
 model anything or cannot choose its best epoch well; and, while it runs, whether the epoch limit
 is a promise or only a limit (patience or a time budget may end the run earlier).
 """
@@ -8,12 +9,15 @@ from __future__ import annotations
 
 from collections import Counter
 from collections.abc import Sequence
+from dataclasses import replace
 from pathlib import Path
 from typing import Any
 
 from tagger.config import Config
 from tagger.data.corpus import Sentence
 from tagger.data.schemes import Span
+from tagger.data.tokenizer_fit import TokenizerFit
+from tagger.text.tokenizer import tokenize
 from tagger.training.data import PreparedData
 
 # Fewer dev spans than this draw a warning: the best epoch is chosen on them, and below it one
@@ -54,6 +58,7 @@ def run_overview(
             "parameters": parameters,
         },
         "run_folder": str(run_dir),
+        "tokenizer_fit": tokenizer_fit(config, data.train),
         "stopping": {
             "first_epoch": first_epoch,
             "epochs": train.epochs,
@@ -61,6 +66,22 @@ def run_overview(
             "max_minutes": train.max_minutes,
         },
     }
+
+
+def tokenizer_fit(config: Config, sentences: Sequence[Sentence]) -> dict[str, Any]:
+    """How the training tokens fit the tokenizer the model will cut raw text with (its settings
+    travel in the model file): `TokenizerFit.as_dict`, without examples (the header shows the
+    count and the most frequent tokens; `check` lists the lines)."""
+    settings = replace(config.tokenizer, max_sentence_tokens=config.data.max_sentence_tokens)
+
+    def offsets(text: str) -> list[tuple[int, int]]:
+        return [(token.start, token.end) for token in tokenize(text, settings)]
+
+    fit = TokenizerFit(offsets, limit=0)
+    for sentence in sentences:
+        # Sentences made in memory have no line numbers; none is shown here anyway.
+        fit.add(sentence.tokens, sentence.line_numbers or (0,) * len(sentence))
+    return fit.as_dict()
 
 
 def data_warnings(data: PreparedData) -> list[str]:

@@ -48,6 +48,7 @@ def check_named_files(config: Config, data_files: bool = True) -> None:
         named += [(config.data.train, "training file"), (config.data.dev, "dev file")]
     named += [(path, "lexicon") for path in config.model.lexicons]
     named.append((config.model.pretrained_vectors, "word vectors file"))
+    named.append((config.model.char_lm, "character language model file"))
     for path, what in named:
         if path:
             check_readable(path, what)

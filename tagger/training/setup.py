@@ -8,6 +8,7 @@ from __future__ import annotations
 
 from collections import Counter
 from dataclasses import dataclass
+from typing import Any
 
 import numpy as np
 import torch
@@ -16,6 +17,7 @@ from tagger.config import Config, VectorUse
 from tagger.data.schemes import labels_for_types, spans_to_tags
 from tagger.errors import ConfigError, DataError
 from tagger.network.batching import EncodedSentence, encode_sentence
+from tagger.network.char_lm import CharLanguageModel
 from tagger.network.net import TaggerNet, build_net
 from tagger.reports.layout import number
 from tagger.text.features import FeatureSpec, build_features, check_columns
@@ -26,6 +28,7 @@ from tagger.text.vocab import Vocabularies, build_vocabularies
 from tagger.training.averaging import new_average
 from tagger.training.data import PreparedData, prepare_data
 from tagger.training.step import RareItems, StepTools
+from tagger.unannotated.char_lm_file import load_char_lm
 from tagger.unannotated.vectors_file import is_vectors_file, load_vectors
 
 
@@ -42,6 +45,7 @@ class TrainingSetup:
     value_counts: list[Counter[str]]
     vectors: SubwordVectors | None  # model.pretrained_vectors, read
     tokenizer: TokenizerSettings
+    char_lm: CharLanguageModel | None = None  # model.char_lm, read
 
 
 def prepare_training(config: Config) -> TrainingSetup:
@@ -70,6 +74,9 @@ def setup_training(config: Config, data: PreparedData) -> TrainingSetup:
     )
     if vectors is not None and use != VectorUse.INITIALISE:
         vocabs.subwords = vectors.index(config.model.vector_words)
+    char_lm = read_char_lm(config.model.char_lm, settings)
+    if char_lm is not None:
+        vocabs.char_lm = char_lm.spec
     features, value_counts = build_features(config.model, data.train, data.train_source, settings)
     if features is not None:
         check_columns(features, data.dev, data.dev_source)
@@ -83,7 +90,16 @@ def setup_training(config: Config, data: PreparedData) -> TrainingSetup:
         for s, spans in zip(data.train, data.train_spans, strict=True)
     ]
     return TrainingSetup(
-        data, types, vocabs, features, encoded, word_counts, value_counts, vectors, settings
+        data,
+        types,
+        vocabs,
+        features,
+        encoded,
+        word_counts,
+        value_counts,
+        vectors,
+        settings,
+        char_lm,
     )
 
 
@@ -116,22 +132,38 @@ def read_pretrained(path: str, tokenizer: TokenizerSettings) -> SubwordVectors |
         no_ngrams = SubwordSettings(buckets=0)
         return SubwordVectors(words, [1] * len(words), matrix, empty, no_ngrams, {})
     vectors = load_vectors(path)
-    ours = {k: v for k, v in tokenizer.to_dict().items() if k != "max_sentence_tokens"}
-    for key, value in ours.items():
-        if vectors.tokenizer.get(key) != value:
+    _same_tokenizer(vectors.tokenizer, tokenizer, path, "word vectors", "learn-vectors")
+    return vectors
+
+
+def read_char_lm(path: str, tokenizer: TokenizerSettings) -> CharLanguageModel | None:
+    """model.char_lm, learnt with the same tokenizer settings; None when the config names none."""
+    if not path:
+        return None
+    model, meta, _ = load_char_lm(path)
+    _same_tokenizer(meta["tokenizer"], tokenizer, path, "character language model", "learn-char-lm")
+    return model
+
+
+def _same_tokenizer(
+    stored: dict[str, Any], tokenizer: TokenizerSettings, path: str, what: str, command: str
+) -> None:
+    for key, value in tokenizer.to_dict().items():
+        if key != "max_sentence_tokens" and stored.get(key) != value:
             raise DataError(
-                f"the word vectors were learnt with tokenizer setting {key} = "
-                f"{vectors.tokenizer.get(key)!r}, the config has {value!r}: learn them again "
-                "with this config (learn-vectors --config) or change [tokenizer]",
+                f"the {what} was learnt with tokenizer setting {key} = {stored.get(key)!r}, the "
+                f"config has {value!r}: learn it again with this config ({command} --config) or "
+                "change [tokenizer]",
                 path,
             )
-    return vectors
 
 
 def new_network(config: Config, setup: TrainingSetup) -> tuple[TaggerNet, str | None]:
     """A freshly initialised network (from torch's global generator) with the pretrained vectors
     in it; and a note saying what they reach (None without vectors)."""
     net = build_net(config, setup.vocabs, setup.features)
+    if setup.char_lm is not None and net.char_lm is not None:
+        net.char_lm.model.load_state_dict(setup.char_lm.state_dict())
     vectors = setup.vectors
     if vectors is None:
         return net, None

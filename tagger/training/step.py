@@ -93,7 +93,12 @@ def forward(tools: StepTools, work: StepWork) -> None:
     batch = work.batch
     assert work.words is not None, "read_rare_as_unknown runs first"
     emissions = tools.net.emissions(
-        work.words, batch.chars, batch.lengths, features=work.features, fixed=batch.bags
+        work.words,
+        batch.chars,
+        batch.lengths,
+        features=work.features,
+        fixed=batch.bags,
+        lm=batch.lm,
     )
     assert batch.labels is not None, "a training batch has labels"
     work.loss = tools.net.loss(emissions, batch.labels, batch.mask)

@@ -14,6 +14,7 @@ from pathlib import Path
 from tagger.apply.documents import STDIO, Skipped, read_documents
 from tagger.apply.plaintext import document_sentences
 from tagger.data.atomic import atomic_output
+from tagger.reports.notes import RepeatedNotes
 from tagger.text.tokenizer import TokenizerSettings
 
 
@@ -22,7 +23,7 @@ def raw_sentences(
     settings: TokenizerSettings,
     input_format: str = "auto",
     token_column: int = 0,
-    notes: list[str] | None = None,
+    notes: RepeatedNotes | None = None,
 ) -> Iterator[list[str]]:
     """The tokens of each sentence, input after input; the first unreadable item is a DataError
     naming its file and line (raw text is meant to be read whole, not skipped through). Remarks

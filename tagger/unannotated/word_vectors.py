@@ -20,6 +20,7 @@ from typing import Any
 import numpy as np
 
 from tagger.errors import ConfigError, DataError
+from tagger.reports.notes import RepeatedNotes
 from tagger.text.subword import SubwordSettings, SubwordVectors
 from tagger.text.tokenizer import TokenizerSettings
 from tagger.unannotated.raw_text import raw_sentences, write_sentence_lines
@@ -82,9 +83,12 @@ def learn_word_vectors(
     names = ", ".join(str(p) for p in inputs) or "<stdin>"
     with tempfile.TemporaryDirectory(prefix="tagger-vectors-") as folder:
         corpus = Path(folder) / "sentences.txt"
-        sentences = raw_sentences(inputs, tokenizer, input_format, token_column, notes)
+        repeated = RepeatedNotes()
+        sentences = raw_sentences(inputs, tokenizer, input_format, token_column, repeated)
         keys = SubwordSettings(lowercase=settings.lowercase, digits_to_zero=settings.digits_to_zero)
         size = write_sentence_lines(([keys.key(t) for t in s] for s in sentences), corpus)
+        if notes is not None:
+            notes.extend(repeated.lines())
         if size.tokens == 0:
             raise DataError("no words to learn from: the input holds no tokens", names)
         report({"event": "read", "sentences": size.sentences, "tokens": size.tokens})
