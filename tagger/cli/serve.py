@@ -80,12 +80,12 @@ def serve(
         from tagger.serve.app import Service
         from tagger.serve.server import bind, is_loopback, server_for
 
-        sock = bind(host, port)
         tagger = Tagger.load(model, threads=threads or None)
         for note in tagger.notes:
             say(f"note: {note}")
         if tagger.features is not None and tagger.features.needs_columns:
             raise tagger.features.refusal(str(model))
+        sock = bind(host, port)
         service = Service(tagger, model, settings, access_log=_access_line if access_log else None)
 
     def listening(url: str) -> None:
