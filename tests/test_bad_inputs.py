@@ -156,6 +156,12 @@ ROWS: list[tuple[str, int, str, str]] = [
     ("check {gold.txt} --model {truncated.tagger}", 1, "is truncated", "truncated.tagger"),
     ("tag {gold.txt} {gold.txt} -o {out}", 1, "not a tagger model file", "gold.txt"),
     ("train --config {model.tagger}", 1, "not a TOML config file", "model.tagger"),
+    # serving a model: refused before listening
+    ("serve {missing} --port 0", 2, "MODEL: file", "missing"),
+    ("serve {folder} --port 0", 2, "MODEL: file", "folder"),
+    ("serve {pickle.tagger} --port 0", 1, "looks like a pickle", "pickle.tagger"),
+    ("serve {truncated.tagger} --port 0", 1, "is truncated", "truncated.tagger"),
+    ("serve {gold.txt} --port 0", 1, "not a tagger model file", "gold.txt"),
     # learning from unannotated text
     ("learn-vectors {empty.txt} -o {out}", 1, "no words to learn from", "empty.txt"),
     ("learn-vectors {binary.txt} -o {out}", 1, "UTF-8", "binary.txt"),

@@ -525,6 +525,7 @@ COMMANDS = [
     "tokenize",
     "learn-vectors",
     "learn-char-lm",
+    "serve",
 ]
 PYTHON_TYPES = ("<bool>", "<list[", "<str>", "<int", "<float>", "<path>", "<file>", "{")
 

@@ -27,6 +27,7 @@ STAGES = [
     "reports",
     "network",
     "apply",
+    "serve",  # needs apply only
     "unannotated",
     "training",
     "cli",
