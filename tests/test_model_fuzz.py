@@ -136,8 +136,9 @@ def _header_end(data: bytes | bytearray) -> int:
 
 
 def _fix_length(data: bytearray, old_end: int, grown: int) -> None:
-    """After the header grew by `grown` bytes, its length field says so."""
-    data[:8] = (old_end - 8 + grown).to_bytes(8, "little")
+    """After the header grew by `grown` bytes, its length field says so (a file cut shorter than
+    its length field has no header left to measure: its length becomes 0)."""
+    data[:8] = max(0, old_end - 8 + grown).to_bytes(8, "little")
 
 
 @st.composite
