@@ -147,9 +147,7 @@ def pick_sentences(
         Trace(rank, c.score, c.file, c.document, c.start, c.end)
         for rank, c in enumerate(taken, start=1)
     ]
-    picked = [
-        _labelled(tagger, c, trace) for c, trace in zip(taken, traces, strict=True)
-    ]
+    picked = [_labelled(tagger, c, trace) for c, trace in zip(taken, traces, strict=True)]
     return Picked(
         picked,
         traces,
