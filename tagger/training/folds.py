@@ -5,6 +5,9 @@ Where the file marks documents (`-DOCSTART-` lines), every document's sentences 
 wording, so a document split across folds would score its held-out part too high. Without
 documents the sentences are dealt into folds at random (`KFold`, shuffled by the seed). Either
 way every sentence is held out in exactly one fold.
+
+scikit-learn is an optional dependency (the `folds` extra), as only this command needs it; its
+GroupKFold shuffles documents from version 1.6 on.
 """
 
 from __future__ import annotations
@@ -13,7 +16,7 @@ from collections.abc import Sequence
 from dataclasses import dataclass
 
 from tagger.data.corpus import Sentence
-from tagger.errors import DataError
+from tagger.errors import ConfigError, DataError
 
 
 @dataclass(frozen=True)
@@ -40,8 +43,12 @@ def split_folds(sentences: Sequence[Sentence], k: int, seed: int, source: str) -
 
     Raises DataError naming ``source`` when there are fewer documents (or, without documents,
     fewer sentences) than folds: some fold would hold nothing out."""
-    from sklearn.model_selection import GroupKFold, KFold
-
+    try:
+        from sklearn.model_selection import GroupKFold, KFold
+    except ImportError:
+        raise ConfigError(
+            "cross-validation needs scikit-learn: pip install 'tagger[folds]' (or scikit-learn)"
+        ) from None
     if k < 2:
         raise ValueError(f"k must be at least 2, not {k}")
     groups = [s.document for s in sentences]
