@@ -8,6 +8,10 @@ import pytest
 from tagger.text.near_duplicates import DistinctPicker, shingles, similarity
 
 
+def _words(text: str) -> list[str]:
+    return text.split()
+
+
 def test_shingles_of_a_short_sentence_by_hand() -> None:
     # " ab 12 " with digits read as 0: " ab ", "ab 0", "b 00", " 00 "
     assert shingles(["Ab", "12"]) == {" ab ", "ab 0", "b 00", " 00 "}
@@ -23,19 +27,19 @@ def test_similarity_by_hand() -> None:
 
 
 def test_templated_sentences_are_alike_and_unrelated_ones_are_not() -> None:
-    one = shingles("Turbine 13 released to service after gearbox inspection".split())
-    serial = shingles("Turbine 14 released to service after gearbox inspection".split())
-    other = shingles("Blade crack found on the leading edge near the root".split())
+    one = shingles(_words("Turbine 13 released to service after gearbox inspection"))
+    serial = shingles(_words("Turbine 14 released to service after gearbox inspection"))
+    other = shingles(_words("Blade crack found on the leading edge near the root"))
     assert similarity(one, serial) == 1.0  # digits read alike: the serial makes no difference
     assert similarity(one, other) < 0.2
 
 
 def test_picker_keeps_near_duplicates_out_of_the_batch() -> None:
     picker = DistinctPicker(0.7)
-    assert picker.offer("Turbine 13 released to service after gearbox inspection".split())
-    assert not picker.offer("Turbine 7 released to service after the gearbox inspection".split())
-    assert picker.offer("Blade crack found on the leading edge near the root".split())
-    assert not picker.offer("blade crack found on the leading edge near the root .".split())
+    assert picker.offer(_words("Turbine 13 released to service after gearbox inspection"))
+    assert not picker.offer(_words("Turbine 7 released to service after the gearbox inspection"))
+    assert picker.offer(_words("Blade crack found on the leading edge near the root"))
+    assert not picker.offer(_words("blade crack found on the leading edge near the root ."))
 
 
 def test_threshold_one_refuses_only_exact_repeats() -> None:

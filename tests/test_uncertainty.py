@@ -10,13 +10,8 @@ import math
 import pytest
 import torch
 
-from tagger.apply.uncertainty import (
-    LengthNorm,
-    Measure,
-    crf_measures,
-    sentence_scores,
-    token_entropy,
-)
+from tagger.apply.pick_options import LengthNorm, Measure
+from tagger.apply.uncertainty import crf_measures, sentence_scores, token_entropy
 from tagger.network.crf import CRF
 
 LABELS = 3

@@ -22,7 +22,8 @@ from typing import TYPE_CHECKING, Any
 
 from tagger.apply.documents import Document, Skipped, read_documents
 from tagger.apply.engine import CHUNK_CHARS, Analysed, Engine, chunks
-from tagger.apply.uncertainty import LengthNorm, Measure, uncertainties
+from tagger.apply.pick_options import LengthNorm, Measure
+from tagger.apply.uncertainty import uncertainties
 from tagger.data.corpus import Sentence
 from tagger.data.io import input_name
 from tagger.data.pick_trace import Trace

@@ -22,31 +22,16 @@ from __future__ import annotations
 import math
 from collections.abc import Sequence
 from dataclasses import dataclass
-from enum import StrEnum
 from typing import TYPE_CHECKING
 
 import torch
 
+from tagger.apply.pick_options import LengthNorm, Measure
 from tagger.apply.predict import emission_batches, label_probabilities, tempered_crf
 from tagger.network.crf import CRF
 
 if TYPE_CHECKING:
     from tagger.apply.tagger import Rows, Tagger
-
-
-class Measure(StrEnum):
-    """What makes a sentence uncertain (see the module docstring)."""
-
-    LEAST_CONFIDENCE = "least-confidence"
-    ENTROPY = "entropy"
-
-
-class LengthNorm(StrEnum):
-    """How a sentence's length enters its uncertainty (see the module docstring)."""
-
-    NONE = "none"
-    PER_TOKEN = "per-token"
-    SQRT = "sqrt"
 
 
 @dataclass(frozen=True)

@@ -9,7 +9,7 @@ from typing import Annotated, Any
 import typer
 
 from tagger.apply.documents import InputFormat
-from tagger.apply.uncertainty import LengthNorm, Measure
+from tagger.apply.pick_options import LengthNorm, Measure
 from tagger.cli.common import (
     AsJson,
     ModelFile,
@@ -30,7 +30,7 @@ from tagger.text.near_duplicates import THRESHOLD
 @app.command(
     epilog=examples(
         "tagger pick runs/demo/model.tagger pool.txt --count 50 -o next.conll",
-        "tagger pick runs/demo/model.tagger notes.jsonl --length per-token -o next.conll",
+        "tagger pick runs/demo/model.tagger notes.jsonl --length per-token -o n.conll",
     )
 )
 def pick(
@@ -92,9 +92,9 @@ def pick(
     """Pick the pool sentences the model is least sure of, to annotate next.
 
     Each picked sentence is written with the model's labels for correcting, after a
-    '-DOCSTART- picked {...}' line holding its rank, its uncertainty and where it came from
-    (file, document id, character offsets); check and train read the file as it is. The list
-    goes to stderr (or stdout with --json)."""
+    '-DOCSTART- picked' line whose JSON object holds its rank, its uncertainty and where it came
+    from (file, document id, character offsets); check and train read the file as it is. The
+    list goes to stderr (or stdout with --json)."""
     from tagger.apply.picking import pick_sentences
     from tagger.apply.tagger import Tagger
     from tagger.data.corpus import write_columns
