@@ -50,6 +50,7 @@ CONTENTS: dict[str, Callable[[], bytes] | None] = {
     "long.txt": lambda: "".join(f"w{i}\tO\n" for i in range(LONG_SENTENCE)).encode(),
     "long.conll": lambda: "".join(f"w{i}\tO\n" for i in range(LONG_SENTENCE)).encode(),
     "long.text": lambda: " ".join(f"w{i}" for i in range(LONG_SENTENCE)).encode(),
+    "two-documents.txt": lambda: f"-DOCSTART-\n\n{GOLD}-DOCSTART-\n\n{GOLD}".encode(),
     "pickle.tagger": lambda: pickle.dumps({"weights": [1.0, 2.0]}),
     "model.tagger": None,
     "truncated.tagger": None,
@@ -171,7 +172,24 @@ ROWS: list[tuple[str, int, str, str]] = [
     ("learn-char-lm {empty.txt} -o {out}", 1, "no text to learn from", "empty.txt"),
     ("learn-char-lm {binary.txt} -o {out}", 1, "UTF-8", "binary.txt"),
     ("learn-char-lm {nested.jsonl} -o {out}", 1, "nested", "nested.jsonl"),
-]
+    # what to annotate next: a pool with nothing in it, or not readable
+    ("pick {model.tagger} {empty.txt} -o {out}", 1, "the pool holds no sentences", "empty.txt"),
+    ("pick {model.tagger} {latin1.text} -o {out}", 1, "not valid UTF-8", "latin1.text"),
+    ("pick {model.tagger} {array.json} -o {out}", 1, ":1: a JSON array", "array.json"),
+    ("pick {model.tagger} {long.text} -o {out}", 1, "longer than max_sentence_tokens", "long.text"),
+    ("pick {model.tagger} {folder} -o {out}", 2, "a folder, not a file", "folder"),
+    ("pick {model.tagger} {missing} -o {out}", 2, "does not exist", "missing"),
+    ("pick {pickle.tagger} {gold.txt} -o {out}", 1, "looks like a pickle", "pickle.tagger"),
+    # cross-validation: more folds than documents (or sentences), files that cannot be used
+    ("cross-validate --train {two-documents.txt} --folds 3 --out {out}", 1,
+     "3 folds need at least 3 documents", "two-documents.txt"),
+    ("cross-validate --train {gold.txt} --folds 2 --out {out}", 1,
+     "2 folds need at least 2 sentences", "gold.txt"),
+    ("cross-validate --train {empty.txt} --out {out}", 1, "holds no sentences", "empty.txt"),
+    ("cross-validate --train {binary.txt} --out {out}", 1, "are not valid UTF-8", "binary.txt"),
+    ("cross-validate --train {b-dash.txt} --out {out}", 1, "tag 'B-' has no type", "b-dash.txt"),
+    ("cross-validate --train {folder} --out {out}", 2, "--train: file", "folder"),
+]  # fmt: skip
 
 
 def _arguments(row: str, folder: Path, out: Path) -> list[str]:

@@ -526,6 +526,8 @@ COMMANDS = [
     "learn-vectors",
     "learn-char-lm",
     "serve",
+    "pick",
+    "cross-validate",
 ]
 PYTHON_TYPES = ("<bool>", "<list[", "<str>", "<int", "<float>", "<path>", "<file>", "{")
 

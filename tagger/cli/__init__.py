@@ -10,7 +10,14 @@ Each module registers its commands on the one app; none imports torch at import 
 `tagger check` and `tagger score` start fast.
 """
 
-from tagger.cli import files, model, serve, tagging, unannotated  # noqa: F401  (registers the commands)
+from tagger.cli import (  # noqa: F401  (registers the commands)
+    annotation,
+    files,
+    model,
+    serve,
+    tagging,
+    unannotated,
+)
 from tagger.cli.common import app
 
 __all__ = ["app"]
