@@ -1,9 +1,10 @@
-"""Commands that learn from unannotated text: learn-vectors."""
+"""Commands that learn from unannotated text: learn-vectors, learn-char-lm."""
 
 from __future__ import annotations
 
 import sys
 import time
+from collections.abc import Callable
 from pathlib import Path
 from typing import Annotated, Any
 
@@ -16,21 +17,40 @@ from tagger.cli.progress import duration
 from tagger.cli.tagging import _document_inputs
 from tagger.reports.layout import count, number
 
+RawInputs = Annotated[
+    list[Path] | None,
+    typer.Argument(
+        help="Unannotated text, lines, jsonl or column files (.gz too); '-' or none reads "
+        "standard input."
+    ),
+]
+TokenizerConfig = Annotated[
+    Path | None,
+    typer.Option(
+        "--config",
+        exists=True,
+        dir_okay=False,
+        help="The training config: its [tokenizer] settings cut the text as tagging will.",
+    ),
+]
+RawInputFormat = Annotated[InputFormat, typer.Option(help="How to read the inputs, as for tag.")]
 
-class VectorsProgress:
-    """A live line on a terminal (share done, words/s, time left); nothing otherwise."""
 
-    def __init__(self) -> None:
+class LearningProgress:
+    """The "read" event as a line; then, on a terminal only, a live line of the share done, the
+    speed and the time left (`speed` turns an event into its speed and details)."""
+
+    def __init__(
+        self, read: Callable[[dict[str, Any]], str], speed: Callable[[dict[str, Any]], str]
+    ) -> None:
         self.live = sys.stderr.isatty()
         self.last_draw = 0.0
+        self.read, self.speed = read, speed
 
     def __call__(self, event: dict[str, Any]) -> None:
         if event["event"] == "read":
-            say(
-                f"read {count(event['sentences'], 'sentence')}, {count(event['tokens'], 'token')}; "
-                "learning vectors"
-            )
-        elif event["event"] == "progress" and self.live:
+            say(self.read(event))
+        elif event["event"] in ("progress", "batch") and self.live:
             if time.monotonic() - self.last_draw < 0.2 and event["done"] < 1:
                 return
             self.last_draw = time.monotonic()
@@ -39,13 +59,36 @@ class VectorsProgress:
             bar = "#" * int(20 * done)
             sys.stderr.write(
                 f"\r\033[K[{bar:<20}] epoch {event['epoch']}/{event['epochs']}  "
-                f"{event['words_per_second']:,.0f} words/s  about {duration(left)} left"
+                f"{self.speed(event)}  about {duration(left)} left"
             )
             sys.stderr.flush()
 
     def clear(self) -> None:
         if self.live:
             sys.stderr.write("\r\033[K")
+
+
+def vectors_progress() -> LearningProgress:
+    return LearningProgress(
+        lambda e: (
+            f"read {count(e['sentences'], 'sentence')}, {count(e['tokens'], 'token')}; "
+            "learning vectors"
+        ),
+        lambda e: f"{number(round(e['words_per_second']))} words/s",
+    )
+
+
+def char_lm_progress() -> LearningProgress:
+    return LearningProgress(
+        lambda e: (
+            f"read {count(e['sentences'], 'sentence')}, "
+            f"{count(e['characters'], 'character')} to learn from "
+            f"({count(e['chars_known'], 'distinct character')} kept)"
+        ),
+        lambda e: (
+            f"loss/char {e['loss_per_char']:.3f}  {number(round(e['chars_per_second']))} chars/s"
+        ),
+    )
 
 
 @app.command(
@@ -56,13 +99,7 @@ class VectorsProgress:
     ),
 )
 def learn_vectors(
-    inputs: Annotated[
-        list[Path] | None,
-        typer.Argument(
-            help="Unannotated text, lines, jsonl or column files (.gz too); '-' or none reads "
-            "standard input."
-        ),
-    ] = None,
+    inputs: RawInputs = None,
     out: Annotated[
         Path,
         typer.Option(
@@ -73,18 +110,8 @@ def learn_vectors(
             "text format goes beside it (.txt added).",
         ),
     ] = Path("vectors.tagvec"),
-    config_path: Annotated[
-        Path | None,
-        typer.Option(
-            "--config",
-            exists=True,
-            dir_okay=False,
-            help="The training config: its [tokenizer] settings cut the text as tagging will.",
-        ),
-    ] = None,
-    input_format: Annotated[
-        InputFormat, typer.Option(help="How to read the inputs, as for tag.")
-    ] = InputFormat.AUTO,
+    config_path: TokenizerConfig = None,
+    input_format: RawInputFormat = InputFormat.AUTO,
     token_column: TokenColumn = 0,
     dim: Annotated[int, typer.Option(min=1, help="Numbers per vector.")] = 100,
     window: Annotated[int, typer.Option(min=1, help="Context words on each side.")] = 5,
@@ -108,7 +135,7 @@ def learn_vectors(
     text_out = Path(f"{out}.txt")
     usable_output(out, names or ["-"])
     usable_output(text_out, names or ["-"])
-    progress = VectorsProgress()
+    progress = vectors_progress()
     with domain_errors():
         config = load_config(config_path)
         settings = VectorSettings(
@@ -143,39 +170,6 @@ def learn_vectors(
     )
 
 
-class CharLMProgress:
-    """A live line on a terminal (share done, characters/s, loss, time left); nothing otherwise."""
-
-    def __init__(self) -> None:
-        self.live = sys.stderr.isatty()
-        self.last_draw = 0.0
-
-    def __call__(self, event: dict[str, Any]) -> None:
-        if event["event"] == "read":
-            say(
-                f"read {count(event['sentences'], 'sentence')}, "
-                f"{count(event['characters'], 'character')} to learn from "
-                f"({count(event['chars_known'], 'distinct character')} kept)"
-            )
-        elif event["event"] == "batch" and self.live:
-            if time.monotonic() - self.last_draw < 0.2:
-                return
-            self.last_draw = time.monotonic()
-            done, seconds = event["done"], event["seconds"]
-            left = seconds * (1 - done) / done if done > 0 else 0.0
-            bar = "#" * int(20 * done)
-            sys.stderr.write(
-                f"\r\033[K[{bar:<20}] epoch {event['epoch']}/{event['epochs']}  "
-                f"loss/char {event['loss_per_char']:.3f}  "
-                f"{event['chars_per_second']:,.0f} chars/s  about {duration(left)} left"
-            )
-            sys.stderr.flush()
-
-    def clear(self) -> None:
-        if self.live:
-            sys.stderr.write("\r\033[K")
-
-
 @app.command(
     "learn-char-lm",
     epilog=examples(
@@ -184,13 +178,7 @@ class CharLMProgress:
     ),
 )
 def learn_char_lm(
-    inputs: Annotated[
-        list[Path] | None,
-        typer.Argument(
-            help="Unannotated text, lines, jsonl or column files (.gz too); '-' or none reads "
-            "standard input."
-        ),
-    ] = None,
+    inputs: RawInputs = None,
     out: Annotated[
         Path,
         typer.Option(
@@ -200,18 +188,8 @@ def learn_char_lm(
             help="The model file a config names as model.char_lm; its resume state is OUT.resume.",
         ),
     ] = Path("chars.tagclm"),
-    config_path: Annotated[
-        Path | None,
-        typer.Option(
-            "--config",
-            exists=True,
-            dir_okay=False,
-            help="The training config: its [tokenizer] settings cut the text as tagging will.",
-        ),
-    ] = None,
-    input_format: Annotated[
-        InputFormat, typer.Option(help="How to read the inputs, as for tag.")
-    ] = InputFormat.AUTO,
+    config_path: TokenizerConfig = None,
+    input_format: RawInputFormat = InputFormat.AUTO,
     token_column: TokenColumn = 0,
     hidden_size: Annotated[int, typer.Option(min=1, help="Units per direction.")] = 256,
     layers: Annotated[int, typer.Option(min=1, help="Residual layers per direction.")] = 1,
@@ -235,7 +213,7 @@ def learn_char_lm(
 
     names = _document_inputs(inputs)
     usable_output(out, names or ["-"])
-    progress = CharLMProgress()
+    progress = char_lm_progress()
     with domain_errors():
         config = load_config(config_path)
         settings = CharLMSettings(

@@ -18,11 +18,12 @@ from typing import Any
 
 import torch
 
-from tagger.errors import DataError, ModelFileError
+from tagger.errors import DataError
 from tagger.network.cells import CELL_KINDS
 from tagger.network.char_lm import CharLanguageModel
-from tagger.network.modelfile import load_model_file, save_model_file
+from tagger.network.modelfile import save_model_file
 from tagger.text.char_context import CharLMSpec
+from tagger.unannotated.container import read_container
 
 KIND = "char-language-model"
 RESUME_KIND = "char-language-model-resume-state"
@@ -57,11 +58,7 @@ def load_char_lm(
     """The model, the file's metadata, and tensors beyond the model's (the resume state's
     random generator state). Every problem is a one-line DataError naming the file."""
     name = str(path)
-    try:
-        tensors, meta = load_model_file(path)
-    except ModelFileError as error:
-        detail = str(error).removeprefix(f"{name}: ").replace("model file", "file")
-        raise DataError(f"not a readable character language model file: {detail}", name) from None
+    tensors, meta = read_container(path, "character language model file")
     wanted = RESUME_KIND if resume_state else KIND
     if meta.get("kind") != wanted:
         what = "resume state" if resume_state else "character language model file"

@@ -23,9 +23,10 @@ import numpy as np
 import torch
 
 from tagger.data.atomic import atomic_output
-from tagger.errors import DataError, ModelFileError
-from tagger.network.modelfile import load_model_file, save_model_file
+from tagger.errors import DataError
+from tagger.network.modelfile import save_model_file
 from tagger.text.subword import SubwordSettings, SubwordVectors
+from tagger.unannotated.container import read_container
 
 KIND = "word-vectors"
 MAX_N = 32  # n-grams longer than this help nothing and cost a lot
@@ -70,11 +71,7 @@ def is_vectors_file(path: str | Path) -> bool:
 def load_vectors(path: str | Path) -> SubwordVectors:
     """Read and check a vectors file; every problem is a one-line DataError naming it."""
     name = str(path)
-    try:
-        tensors, meta = load_model_file(path)
-    except ModelFileError as error:
-        detail = str(error).removeprefix(f"{name}: ").replace("model file", "file")
-        raise DataError(f"not a readable word vectors file: {detail}", name) from None
+    tensors, meta = read_container(path, "word vectors file")
     if meta.get("kind") != KIND:
         raise DataError("a tagger model file, not a word vectors file", name)
 
