@@ -554,6 +554,7 @@ COMMANDS = [
     "serve",
     "pick",
     "cross-validate",
+    "learning-curve",
 ]
 PYTHON_TYPES = ("<bool>", "<list[", "<str>", "<int", "<float>", "<path>", "<file>", "{")
 
