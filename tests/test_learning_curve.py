@@ -136,3 +136,30 @@ def test_without_dev_or_a_file_to_score_on_the_command_says_what_to_give(tmp_pat
 def test_shares_that_are_not_numbers_are_a_usage_error(tmp_path: Path) -> None:
     code, _, stderr = _curve(tmp_path, "--shares", "10,lots", "--out", str(tmp_path / "o"))
     assert code == 2 and "expected numbers separated by commas" in stderr
+
+
+def test_the_table_puts_each_seed_in_a_column_beside_the_curve() -> None:
+    from tagger.reports.annotation import format_learning_curve
+
+    def point(fraction: float, seed: int, sentences: int, f1: float) -> dict:
+        return {"fraction": fraction, "seed": seed, "sentences": sentences, "f1": f1}
+
+    result = {
+        "training_file": "train.txt",
+        "scored_file": "dev.txt",
+        "training_sentences": 400,
+        "points": [point(0.25, 1, 100, 0.5), point(0.25, 2, 100, 0.54), point(1.0, 1, 400, 0.7)],
+        "fit": {"a": 0.9, "b": 4.0, "c": 0.5, "sse": 0.0},
+        "answer": "Doubling the annotation from 400 to 800 sentences is expected to ...",
+        "warnings": [
+            "25% (100 sentences, seed 2) holds no example of DEF: its F1 on that type is 0"
+        ],
+    }
+    lines = format_learning_curve(result).splitlines()
+    assert lines[2].split() == ["share", "of", "train", "sentences", "F1", "%", "seed", "1",
+                                "F1", "%", "seed", "2", "curve", "%"]  # fmt: skip
+    # the curve at 100 sentences: 0.9 - 4 / 10 = 0.5; at 400: 0.9 - 4 / 20 = 0.7
+    assert lines[4].split() == ["25%", "100", "50.00", "54.00", "50.00"]
+    assert lines[5].split() == ["100%", "400", "70.00", "-", "70.00"]
+    text = "\n".join(lines)
+    assert "answer       Doubling the annotation" in text and "warning      25% (100" in text
