@@ -80,8 +80,9 @@ def test_a_tiny_curve_trains_a_model_a_share_scores_them_and_answers(tmp_path: P
     out = tmp_path / "curve"
     # train.seed 5: the shuffle leaves the one DEF sentence out of the 30 % and 60 % shares
     code, stdout, stderr = _curve(
-        tmp_path, "--shares", "30,60,100", "--set", "train.seed=5", "--out", str(out), "--json"
-    )
+        tmp_path, "--shares", "30,60,100", "--set", "train.seed=5", "--out", str(out), "--json",
+        "--html", str(tmp_path / "curve.html"),
+    )  # fmt: skip
     assert code == 0, stderr
     result = json.loads(stdout)
     assert json.loads((out / SUMMARY_NAME).read_text(encoding="utf-8")) == result
@@ -106,6 +107,8 @@ def test_a_tiny_curve_trains_a_model_a_share_scores_them_and_answers(tmp_path: P
     assert len(expected) == 2
     assert [w.split(":")[0] for w in result["warnings"] if "DEF" in w] == expected
     assert "span F1" in stderr  # each model's score as it finishes
+    page = (tmp_path / "curve.html").read_text(encoding="utf-8")
+    assert result["answer"] in page and 'data-chart="learning-curve"' in page
 
 
 @pytest.mark.slow

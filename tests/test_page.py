@@ -234,3 +234,56 @@ def test_run_epochs_says_why_there_is_no_curve(
         (tmp_path / EPOCHS_NAME).write_text(content, encoding="utf-8")
     rows, note = run_epochs(tmp_path / "model.tagger")
     assert rows is None and said in note
+
+
+# --- the learning curve's page ----------------------------------------------------------------
+
+CURVE_RESULT = {
+    "training_file": "train<1>.txt",
+    "scored_file": "dev.txt",
+    "training_sentences": 400,
+    "points": [
+        {"fraction": f, "seed": s, "sentences": n, "f1": 0.9 - 4.0 * n**-0.5, "best_epoch": 2}
+        for f, n in ((0.25, 100), (0.5, 200), (1.0, 400))
+        for s in (1, 2)
+    ],
+    "fit": {"a": 0.9, "b": 4.0, "c": 0.5, "sse": 0.0},
+    "doubling": {"sentences": 400, "now": 0.7, "doubled": 0.9 - 4.0 * 800**-0.5,
+                 "low": 0.03, "high": 0.09, "level": 0.95, "resamples": 100},
+    "answer": "Doubling the annotation from 400 to 800 sentences is expected to ...",
+    "warnings": ["25% (100 sentences, seed 2) holds no example of <DEF>"],
+}  # fmt: skip
+
+
+def test_the_learning_curve_chart_puts_points_curve_and_doubling_where_they_belong() -> None:
+    chart = charts.learning_curve_chart(
+        CURVE_RESULT["points"], CURVE_RESULT["fit"], CURVE_RESULT["doubling"]
+    )
+    left, width, top, height = 50, charts.PLOT_WIDTH + 40, 10, 220  # the chart's plot area
+    seeds = [m for m in chart.marks if m["colour"] == charts.ORANGE]
+    assert len(seeds) == 6 and {m["marker"] for m in seeds} == {"circle", "square"}
+    # the model of 400 sentences (F1 0.7) sits half-way along an axis that ends at 800
+    at_400 = [m for m in seeds if m["x"] == pytest.approx(left + width / 2)]
+    assert len(at_400) == 2 and at_400[0]["y"] == pytest.approx(top + 0.3 * height)
+    # the fitted curve: solid up to 400 sentences, dashed from there to 800
+    solid, dashed = chart.paths
+    assert not solid["dashed"] and dashed["dashed"]
+    assert solid["d"].split(" L")[-1] == dashed["d"][1:].split(" L")[0]
+    # the interval at 800 runs from 0.7 + 0.03 to 0.7 + 0.09
+    (interval,) = [line for line in chart.lines if line["kind"] == "interval"]
+    assert interval["x1"] == pytest.approx(left + width)
+    ys = sorted((interval["y1"], interval["y2"]))
+    assert ys == pytest.approx([top + (1 - 0.79) * height, top + (1 - 0.73) * height])
+    assert len(chart.legend) == 5
+
+
+def test_the_learning_curve_page_answers_first_and_escapes_file_names() -> None:
+    from tagger.reports.page import learning_curve_page
+
+    page = learning_curve_page(CURVE_RESULT)
+    assert page.index("Doubling the annotation") < page.index('data-chart="learning-curve"')
+    assert "train&lt;1&gt;.txt" in page and "&lt;DEF&gt;" in page and "<DEF>" not in page
+    assert page.count("<tr><th>") == 1 + 6  # the header row, a row a model
+    assert "http" not in page and "<script" not in page
+    empty = learning_curve_page({**CURVE_RESULT, "points": [], "fit": None, "doubling": None})
+    assert "No model was trained" in empty and 'data-chart="learning-curve"' not in empty

@@ -137,3 +137,36 @@ def test_the_console_check_sees_a_page_that_fails(tmp_path: Path) -> None:
     )
     shown = _browse(broken, tmp_path / "profile", "--dump-dom")
     assert any("undefinedCall" in message for message in _console(shown.stderr))
+
+
+@needs_browser
+def test_the_learning_curve_page_loads_with_its_chart_and_table(tmp_path: Path) -> None:
+    from tagger.reports.page import learning_curve_page
+
+    points = [
+        {"fraction": f, "seed": 1, "sentences": n, "f1": 0.9 - 4.0 * n**-0.5, "best_epoch": 3}
+        for f, n in ((0.1, 100), (0.4, 400), (1.0, 1000))
+    ]
+    result = {
+        "training_file": "train.txt",
+        "scored_file": "dev.txt",
+        "training_sentences": 1000,
+        "points": points,
+        "fit": {"a": 0.9, "b": 4.0, "c": 0.5, "sse": 0.0},
+        "doubling": {"sentences": 1000, "now": 0.77, "doubled": 0.81, "low": 0.02,
+                     "high": 0.06, "level": 0.95, "resamples": 100},
+        "answer": "Doubling the annotation from 1,000 to 2,000 sentences is expected to ...",
+        "warnings": [],
+    }  # fmt: skip
+    page = tmp_path / "curve.html"
+    page.write_text(learning_curve_page(result), encoding="utf-8")
+    shown = _browse(page, tmp_path / "profile", "--dump-dom")
+    assert shown.returncode == 0, shown.stderr[-2000:]
+    assert _console(shown.stderr) == []
+    assert len(re.findall(r"<tr><th>\d+%</th>", shown.stdout)) == 3
+    chart = re.search(r'data-chart="learning-curve">(.*?)</figure>', shown.stdout, re.S)
+    assert (
+        chart is not None and "<path" in chart.group(1) and '<ul class="legend">' in chart.group(1)
+    )
+    taken = _browse(page, tmp_path / "profile", f"--screenshot={tmp_path / 'curve.png'}")
+    assert taken.returncode == 0 and (tmp_path / "curve.png").read_bytes()[:4] == b"\x89PNG"

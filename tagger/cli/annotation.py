@@ -306,6 +306,14 @@ def learning_curve(
         bool,
         typer.Option("--overwrite", help="Replace the runs OUT already holds."),
     ] = False,
+    html: Annotated[
+        Path | None,
+        typer.Option(
+            "--html",
+            dir_okay=False,
+            help="Also write the curve as one self-contained web page here.",
+        ),
+    ] = None,
     as_json: AsJson = False,
 ) -> None:
     """Train on growing shares of the training file, score each model, fit a learning curve
@@ -314,11 +322,16 @@ def learning_curve(
     Each seed shuffles the sentences once and every share takes the start of that shuffle, so
     a larger share holds the smaller ones."""
     from tagger.config import apply_overrides, load_config, resolve_paths
+    from tagger.data.atomic import atomic_output
     from tagger.reports.annotation import format_learning_curve
+    from tagger.reports.page import learning_curve_page, require_report_extra
     from tagger.training.learning_curve import learning_curve as run
 
     fractions = _fractions(shares)
+    usable_output(html, [path for path in (config_path, train_file, dev_file, score_on) if path])
     with domain_errors():
+        if html is not None:
+            require_report_extra()
         config = load_config(config_path)
         extra = list(overrides or [])
         if train_file is not None:
@@ -349,6 +362,9 @@ def learning_curve(
     files = [name for name in (config.data.train, config.data.dev, score_on) if name]
     with domain_errors(column_files=files):
         result = run(config, out, fractions, seeds, jobs, score_on, progress, done, overwrite)
+        if html is not None:
+            with atomic_output(html) as page:
+                page.write(learning_curve_page(result))
     if as_json:
         print_json(result)
     else:

@@ -278,3 +278,100 @@ def training_curve(history: Sequence[Mapping[str, Any]]) -> Chart:
 def _epoch_ticks(first: int, last: int) -> list[int]:
     step = max(1, -(-(last - first) // 10))
     return list(range(first, last + 1, step))
+
+
+def learning_curve_chart(
+    points: Sequence[Mapping[str, Any]],
+    fit: Mapping[str, float] | None,
+    doubling: Mapping[str, Any] | None,
+) -> Chart:
+    """Each model's span F1 by its training sentences (a marker per seed), the fitted curve
+    (solid where measured, dashed beyond), and what it expects at twice the largest size with
+    its interval."""
+    left, top, plot_height = 50, 10, 220
+    width = PLOT_WIDTH + 40
+    chart = Chart(left + width + 30, top + plot_height + 40)
+    largest = max(int(p["sentences"]) for p in points)
+    right = 2 * largest if doubling else largest
+
+    def x_of(n: float) -> float:
+        return round(left + n / right * width, 2)
+
+    def y_of(value: float) -> float:
+        return round(top + (1 - min(max(value, 0.0), 1.0)) * plot_height, 2)
+
+    for value in (0, 0.25, 0.5, 0.75, 1):
+        y = y_of(value)
+        chart.lines.append({"x1": left, "y1": y, "x2": left + width, "y2": y, "kind": "grid"})
+        chart.texts.append({"x": left - 6, "y": y + 4, "text": f"{value:g}", "anchor": "end"})
+    for n in _count_ticks(right):
+        chart.texts.append(
+            {"x": x_of(n), "y": top + plot_height + 16, "text": f"{n:,}", "anchor": "middle"}
+        )
+    chart.texts.append(
+        {
+            "x": left + width / 2,
+            "y": top + plot_height + 34,
+            "text": "training sentences",
+            "anchor": "middle",
+        }
+    )
+    if fit:
+        smallest = min(int(p["sentences"]) for p in points)
+
+        def curve(n: float) -> float:
+            return fit["a"] - fit["b"] * n ** -fit["c"]
+
+        for start, end, dashed in ((smallest, largest, False), (largest, right, True)):
+            if end <= start:
+                continue
+            steps = [start + (end - start) * k / 40 for k in range(41)]
+            chart.paths.append(
+                {
+                    "d": "M" + " L".join(f"{x_of(n)},{y_of(curve(n))}" for n in steps),
+                    "stroke": BLUE,
+                    "title": "the fitted curve" + (", beyond what was measured" if dashed else ""),
+                    "dashed": dashed,
+                }
+            )
+        chart.legend.append({"label": "fitted curve", "colour": BLUE, "marker": "line"})
+        if doubling:
+            chart.legend.append(
+                {
+                    "label": "the curve beyond the measured sizes",
+                    "colour": BLUE,
+                    "marker": "dashed-line",
+                }
+            )
+    markers = ("circle", "square", "triangle")
+    for index, seed in enumerate(sorted({p["seed"] for p in points})):
+        marker = markers[index % len(markers)]
+        chart.marks.extend(
+            {"x": x_of(p["sentences"]), "y": y_of(p["f1"]), "colour": ORANGE, "marker": marker}
+            for p in points
+            if p["seed"] == seed
+        )
+        chart.legend.append({"label": f"a model, seed {seed}", "colour": ORANGE, "marker": marker})
+    if doubling:
+        x = x_of(2 * largest)
+        now = doubling["now"]
+        chart.lines.append(
+            {
+                "x1": x,
+                "y1": y_of(now + doubling["high"]),
+                "x2": x,
+                "y2": y_of(now + doubling["low"]),
+                "kind": "interval",
+            }
+        )
+        chart.marks.append(
+            {"x": x, "y": y_of(doubling["doubled"]), "colour": VERMILLION, "marker": "square"}
+        )
+        chart.legend.append(
+            {
+                "label": f"expected at twice the sentences, {doubling['level']:.0%} interval",
+                "colour": VERMILLION,
+                "marker": "square",
+            }
+        )
+    return chart

@@ -19,15 +19,17 @@ from tagger.data.io import decode_text, open_input
 from tagger.errors import ConfigError, DataError
 from tagger.reports.charts import (
     confusion_grid,
+    learning_curve_chart,
     outcome_bars,
     score_bars,
     training_curve,
     type_colour,
 )
-from tagger.reports.page_templates import CHART_MACROS, PAGE
+from tagger.reports.page_templates import CHART_MACROS, CURVE_PAGE, PAGE, STYLE
 from tagger.version import package_version
 
 PAGE_TITLE = "How the model did"
+CURVE_TITLE = "Will more annotation pay?"
 EPOCHS_NAME = "epochs.json"  # the run folder's epochs, as training writes them beside the model
 
 
@@ -69,6 +71,42 @@ def _is_epoch(row: Mapping[str, Any]) -> bool:
     )
 
 
+def _template(name: str) -> Any:
+    """One of the pages' templates, autoescaping everything put in it."""
+    require_report_extra()
+    import jinja2
+
+    environment = jinja2.Environment(
+        loader=jinja2.DictLoader(
+            {"page": PAGE, "curve": CURVE_PAGE, "charts": CHART_MACROS, "style": STYLE}
+        ),
+        autoescape=True,
+        undefined=jinja2.StrictUndefined,
+    )
+    return environment.get_template(name)
+
+
+def learning_curve_page(result: Mapping[str, Any]) -> str:
+    """The page for a learning curve (the dict `tagger.training.learning_curve.learning_curve`
+    writes): the one-sentence answer, the points with the fitted curve and what doubling is
+    expected to give, each model, the warnings."""
+    points = sorted(result["points"], key=lambda p: (p["fraction"], p["seed"]))
+    return _template("curve").render(
+        title=CURVE_TITLE,
+        training_file=result["training_file"],
+        training_sentences=f"{result['training_sentences']:,}",
+        scored_file=result["scored_file"],
+        answer=result["answer"],
+        fit=result["fit"],
+        curve_chart=(
+            learning_curve_chart(points, result["fit"], result["doubling"]) if points else None
+        ),
+        points=points,
+        warnings=result["warnings"],
+        version=package_version(),
+    )
+
+
 def evaluation_page(
     result: Mapping[str, Any],
     history: Sequence[Mapping[str, Any]] | None = None,
@@ -78,21 +116,12 @@ def evaluation_page(
     """The page for `tagger.apply.evaluate.evaluate_files`' result (its "worst" list, when
     present, shows the sentences); `history` is the run's epochs, or None with `history_note`
     saying why there are none."""
-    require_report_extra()
-    import jinja2
-
-    environment = jinja2.Environment(
-        loader=jinja2.DictLoader({"page": PAGE, "charts": CHART_MACROS}),
-        autoescape=True,
-        undefined=jinja2.StrictUndefined,
-        trim_blocks=False,
-    )
     overall = result["overall"]
     per_type = overall["per_type"]
     types = list(per_type)
     interval = overall.get("f1_interval")
     confusion = overall.get("type_confusion") or {}
-    return environment.get_template("page").render(
+    return _template("page").render(
         title=PAGE_TITLE,
         files=[entry["file"] for entry in result["files"]],
         sentences=f"{sum(entry['sentences'] for entry in result['files']):,}",

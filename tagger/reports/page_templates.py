@@ -13,6 +13,8 @@ CHART_MACROS = r"""
   <li><svg width="22" height="12" aria-hidden="true">
   {%- if entry.marker == "circle" %}<line x1="1" y1="6" x2="21" y2="6" stroke="{{ entry.colour }}" stroke-width="2"/><circle cx="11" cy="6" r="3.5" fill="{{ entry.colour }}"/>
   {%- elif entry.marker == "triangle" %}<line x1="1" y1="6" x2="21" y2="6" stroke="{{ entry.colour }}" stroke-width="2"/><path d="M11,2 L15,10 L7,10 Z" fill="{{ entry.colour }}"/>
+  {%- elif entry.marker == "line" %}<line x1="1" y1="6" x2="21" y2="6" stroke="{{ entry.colour }}" stroke-width="2"/>
+  {%- elif entry.marker == "dashed-line" %}<line x1="1" y1="6" x2="21" y2="6" stroke="{{ entry.colour }}" stroke-width="2" stroke-dasharray="4,3"/>
   {%- elif entry.marker == "dash" %}<line x1="11" y1="0" x2="11" y2="12" stroke="{{ entry.colour }}" stroke-dasharray="3,2"/>
   {%- elif entry.marker == "pale" %}<rect x="4" y="1" width="14" height="10" fill="{{ entry.colour }}" fill-opacity="0.2" stroke="#999999"/>
   {%- elif entry.marker == "square" and entry.colour == "#ffffff" %}<rect x="4" y="1" width="14" height="10" fill="#ffffff" stroke="#999999"/>
@@ -35,7 +37,7 @@ CHART_MACROS = r"""
 {%- if r.stroke is defined %} stroke="{{ r.stroke }}"{% endif %}><title>{{ r.title }}</title></rect>
 {%- endfor %}
 {%- for p in c.paths %}
-<path d="{{ p.d }}" fill="none" stroke="{{ p.stroke }}" stroke-width="2"><title>{{ p.title }}</title></path>
+<path d="{{ p.d }}" fill="none" stroke="{{ p.stroke }}" stroke-width="2"{% if p.get("dashed") %} stroke-dasharray="5,4"{% endif %}><title>{{ p.title }}</title></path>
 {%- endfor %}
 {%- for m in c.marks %}
 {%- if m.marker == "circle" %}<circle cx="{{ m.x }}" cy="{{ m.y }}" r="3.5" fill="{{ m.colour }}"/>
@@ -60,40 +62,7 @@ PAGE = r"""{% from "charts" import chart, legend %}<!DOCTYPE html>
 <meta charset="utf-8">
 <meta name="viewport" content="width=device-width, initial-scale=1">
 <title>{{ title }}</title>
-<style>
-:root { color-scheme: light; }
-body { font: 15px/1.45 system-ui, sans-serif; color: #1a1a1a; background: #ffffff;
-       max-width: 62rem; margin: 1.5rem auto; padding: 0 1rem; }
-h1 { font-size: 1.5rem; margin-bottom: .2rem; }
-h2 { font-size: 1.15rem; border-bottom: 2px solid #1a1a1a; padding-bottom: .15rem; margin-top: 2rem; }
-.sub { color: #444444; margin-top: 0; }
-.headline { display: flex; gap: 1.5rem; flex-wrap: wrap; margin: 1rem 0; }
-.headline div { border: 1px solid #999999; padding: .4rem .8rem; min-width: 7rem; }
-.headline b { display: block; font-size: 1.4rem; }
-table { border-collapse: collapse; margin: .6rem 0; }
-th, td { padding: .2rem .6rem; border-bottom: 1px solid #cccccc; }
-th { text-align: left; } td.n { text-align: right; font-variant-numeric: tabular-nums; }
-svg text { font: 12px system-ui, sans-serif; fill: #1a1a1a; }
-svg text.small { font-size: 10px; } svg text.light { fill: #ffffff; }
-svg line.grid { stroke: #dddddd; } svg line.best { stroke: #000000; stroke-dasharray: 4,3; }
-figure.chart { margin: .6rem 0 1.2rem; }
-ul.legend { list-style: none; padding: 0; margin: .3rem 0; display: flex; flex-wrap: wrap; gap: .3rem 1.1rem; font-size: 13px; }
-ul.legend li { display: flex; align-items: center; gap: .3rem; }
-.sentence { border-left: 3px solid #999999; padding: .3rem .7rem; margin: .8rem 0; }
-.sentence p { margin: .2rem 0; line-height: 2.1; }
-.where { font-size: 13px; color: #444444; }
-.side { display: inline-block; width: 4.2rem; font-size: 12px; color: #444444; }
-.span { border: 2px solid; border-radius: 3px; padding: 0 .15rem; }
-.span.wrong { border-style: dashed; background: #f4f4f4; }
-.span sub { font-size: 10px; font-weight: 600; margin-left: .15rem; }
-.note { color: #444444; font-style: italic; }
-@media print {
-  body { max-width: none; margin: 0; font-size: 11pt; }
-  section, figure, .sentence, table { break-inside: avoid; }
-  h2 { break-after: avoid; }
-  .span.wrong { background: none; }
-}
-</style>
+{% include "style" %}
 </head>
 <body>
 <header>
@@ -173,6 +142,100 @@ as the type the model gave.</p>
 <p class="note">Every sentence was tagged exactly as in gold.</p>
 {%- endif %}
 </section>
+
+<footer><p class="where">Written by tagger {{ version }}.</p></footer>
+</body>
+</html>
+"""
+
+STYLE = r"""<style>
+:root { color-scheme: light; }
+body { font: 15px/1.45 system-ui, sans-serif; color: #1a1a1a; background: #ffffff;
+       max-width: 62rem; margin: 1.5rem auto; padding: 0 1rem; }
+h1 { font-size: 1.5rem; margin-bottom: .2rem; }
+h2 { font-size: 1.15rem; border-bottom: 2px solid #1a1a1a; padding-bottom: .15rem; margin-top: 2rem; }
+.sub { color: #444444; margin-top: 0; }
+.headline { display: flex; gap: 1.5rem; flex-wrap: wrap; margin: 1rem 0; }
+.headline div { border: 1px solid #999999; padding: .4rem .8rem; min-width: 7rem; }
+.headline b { display: block; font-size: 1.4rem; }
+table { border-collapse: collapse; margin: .6rem 0; }
+th, td { padding: .2rem .6rem; border-bottom: 1px solid #cccccc; }
+th { text-align: left; } td.n { text-align: right; font-variant-numeric: tabular-nums; }
+svg text { font: 12px system-ui, sans-serif; fill: #1a1a1a; }
+svg text.small { font-size: 10px; } svg text.light { fill: #ffffff; }
+svg line.grid { stroke: #dddddd; } svg line.interval { stroke: #D55E00; stroke-width: 2; } svg line.best { stroke: #000000; stroke-dasharray: 4,3; }
+figure.chart { margin: .6rem 0 1.2rem; }
+ul.legend { list-style: none; padding: 0; margin: .3rem 0; display: flex; flex-wrap: wrap; gap: .3rem 1.1rem; font-size: 13px; }
+ul.legend li { display: flex; align-items: center; gap: .3rem; }
+.sentence { border-left: 3px solid #999999; padding: .3rem .7rem; margin: .8rem 0; }
+.sentence p { margin: .2rem 0; line-height: 2.1; }
+.where { font-size: 13px; color: #444444; }
+.side { display: inline-block; width: 4.2rem; font-size: 12px; color: #444444; }
+.span { border: 2px solid; border-radius: 3px; padding: 0 .15rem; }
+.span.wrong { border-style: dashed; background: #f4f4f4; }
+.span sub { font-size: 10px; font-weight: 600; margin-left: .15rem; }
+.note { color: #444444; font-style: italic; }
+@media print {
+  body { max-width: none; margin: 0; font-size: 11pt; }
+  section, figure, .sentence, table { break-inside: avoid; }
+  h2 { break-after: avoid; }
+  .span.wrong { background: none; }
+}
+</style>"""
+
+CURVE_PAGE = r"""{% from "charts" import chart %}<!DOCTYPE html>
+<html lang="en">
+<head>
+<meta charset="utf-8">
+<meta name="viewport" content="width=device-width, initial-scale=1">
+<title>{{ title }}</title>
+{% include "style" %}
+</head>
+<body>
+<header>
+<h1>{{ title }}</h1>
+<p class="sub">{{ training_file }} ({{ training_sentences }} sentences) &middot; each model scored on {{ scored_file }}</p>
+</header>
+
+<section id="answer">
+<h2>The answer</h2>
+<p class="answer">{{ answer }}</p>
+{%- if fit %}
+<p class="where">Fitted curve: F1(n) = {{ "%.3f" | format(fit.a) }} &minus; {{ "%.4g" | format(fit.b) }} &times; n<sup>&minus;{{ "%.3f" | format(fit.c) }}</sup>, n the training sentences.</p>
+{%- endif %}
+</section>
+
+<section id="curve">
+<h2>Span F1 by training sentences</h2>
+{%- if curve_chart %}
+{{ chart(curve_chart, "learning-curve", "Span F1 of each model by its training sentences, with the fitted curve") }}
+{%- else %}
+<p class="note">No model was trained: every share was left out (see the warnings).</p>
+{%- endif %}
+</section>
+
+<section id="points">
+<h2>Each model</h2>
+<table class="points">
+<thead><tr><th>share of train</th><th>seed</th><th>sentences</th><th>span F1</th><th>best epoch</th></tr></thead>
+<tbody>
+{%- for p in points %}
+<tr><th>{{ "{:.0%}".format(p.fraction) }}</th><td class="n">{{ p.seed }}</td><td class="n">{{ "{:,}".format(p.sentences) }}</td><td class="n">{{ "%.3f" | format(p.f1) }}</td><td class="n">{{ p.best_epoch }}</td></tr>
+{%- endfor %}
+</tbody>
+</table>
+</section>
+{%- if warnings %}
+
+<section id="warnings">
+<h2>Warnings</h2>
+<ul>
+{%- for warning in warnings %}
+<li>{{ warning }}</li>
+{%- endfor %}
+</ul>
+</section>
+{%- endif %}
 
 <footer><p class="where">Written by tagger {{ version }}.</p></footer>
 </body>
