@@ -287,3 +287,50 @@ def test_the_learning_curve_page_answers_first_and_escapes_file_names() -> None:
     assert "http" not in page and "<script" not in page
     empty = learning_curve_page({**CURVE_RESULT, "points": [], "fit": None, "doubling": None})
     assert "No model was trained" in empty and 'data-chart="learning-curve"' not in empty
+
+
+# --- the cross-validation page ----------------------------------------------------------------
+
+
+def test_fold_spread_draws_mean_spread_and_each_tested_fold() -> None:
+    from tagger.scoring.folds import summarise_folds
+
+    def scores(f1: dict[str, float]) -> dict:
+        return {
+            "per_type": {t: {"f1": v, "gold": 2} for t, v in f1.items()},
+            "micro": {"f1": sum(f1.values()) / len(f1), "gold": 2 * len(f1)},
+        }
+
+    summary = summarise_folds(
+        [scores({"A": 0.5, "B": 0.8}), scores({"A": 0.7}), scores({"A": 0.9})]
+    )
+    chart = charts.fold_spread({**summary["per_type"], "all": summary["micro"]})
+    bars = {rect["title"].split(":")[0]: rect for rect in chart.rects}
+    assert bars["A"]["width"] == pytest.approx(0.7 * charts.PLOT_WIDTH)
+    (spread_a, spread_all) = [line for line in chart.lines if line["kind"] == "spread"]
+    # A: mean 0.7, sample sd 0.2 (values 0.5, 0.7, 0.9)
+    assert (spread_a["x1"], spread_a["x2"]) == pytest.approx(
+        (charts.LABEL_WIDTH + 0.5 * charts.PLOT_WIDTH, charts.LABEL_WIDTH + 0.9 * charts.PLOT_WIDTH)
+    )
+    # B was tested in one fold only: one dot, a mean, no spread line of its own
+    assert len(chart.marks) == 3 + 1 + 3 and "sd" not in bars["B"]["title"]
+    assert len(chart.legend) == 3
+
+
+def test_the_cross_validation_page_lists_each_type_and_untested_folds_as_dashes() -> None:
+    from tagger.reports.page import cross_validation_page
+
+    entry = {"f1_per_fold": [0.5, None], "mean": 0.5, "sd": None, "min": 0.5, "max": 0.5, "gold": 3}
+    result = {
+        "training_file": "train.txt",
+        "folds": 2,
+        "sentences": 40,
+        "documents": 4,
+        "documents_kept_whole": True,
+        "summary": {"per_type": {"<X>": entry}, "micro": entry, "warnings": ["type <X> ..."]},
+        "notes": [],
+    }
+    page = cross_validation_page(result)
+    assert '<tr><th>&lt;X&gt;</th><td class="n">0.500</td><td class="n">-</td>' in page
+    assert "4 documents, each kept whole in one fold" in page and "<X>" not in page
+    assert 'data-chart="folds"' in page and "<li>type &lt;X&gt; ...</li>" in page

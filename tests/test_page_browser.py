@@ -170,3 +170,40 @@ def test_the_learning_curve_page_loads_with_its_chart_and_table(tmp_path: Path) 
     )
     taken = _browse(page, tmp_path / "profile", f"--screenshot={tmp_path / 'curve.png'}")
     assert taken.returncode == 0 and (tmp_path / "curve.png").read_bytes()[:4] == b"\x89PNG"
+
+
+@needs_browser
+def test_the_cross_validation_page_loads_with_its_chart_and_table(tmp_path: Path) -> None:
+    from tagger.reports.page import cross_validation_page
+
+    def entry(values: list[float | None], gold: int) -> dict:
+        present = [v for v in values if v is not None]
+        mean = sum(present) / len(present)
+        return {"f1_per_fold": values, "mean": mean, "sd": 0.05, "min": min(present),
+                "max": max(present), "gold": gold}  # fmt: skip
+
+    result = {
+        "training_file": "train.txt",
+        "folds": 3,
+        "sentences": 90,
+        "documents": 9,
+        "documents_kept_whole": True,
+        "summary": {
+            "per_type": {"LOC": entry([0.7, 0.8, 0.75], 30), "PER": entry([0.6, None, 0.7], 12)},
+            "micro": entry([0.66, 0.8, 0.72], 42),
+            "warnings": [],
+        },
+        "notes": [],
+    }
+    page = tmp_path / "folds.html"
+    page.write_text(cross_validation_page(result), encoding="utf-8")
+    shown = _browse(page, tmp_path / "profile", "--dump-dom")
+    assert shown.returncode == 0, shown.stderr[-2000:]
+    assert _console(shown.stderr) == []
+    table = re.search(r'<table class="per-type">(.*?)</table>', shown.stdout, re.S)
+    assert table is not None
+    assert re.findall(r"<tr><th>([^<]+)</th>", table.group(1)) == [
+        "type", "LOC", "PER", "all spans pooled",
+    ]  # fmt: skip
+    chart = re.search(r'data-chart="folds">(.*?)</figure>', shown.stdout, re.S)
+    assert chart is not None and "<circle" in chart.group(1) and "<li>" in chart.group(1)

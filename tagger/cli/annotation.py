@@ -192,6 +192,14 @@ def cross_validate(
         bool,
         typer.Option("--overwrite", help="Replace the fold runs OUT already holds."),
     ] = False,
+    html: Annotated[
+        Path | None,
+        typer.Option(
+            "--html",
+            dir_okay=False,
+            help="Also write the folds' scores as one self-contained web page here.",
+        ),
+    ] = None,
     as_json: AsJson = False,
 ) -> None:
     """Cross-validate a config: train k models, each scored on the fold it did not train on.
@@ -199,10 +207,15 @@ def cross_validate(
     Documents (-DOCSTART- lines) stay whole in one fold; without them sentences are dealt at
     random (train.seed). Reports the mean and standard deviation of span F1 per type."""
     from tagger.config import apply_overrides, load_config, resolve_paths
+    from tagger.data.atomic import atomic_output
     from tagger.reports.annotation import format_cross_validation
+    from tagger.reports.page import cross_validation_page, require_report_extra
     from tagger.training.cross_validation import cross_validate as run
 
+    usable_output(html, [path for path in (config_path, train_file) if path])
     with domain_errors():
+        if html is not None:
+            require_report_extra()
         config = load_config(config_path)
         extra = list(overrides or [])
         if train_file is not None:
@@ -222,7 +235,10 @@ def cross_validate(
 
     with domain_errors(column_files=[config.data.train] if config.data.train else []):
         result = run(config, out, folds, progress, overwrite)
-    data = result.to_dict()
+        data = result.to_dict()
+        if html is not None:
+            with atomic_output(html) as page:
+                page.write(cross_validation_page(data))
     if as_json:
         print_json(data)
     else:

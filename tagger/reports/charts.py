@@ -375,3 +375,59 @@ def learning_curve_chart(
             }
         )
     return chart
+
+
+def fold_spread(rows: Mapping[str, Mapping[str, Any]]) -> Chart:
+    """Span F1 over the folds of a cross-validation, a row a type: the mean as a bar, one
+    standard deviation either side as a line, and each fold's F1 as a dot (folds where the type
+    was not tested left out)."""
+    step = 2 * BAR + ROW_GAP
+    top = 8
+    height = top + max(len(rows), 1) * step + 24
+    chart = Chart(LABEL_WIDTH + PLOT_WIDTH + 50, height)
+    for row, (name, entry) in enumerate(rows.items()):
+        y = top + row * step
+        middle = y + BAR
+        chart.texts.append({"x": LABEL_WIDTH - 6, "y": middle + 4, "text": name, "anchor": "end"})
+        mean, sd = entry.get("mean"), entry.get("sd")
+        if mean is None:
+            continue
+        chart.rects.append(
+            {
+                "x": LABEL_WIDTH,
+                "y": y + BAR / 2,
+                "width": round(mean * PLOT_WIDTH, 2),
+                "height": BAR,
+                "fill": SKY_BLUE,
+                "title": f"{name}: mean F1 {mean:.3f}"
+                + (f", sd {sd:.3f}" if sd is not None else ""),
+            }
+        )
+        if sd is not None:
+            low, high = max(mean - sd, 0.0), min(mean + sd, 1.0)
+            chart.lines.append(
+                {
+                    "x1": round(LABEL_WIDTH + low * PLOT_WIDTH, 2),
+                    "y1": middle,
+                    "x2": round(LABEL_WIDTH + high * PLOT_WIDTH, 2),
+                    "y2": middle,
+                    "kind": "spread",
+                }
+            )
+        chart.marks.extend(
+            {
+                "x": round(LABEL_WIDTH + value * PLOT_WIDTH, 2),
+                "y": middle,
+                "colour": VERMILLION,
+                "marker": "circle",
+            }
+            for value in entry["f1_per_fold"]
+            if value is not None
+        )
+    _ticks(chart, top - 4, height - 22, (0, 0.25, 0.5, 0.75, 1), PLOT_WIDTH)
+    chart.legend = [
+        {"label": "mean F1 over the folds", "colour": SKY_BLUE, "marker": "square"},
+        {"label": "one standard deviation either side", "colour": BLACK, "marker": "line"},
+        {"label": "one fold", "colour": VERMILLION, "marker": "dot"},
+    ]
+    return chart

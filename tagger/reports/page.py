@@ -19,17 +19,19 @@ from tagger.data.io import decode_text, open_input
 from tagger.errors import ConfigError, DataError
 from tagger.reports.charts import (
     confusion_grid,
+    fold_spread,
     learning_curve_chart,
     outcome_bars,
     score_bars,
     training_curve,
     type_colour,
 )
-from tagger.reports.page_templates import CHART_MACROS, CURVE_PAGE, PAGE, STYLE
+from tagger.reports.page_templates import CHART_MACROS, CURVE_PAGE, FOLDS_PAGE, PAGE, STYLE
 from tagger.version import package_version
 
 PAGE_TITLE = "How the model did"
 CURVE_TITLE = "Will more annotation pay?"
+FOLDS_TITLE = "How good the model is, fold by fold"
 EPOCHS_NAME = "epochs.json"  # the run folder's epochs, as training writes them beside the model
 
 
@@ -78,7 +80,13 @@ def _template(name: str) -> Any:
 
     environment = jinja2.Environment(
         loader=jinja2.DictLoader(
-            {"page": PAGE, "curve": CURVE_PAGE, "charts": CHART_MACROS, "style": STYLE}
+            {
+                "page": PAGE,
+                "curve": CURVE_PAGE,
+                "folds": FOLDS_PAGE,
+                "charts": CHART_MACROS,
+                "style": STYLE,
+            }
         ),
         autoescape=True,
         undefined=jinja2.StrictUndefined,
@@ -103,6 +111,31 @@ def learning_curve_page(result: Mapping[str, Any]) -> str:
         ),
         points=points,
         warnings=result["warnings"],
+        version=package_version(),
+    )
+
+
+def cross_validation_page(result: Mapping[str, Any]) -> str:
+    """The page for a cross-validation (the dict `CrossValidation.to_dict` writes): span F1 of
+    each type over the folds as a chart and a table, all spans pooled last, then the warnings."""
+    summary = result["summary"]
+    per_type = summary["per_type"]
+    order = sorted(per_type, key=lambda t: (-per_type[t]["gold"], t))
+    rows = {**{t: per_type[t] for t in order}, "all spans pooled": summary["micro"]}
+    how = (
+        f"{result['documents']:,} documents, each kept whole in one fold"
+        if result["documents_kept_whole"]
+        else "sentences dealt at random"
+    )
+    return _template("folds").render(
+        title=FOLDS_TITLE,
+        training_file=result["training_file"],
+        sentences=f"{result['sentences']:,}",
+        k=result["folds"],
+        how=how,
+        rows=rows,
+        spread_chart=fold_spread(rows),
+        warnings=[*result.get("notes", []), *summary["warnings"]],
         version=package_version(),
     )
 

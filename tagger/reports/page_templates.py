@@ -13,6 +13,7 @@ CHART_MACROS = r"""
   <li><svg width="22" height="12" aria-hidden="true">
   {%- if entry.marker == "circle" %}<line x1="1" y1="6" x2="21" y2="6" stroke="{{ entry.colour }}" stroke-width="2"/><circle cx="11" cy="6" r="3.5" fill="{{ entry.colour }}"/>
   {%- elif entry.marker == "triangle" %}<line x1="1" y1="6" x2="21" y2="6" stroke="{{ entry.colour }}" stroke-width="2"/><path d="M11,2 L15,10 L7,10 Z" fill="{{ entry.colour }}"/>
+  {%- elif entry.marker == "dot" %}<circle cx="11" cy="6" r="3.5" fill="{{ entry.colour }}"/>
   {%- elif entry.marker == "line" %}<line x1="1" y1="6" x2="21" y2="6" stroke="{{ entry.colour }}" stroke-width="2"/>
   {%- elif entry.marker == "dashed-line" %}<line x1="1" y1="6" x2="21" y2="6" stroke="{{ entry.colour }}" stroke-width="2" stroke-dasharray="4,3"/>
   {%- elif entry.marker == "dash" %}<line x1="11" y1="0" x2="11" y2="12" stroke="{{ entry.colour }}" stroke-dasharray="3,2"/>
@@ -163,7 +164,8 @@ th, td { padding: .2rem .6rem; border-bottom: 1px solid #cccccc; }
 th { text-align: left; } td.n { text-align: right; font-variant-numeric: tabular-nums; }
 svg text { font: 12px system-ui, sans-serif; fill: #1a1a1a; }
 svg text.small { font-size: 10px; } svg text.light { fill: #ffffff; }
-svg line.grid { stroke: #dddddd; } svg line.interval { stroke: #D55E00; stroke-width: 2; } svg line.best { stroke: #000000; stroke-dasharray: 4,3; }
+svg line.grid { stroke: #dddddd; } svg line.interval { stroke: #D55E00; stroke-width: 2; }
+svg line.spread { stroke: #000000; stroke-width: 2; } svg line.best { stroke: #000000; stroke-dasharray: 4,3; }
 figure.chart { margin: .6rem 0 1.2rem; }
 ul.legend { list-style: none; padding: 0; margin: .3rem 0; display: flex; flex-wrap: wrap; gap: .3rem 1.1rem; font-size: 13px; }
 ul.legend li { display: flex; align-items: center; gap: .3rem; }
@@ -221,6 +223,57 @@ CURVE_PAGE = r"""{% from "charts" import chart %}<!DOCTYPE html>
 <tbody>
 {%- for p in points %}
 <tr><th>{{ "{:.0%}".format(p.fraction) }}</th><td class="n">{{ p.seed }}</td><td class="n">{{ "{:,}".format(p.sentences) }}</td><td class="n">{{ "%.3f" | format(p.f1) }}</td><td class="n">{{ p.best_epoch }}</td></tr>
+{%- endfor %}
+</tbody>
+</table>
+</section>
+{%- if warnings %}
+
+<section id="warnings">
+<h2>Warnings</h2>
+<ul>
+{%- for warning in warnings %}
+<li>{{ warning }}</li>
+{%- endfor %}
+</ul>
+</section>
+{%- endif %}
+
+<footer><p class="where">Written by tagger {{ version }}.</p></footer>
+</body>
+</html>
+"""
+
+FOLDS_PAGE = r"""{% from "charts" import chart %}<!DOCTYPE html>
+<html lang="en">
+<head>
+<meta charset="utf-8">
+<meta name="viewport" content="width=device-width, initial-scale=1">
+<title>{{ title }}</title>
+{% include "style" %}
+</head>
+<body>
+<header>
+<h1>{{ title }}</h1>
+<p class="sub">{{ training_file }} &middot; {{ sentences }} sentences &middot; {{ k }} folds, {{ how }}</p>
+</header>
+
+<section id="spread">
+<h2>Span F1 on the fold each model did not train on</h2>
+{{ chart(spread_chart, "folds", "Span F1 of each type over the folds: mean, spread and each fold") }}
+</section>
+
+<section id="per-type">
+<h2>Each type over the folds</h2>
+<table class="per-type">
+<thead><tr><th>type</th><th>mean F1</th><th>standard deviation</th><th>lowest</th><th>highest</th>
+{%- for n in range(1, k + 1) %}<th>fold {{ n }}</th>{% endfor %}<th>in gold</th></tr></thead>
+<tbody>
+{%- for name, e in rows.items() %}
+<tr><th>{{ name }}</th>
+{%- for value in (e.mean, e.sd, e.min, e.max) %}<td class="n">{{ "-" if value is none else "%.3f" | format(value) }}</td>{% endfor %}
+{%- for value in e.f1_per_fold %}<td class="n">{{ "-" if value is none else "%.3f" | format(value) }}</td>{% endfor %}
+<td class="n">{{ "{:,}".format(e.gold) }}</td></tr>
 {%- endfor %}
 </tbody>
 </table>
