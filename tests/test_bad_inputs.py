@@ -189,6 +189,23 @@ ROWS: list[tuple[str, int, str, str]] = [
     ("cross-validate --train {binary.txt} --out {out}", 1, "are not valid UTF-8", "binary.txt"),
     ("cross-validate --train {b-dash.txt} --out {out}", 1, "tag 'B-' has no type", "b-dash.txt"),
     ("cross-validate --train {folder} --out {out}", 2, "--train: file", "folder"),
+    # the learning curve: files with nothing to learn from, shares that are no shares
+    ("learning-curve --train {empty.txt} --dev {gold.txt} --out {out}", 1, "holds no sentences",
+     "empty.txt"),
+    ("learning-curve --train {gold.txt} --dev {binary.txt} --out {out}", 1, "are not valid UTF-8",
+     "binary.txt"),
+    ("learning-curve --train {gold.txt} --dev {gold.txt} --score-on {empty.txt} --out {out}", 1,
+     "holds no sentences", "empty.txt"),
+    ("learning-curve --train {folder} --dev {gold.txt} --out {out}", 2, "--train: file", "folder"),
+    # the evaluation page: an output that cannot be written, gold with nothing in it, and a
+    # model moved out of its run folder (the page is written without the training curve)
+    ("evaluate {model.tagger} {gold.txt} --html {folder}", 2, "is a directory", "folder"),
+    ("evaluate {model.tagger} {gold.txt} --html {gold.txt}", 1,
+     "which writing the output would replace", "gold.txt"),
+    ("evaluate {model.tagger} {empty.txt} --html {out}", 1, "the gold file holds no sentences",
+     "empty.txt"),
+    ("evaluate {model.tagger} {gold.txt} --html {out}", 0, "No epochs.json beside the model",
+     "model.tagger"),
 ]  # fmt: skip
 
 

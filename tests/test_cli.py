@@ -157,6 +157,32 @@ def test_evaluate_reads_gold_from_stdin(trained: tuple[Path, Path]) -> None:
     assert twice.exit_code == 2 and "only once" in twice.stderr
 
 
+@pytest.mark.slow
+def test_evaluate_writes_the_page_with_the_runs_epochs(
+    trained: tuple[Path, Path], tmp_path: Path
+) -> None:
+    model, gold = trained
+    page = tmp_path / "page.html"
+    result = runner.invoke(app, ["evaluate", str(model), str(gold), "--html", str(page), "--json"])
+    assert result.exit_code == 0, result.stderr
+    scores = json.loads(result.stdout)
+    text = page.read_text(encoding="utf-8")
+    # the page's table holds the figures the JSON holds, and the run's three epochs are drawn
+    for type_, figures in scores["overall"]["per_type"].items():
+        assert f'<tr><th>{type_}</th><td class="n">{figures["precision"]:.3f}</td>' in text
+    training = text.split('data-chart="training"')[1].split("<figcaption>")[0]
+    assert training.count("<circle") == 3  # dev F1 after each epoch, the legend aside
+    assert len(scores["worst"]) <= 12 and "No epochs.json" not in result.stderr
+    # the model alone, away from its run folder: the page says there is no curve, and so does stderr
+    alone = tmp_path / "alone" / "model.tagger"
+    alone.parent.mkdir()
+    alone.write_bytes(model.read_bytes())
+    result = runner.invoke(app, ["evaluate", str(alone), str(gold), "--html", str(page)])
+    assert result.exit_code == 0, result.stderr
+    assert "note: No epochs.json beside the model" in result.stderr
+    assert 'data-chart="training"' not in page.read_text(encoding="utf-8")
+
+
 def test_unknown_config_key_on_the_command_line(tmp_path: Path) -> None:
     gold = _write(tmp_path / "gold.txt", GOLD)
     result = runner.invoke(
@@ -528,6 +554,7 @@ COMMANDS = [
     "serve",
     "pick",
     "cross-validate",
+    "learning-curve",
 ]
 PYTHON_TYPES = ("<bool>", "<list[", "<str>", "<int", "<float>", "<path>", "<file>", "{")
 

@@ -90,6 +90,14 @@ def test_the_command_prints_a_table_per_type_and_refuses_to_replace_a_run(tmp_pa
     again = runner.invoke(app, arguments)
     assert again.exit_code == 1
     assert "--overwrite" in again.stderr
-    replaced = runner.invoke(app, [*arguments, "--overwrite", "--json"])
+    page = tmp_path / "folds.html"
+    replaced = runner.invoke(app, [*arguments, "--overwrite", "--json", "--html", str(page)])
     assert replaced.exit_code == 0, replaced.stderr
-    assert json.loads(replaced.stdout)["folds"] == 2
+    data = json.loads(replaced.stdout)
+    assert data["folds"] == 2
+    # the page's table holds what the JSON holds: each type's mean F1 and its gold spans
+    text = page.read_text(encoding="utf-8")
+    for type_, entry in data["summary"]["per_type"].items():
+        assert f'<tr><th>{type_}</th><td class="n">{entry["mean"]:.3f}</td>' in text
+        assert f'<td class="n">{entry["gold"]:,}</td></tr>' in text
+    assert 'data-chart="folds"' in text and "http" not in text

@@ -7,7 +7,8 @@ Each gold file is tagged and gets (and, with several files, so do all of them to
 * a bootstrap interval of span F1 over its sentences (`tagger.scoring.bootstrap`);
 * the calibration of span scores, and what the review flag raises (`tagger.scoring.calibration`,
   `tagger.apply.review`): how many sentences, and how many of those holding an error;
-* per file only, example sentences of each kind of error (`tagger.scoring.examples`).
+* per file only, example sentences of each kind of error (`tagger.scoring.examples`);
+* on request (``worst``), over all files, the sentences holding the most errors (for the page).
 
 Files written on request, several gold files one after another in each:
 
@@ -35,7 +36,7 @@ from tagger.data.schemes import Span, spans_lenient, spans_to_tags
 from tagger.errors import DataError
 from tagger.scoring.bootstrap import RESAMPLES, f1_interval
 from tagger.scoring.calibration import reliability, review_catch
-from tagger.scoring.examples import PER_KIND, PairedSentence, error_examples
+from tagger.scoring.examples import PER_KIND, PairedSentence, error_examples, worst_sentences
 from tagger.scoring.metrics import SpanCounts, count_sentence, summarise
 
 if TYPE_CHECKING:
@@ -82,10 +83,12 @@ def evaluate_files(
     resamples: int = RESAMPLES,
     review_below: float = REVIEW_BELOW,
     max_sentence_tokens: int | None = None,
+    worst: int = 0,
 ) -> dict[str, Any]:
     """Tag each gold file with the model and score it for error analysis (see the module
     docstring); ``examples`` sentences per kind of error (0: none), ``resamples`` for the F1
-    interval (0: none), the review flag read at ``review_below``. Sentences longer than ``max_sentence_tokens``
+    interval (0: none), the review flag read at ``review_below``, and (``worst`` > 0) a "worst"
+    list of that many sentences with the most errors over all files. Sentences longer than ``max_sentence_tokens``
     (None: the model's limit) and labels that are not span tags are refused with a DataError
     naming the file and line."""
     limit = max_sentence_tokens or tagger.config.data.max_sentence_tokens
@@ -94,6 +97,7 @@ def evaluate_files(
     total = _Judged()
     predicted_sentences: list[Sentence] = []
     side_sentences: list[Sentence] = []
+    all_paired: list[PairedSentence] = []
     for path in paths:
         sentences = list(read_columns(path, fmt))
         if not sentences:  # scores over nothing would read as a model that finds nothing
@@ -106,6 +110,8 @@ def evaluate_files(
             tagger, input_name(path), sentences, scored, review_below
         )
         total.add(judged)
+        if worst > 0:
+            all_paired.extend(paired)
         per_file.append(
             {
                 "file": str(path),
@@ -127,7 +133,7 @@ def evaluate_files(
     if side_by_side is not None:
         write_columns(side_by_side, side_sentences)
     overall = total.summary(resamples, review_below) if len(per_file) > 1 else per_file[0]
-    return {
+    result = {
         "files": per_file,
         "overall": overall,
         "model_scheme": tagger.scheme,
@@ -135,6 +141,9 @@ def evaluate_files(
         "temperature": tagger.temperature,
         "temperature_fit": tagger.meta.get("calibration"),  # when training fitted one
     }
+    if worst > 0:
+        result["worst"] = worst_sentences(all_paired, worst)
+    return result
 
 
 def _judge(

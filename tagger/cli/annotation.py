@@ -1,4 +1,5 @@
-"""Commands of the annotation loop: pick (what to annotate next), cross-validate."""
+"""Commands of the annotation loop: pick (what to annotate next), cross-validate,
+learning-curve (whether more annotation pays)."""
 
 from __future__ import annotations
 
@@ -191,6 +192,14 @@ def cross_validate(
         bool,
         typer.Option("--overwrite", help="Replace the fold runs OUT already holds."),
     ] = False,
+    html: Annotated[
+        Path | None,
+        typer.Option(
+            "--html",
+            dir_okay=False,
+            help="Also write the folds' scores as one self-contained web page here.",
+        ),
+    ] = None,
     as_json: AsJson = False,
 ) -> None:
     """Cross-validate a config: train k models, each scored on the fold it did not train on.
@@ -198,10 +207,15 @@ def cross_validate(
     Documents (-DOCSTART- lines) stay whole in one fold; without them sentences are dealt at
     random (train.seed). Reports the mean and standard deviation of span F1 per type."""
     from tagger.config import apply_overrides, load_config, resolve_paths
+    from tagger.data.atomic import atomic_output
     from tagger.reports.annotation import format_cross_validation
+    from tagger.reports.page import cross_validation_page, require_report_extra
     from tagger.training.cross_validation import cross_validate as run
 
+    usable_output(html, [path for path in (config_path, train_file) if path])
     with domain_errors():
+        if html is not None:
+            require_report_extra()
         config = load_config(config_path)
         extra = list(overrides or [])
         if train_file is not None:
@@ -221,8 +235,153 @@ def cross_validate(
 
     with domain_errors(column_files=[config.data.train] if config.data.train else []):
         result = run(config, out, folds, progress, overwrite)
-    data = result.to_dict()
+        data = result.to_dict()
+        if html is not None:
+            with atomic_output(html) as page:
+                page.write(cross_validation_page(data))
     if as_json:
         print_json(data)
     else:
         print(format_cross_validation(data), end="")
+
+
+def _fractions(text: str) -> list[float]:
+    """'10,20,40' or '0.1,0.2,0.4' -> fractions; numbers above 1 are percentages."""
+    try:
+        values = [float(part) for part in text.split(",") if part.strip()]
+    except ValueError:
+        raise typer.BadParameter(f"expected numbers separated by commas; got {text!r}") from None
+    return [value / 100 if value > 1 else value for value in values]
+
+
+@app.command(
+    "learning-curve",
+    epilog=examples(
+        "tagger learning-curve --train train.txt --dev dev.txt --out runs/curve",
+        "tagger learning-curve --config c.toml --shares 10,25,50,100 --seeds 3 --jobs 2",
+    ),
+)
+def learning_curve(
+    config_path: Annotated[
+        Path | None, typer.Option("--config", exists=True, dir_okay=False, help="TOML config file.")
+    ] = None,
+    train_file: Annotated[
+        Path | None,
+        typer.Option(
+            "--train",
+            exists=True,
+            dir_okay=False,
+            help="Annotated column file to take growing shares of (overrides data.train).",
+        ),
+    ] = None,
+    dev_file: Annotated[
+        Path | None,
+        typer.Option(
+            "--dev",
+            exists=True,
+            dir_okay=False,
+            help="Column file for choosing each model's best epoch (overrides data.dev).",
+        ),
+    ] = None,
+    score_on: Annotated[
+        Path | None,
+        typer.Option(
+            "--score-on",
+            exists=True,
+            dir_okay=False,
+            help="Column file each model is scored on (default: the dev file).",
+        ),
+    ] = None,
+    shares: Annotated[
+        str,
+        typer.Option(
+            "--shares",
+            metavar="PERCENTS",
+            help="Shares of the training sentences, in percent, separated by commas.",
+        ),
+    ] = "10,20,40,70,100",
+    seeds: Annotated[
+        int, typer.Option(min=1, help="Models per share, each on its own shuffle and seed.")
+    ] = 1,
+    jobs: Annotated[
+        int, typer.Option(min=1, help="Models trained at once, one process and thread each.")
+    ] = 1,
+    out: Annotated[
+        Path,
+        typer.Option(
+            "--out", file_okay=False, help="Folder for each model's run and learning-curve.json."
+        ),
+    ] = Path("runs/learning-curve"),
+    overrides: Annotated[
+        list[str] | None,
+        typer.Option(
+            "--set", help="Override a config key, e.g. --set train.epochs=10 (repeatable)."
+        ),
+    ] = None,
+    overwrite: Annotated[
+        bool,
+        typer.Option("--overwrite", help="Replace the runs OUT already holds."),
+    ] = False,
+    html: Annotated[
+        Path | None,
+        typer.Option(
+            "--html",
+            dir_okay=False,
+            help="Also write the curve as one self-contained web page here.",
+        ),
+    ] = None,
+    as_json: AsJson = False,
+) -> None:
+    """Train on growing shares of the training file, score each model, fit a learning curve
+    F1(n) = a - b n^-c and say what doubling the annotation is expected to give.
+
+    Each seed shuffles the sentences once and every share takes the start of that shuffle, so
+    a larger share holds the smaller ones."""
+    from tagger.config import apply_overrides, load_config, resolve_paths
+    from tagger.data.atomic import atomic_output
+    from tagger.reports.annotation import format_learning_curve
+    from tagger.reports.page import learning_curve_page, require_report_extra
+    from tagger.training.learning_curve import learning_curve as run
+
+    fractions = _fractions(shares)
+    usable_output(html, [path for path in (config_path, train_file, dev_file, score_on) if path])
+    with domain_errors():
+        if html is not None:
+            require_report_extra()
+        config = load_config(config_path)
+        extra = list(overrides or [])
+        if train_file is not None:
+            extra.append(f"data.train={json.dumps(str(train_file))}")
+        if dev_file is not None:
+            extra.append(f"data.dev={json.dumps(str(dev_file))}")
+        config = resolve_paths(apply_overrides(config, extra), Path.cwd())
+
+    def progress(point: Any) -> Any:
+        shown = TrainingProgress()
+
+        def report(event: dict[str, Any]) -> None:
+            if event["event"] == "start":  # one header line a model, not the whole run header
+                say(
+                    f"{point.fraction:.0%} of train, seed {point.seed}: training in {out / point.folder}"
+                )
+            elif event["event"] != "note":
+                shown(event)
+
+        return report
+
+    def done(record: dict[str, Any]) -> None:
+        say(
+            f"{record['fraction']:.0%} of train ({record['sentences']:,} sentences), seed "
+            f"{record['seed']}: span F1 {100 * record['f1']:.2f}"
+        )
+
+    files = [name for name in (config.data.train, config.data.dev, score_on) if name]
+    with domain_errors(column_files=files):
+        result = run(config, out, fractions, seeds, jobs, score_on, progress, done, overwrite)
+        if html is not None:
+            with atomic_output(html) as page:
+                page.write(learning_curve_page(result))
+    if as_json:
+        print_json(result)
+    else:
+        print(format_learning_curve(result), end="")

@@ -32,6 +32,8 @@ from tagger.data.column_lines import DelimiterChoice
 if TYPE_CHECKING:
     from tagger.data.corpus import ColumnFormat
 
+WORST_ON_PAGE = 12  # sentences with the most errors shown on the --html page
+
 # Column options that default to what the config (train) or the model (evaluate) says, so that
 # the column layout is given once; given explicitly, they win.
 GivenTokenColumn = Annotated[
@@ -189,7 +191,7 @@ def train(
 @app.command(
     epilog=examples(
         "tagger evaluate runs/demo/model.tagger data/demo/test.txt",
-        "tagger evaluate runs/demo/model.tagger test.txt --predictions test.tagged.txt",
+        "tagger evaluate runs/demo/model.tagger test.txt --html test.html",
     )
 )
 def evaluate(
@@ -229,6 +231,15 @@ def evaluate(
             help="Count the sentences tag would flag for review at this threshold (0 to 1).",
         ),
     ] = 0.8,
+    html: Annotated[
+        Path | None,
+        typer.Option(
+            "--html",
+            dir_okay=False,
+            help="Also write the results as one self-contained web page here: charts per type, "
+            "the training curve when the run folder is beside the model, the worst sentences.",
+        ),
+    ] = None,
     token_column: GivenTokenColumn = None,
     label_column: GivenLabelColumn = None,
     delimiter: GivenDelimiter = None,
@@ -237,13 +248,15 @@ def evaluate(
 ) -> None:
     """Tag gold files with a model and report span scores per type, with the error breakdown,
     the types wrong-type spans got, example sentences, an interval for F1, how often scores are
-    right and what the review flag catches.
+    right and what the review flag catches; --html also draws them on one page.
 
     Gold files are read in the column layout of the model's training files unless the column
     options say otherwise."""
     from tagger.apply.evaluate import evaluate_files
     from tagger.apply.tagger import Tagger
+    from tagger.data.atomic import atomic_output
     from tagger.reports.notes import CAUTION
+    from tagger.reports.page import evaluation_page, require_report_extra, run_epochs
     from tagger.reports.scores import format_evaluation
 
     readable_inputs(("FILES", files))
@@ -254,6 +267,10 @@ def evaluate(
         encoding=encoding,
     )
     usable_output(predictions, [model, *files])
+    usable_output(html, [model, *files])
+    if html is not None:
+        with domain_errors():
+            require_report_extra()
     with domain_errors(column_files=files):
         tagger = Tagger.load(model)
         for note in tagger.notes:
@@ -268,7 +285,15 @@ def evaluate(
             examples=examples,
             resamples=resamples,
             review_below=review_below,
+            worst=WORST_ON_PAGE if html is not None else 0,
         )
+        if html is not None:
+            history, history_note = run_epochs(model)
+            page = evaluation_page(result, history, history_note)
+            with atomic_output(html) as out:
+                out.write(page)
+            if history is None:
+                say(f"note: {history_note}")
     if as_json:
         print_json(result)
     else:

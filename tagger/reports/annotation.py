@@ -118,3 +118,49 @@ def format_cross_validation(result: dict[str, Any]) -> str:
     for warning in summary["warnings"]:
         lines += labelled("warning", warning)
     return "\n".join(lines) + "\n"
+
+
+def format_learning_curve(result: dict[str, Any]) -> str:
+    """Span F1 of each model by its share of the training sentences (one column a seed), the
+    curve's parameters, the one-sentence answer, then the warnings; ``result`` is the dict
+    `tagger.training.learning_curve.learning_curve` writes."""
+    points = result["points"]
+    seeds = sorted({p["seed"] for p in points})
+    columns = (
+        Column("share of train"),
+        Column("sentences"),
+        *(Column(f"F1 % seed {seed}") for seed in seeds),
+        Column("curve %"),
+    )
+    fit = result["fit"]
+    rows: list[list[Cell]] = []
+    for fraction in sorted({p["fraction"] for p in points}):
+        here = {p["seed"]: p for p in points if p["fraction"] == fraction}
+        size = max(p["sentences"] for p in here.values())
+        curve = fit["a"] - fit["b"] * size ** -fit["c"] if fit else None
+        rows.append(
+            [
+                f"{fraction:.0%}",
+                size,
+                *(_f1(here[s]["f1"]) if s in here else "-" for s in seeds),
+                "-" if curve is None else _f1(curve),
+            ]
+        )
+    lines = [
+        f"Learning curve of {result['training_file']} "
+        f"({count(result['training_sentences'], 'sentence')}), each model scored on "
+        f"{result['scored_file']}:",
+        "",
+        *render_table(columns, rows),
+        "",
+    ]
+    if fit:
+        lines += labelled(
+            "curve",
+            f"F1(n) = {100 * fit['a']:.1f} - {100 * fit['b']:.3g} * n^-{fit['c']:.3f} "
+            "(in points, n the training sentences)",
+        )
+    lines += labelled("answer", result["answer"])
+    for warning in result["warnings"]:
+        lines += labelled("warning", warning)
+    return "\n".join(lines) + "\n"

@@ -97,3 +97,27 @@ def error_examples(
 
 def _listed(spans: Sequence[Span]) -> list[list[Any]]:
     return [[t, s, e] for t, s, e in sorted(set(spans), key=lambda x: (x[1], x[2], x[0]))]
+
+
+def worst_sentences(sentences: Sequence[PairedSentence], wanted: int) -> list[dict[str, Any]]:
+    """The `wanted` sentences with the most spans that are not exact matches (gold spans and
+    tagged spans counted alike), most first, ties in file order; sentences without an error are
+    never listed. Each: {"file", "line", "tokens", "gold", "tagged", "errors"} with spans as
+    [type, start, end] lists."""
+    ranked = []
+    for index, sentence in enumerate(sentences):
+        gold, tagged = set(sentence.gold), set(sentence.tagged)
+        errors = len(gold ^ tagged)  # a span on one side only is one error
+        if errors:
+            ranked.append((-errors, index))
+    return [
+        {
+            "file": sentences[index].file,
+            "line": sentences[index].line,
+            "tokens": list(sentences[index].tokens),
+            "gold": _listed(sentences[index].gold),
+            "tagged": _listed(sentences[index].tagged),
+            "errors": -negative,
+        }
+        for negative, index in sorted(ranked)[: max(wanted, 0)]
+    ]
