@@ -15,7 +15,9 @@ from __future__ import annotations
 
 import copy
 import io
+import logging
 import tempfile
+import warnings
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
@@ -81,7 +83,10 @@ def _graph_bytes(
     import torch
 
     buffer = io.BytesIO()
-    with torch.no_grad():
+    # The tracer warns of every Python-level check it bakes in (shapes, lengths); those checks
+    # hold for any input the backend builds, so the warnings say nothing to the user.
+    with torch.no_grad(), warnings.catch_warnings():
+        warnings.simplefilter("ignore")
         torch.onnx.export(
             module,
             args,
@@ -161,7 +166,11 @@ def quantised(graph: bytes) -> bytes:
     with tempfile.TemporaryDirectory() as folder:
         source, target = Path(folder, "in.onnx"), Path(folder, "out.onnx")
         source.write_bytes(graph)
-        quantize_dynamic(source, target, weight_type=QuantType.QInt8)
+        logging.disable(logging.WARNING)  # its advice on pre-processing goes to the root logger
+        try:
+            quantize_dynamic(source, target, weight_type=QuantType.QInt8)
+        finally:
+            logging.disable(logging.NOTSET)
         return target.read_bytes()
 
 
