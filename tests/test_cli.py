@@ -521,6 +521,7 @@ COMMANDS = [
     "score",
     "train",
     "evaluate",
+    "export",
     "tag",
     "tokenize",
     "learn-vectors",
