@@ -125,12 +125,15 @@ def test_export_and_tag_commands_give_the_torch_output(
     docs = tmp_path / "docs.jsonl"
     docs.write_text("".join(json.dumps({"text": t}) + "\n" for t in texts), encoding="utf-8")
     outputs = {}
-    for backend, path in (("torch", model), ("onnx", exported)):
-        out = tmp_path / f"{backend}.jsonl"
+    runs = (("torch", model, "1"), ("onnx", exported, "1"), ("onnx-workers", exported, "2"))
+    for name, path, workers in runs:
+        out = tmp_path / f"{name}.jsonl"
+        backend = name.split("-")[0]
         args = ["tag", str(path), str(docs), "-o", str(out), "--backend", backend]
-        result = runner.invoke(app, args)
+        result = runner.invoke(app, [*args, "--workers", workers, "--chunk-chars", "2000"])
         assert result.exit_code == 0, result.output
-        outputs[backend] = [json.loads(line) for line in out.read_text().splitlines()]
+        outputs[name] = [json.loads(line) for line in out.read_text().splitlines()]
+    assert outputs["onnx-workers"] == outputs["onnx"]  # worker processes load the same file
     assert sum(len(r["mentions"]) for r in outputs["torch"]) >= 30
     for a, b in zip(outputs["torch"], outputs["onnx"], strict=True):
         assert [(m["type"], m["at"]) for m in a["mentions"]] == [
@@ -167,3 +170,44 @@ def test_the_onnx_backend_tags_where_torch_cannot_be_imported(
     assert [[(m["type"], m["at"]) for m in doc] for doc in got] == [
         [(m["type"], m["at"]) for m in doc] for doc in expected
     ]
+
+
+def _edited(source: Path, target: Path, edit) -> Path:  # noqa: ANN001 - a bytes -> bytes function
+    target.write_bytes(edit(source.read_bytes()))
+    return target
+
+
+def test_export_file_refusals_name_the_file_and_the_fault(tmp_path: Path) -> None:
+    tiny_tagger().save(tmp_path / "model.tagger")
+    good = tmp_path / "model.tagexport"
+    export_model(tmp_path / "model.tagger", good)
+    cases = [
+        (lambda b: b.replace(b'"version": 1', b'"version": 7', 1), "format version 7"),
+        (lambda b: b + b"\0", "1 bytes after the last graph"),
+        (lambda b: b[:20], "it ends inside its header"),
+        (lambda b: b[:60], "its header runs past the end"),
+        (lambda b: b.replace(b'"weights": "float32"', b'"weights": "float64"', 1), "digest"),
+    ]
+    for number, (edit, fragment) in enumerate(cases):
+        bad = _edited(good, tmp_path / f"bad{number}.tagexport", edit)
+        with pytest.raises(ModelFileError) as caught:
+            ExportedTagger.load(bad)
+        assert str(caught.value).startswith(f"{bad}: ")
+        assert fragment in str(caught.value)
+
+
+def test_a_missing_runtime_says_what_to_install(
+    tmp_path: Path, monkeypatch: pytest.MonkeyPatch
+) -> None:
+    import importlib.util
+
+    tiny_tagger().save(tmp_path / "model.tagger")
+    monkeypatch.setattr(importlib.util, "find_spec", lambda name, *rest: None)
+    for args in (
+        ["export", str(tmp_path / "model.tagger"), str(tmp_path / "out.tagexport")],
+        ["tag", str(tmp_path / "model.tagger"), "--backend", "onnx"],
+    ):
+        result = runner.invoke(app, args, input="Anna met Bob.")
+        assert result.exit_code == 1
+        assert "pip install 'tagger[onnx]'" in result.stderr
+    assert not (tmp_path / "out.tagexport").exists()
