@@ -49,7 +49,7 @@ def _document_inputs(paths: list[Path] | None) -> list[str]:
 @app.command(
     epilog=examples(
         "tagger tag runs/demo/model.tagger data/demo/new_reports.jsonl -o tagged.jsonl",
-        "tagger tag runs/demo/model.tagexport notes.txt --backend onnx",
+        "tagger tag runs/demo/model.tagger app.log --input-format lines",
     )
 )
 def tag(
