@@ -18,6 +18,7 @@ import pytest
 from model_files import tiny_tagger
 from typer.testing import CliRunner
 
+from tagger.apply.exporting import export_model
 from tagger.cli import app
 
 runner = CliRunner()
@@ -54,6 +55,9 @@ CONTENTS: dict[str, Callable[[], bytes] | None] = {
     "pickle.tagger": lambda: pickle.dumps({"weights": [1.0, 2.0]}),
     "model.tagger": None,
     "truncated.tagger": None,
+    "model.tagexport": None,
+    "damaged.tagexport": None,
+    "truncated.tagexport": None,
     "folder": None,
 }
 
@@ -67,6 +71,11 @@ def inputs(tmp_path_factory: pytest.TempPathFactory) -> Path:
     tiny_tagger().save(folder / "model.tagger")
     whole = (folder / "model.tagger").read_bytes()
     (folder / "truncated.tagger").write_bytes(whole[: len(whole) // 2])
+    export_model(folder / "model.tagger", folder / "model.tagexport")
+    exported = bytearray((folder / "model.tagexport").read_bytes())
+    (folder / "truncated.tagexport").write_bytes(exported[: len(exported) - 100])
+    exported[-50] ^= 0x01  # one bit of the words graph
+    (folder / "damaged.tagexport").write_bytes(exported)
     (folder / "folder").mkdir()
     return folder
 
@@ -157,6 +166,21 @@ ROWS: list[tuple[str, int, str, str]] = [
     ("check {gold.txt} --model {truncated.tagger}", 1, "is truncated", "truncated.tagger"),
     ("tag {gold.txt} {gold.txt} -o {out}", 1, "not a tagger model file", "gold.txt"),
     ("train --config {model.tagger}", 1, "not a TOML config file", "model.tagger"),
+    # exported models: the wrong kind of file, damaged, cut short
+    ("export {missing} {out}", 2, "MODEL: file", "missing"),
+    ("export {pickle.tagger} {out}", 1, "looks like a pickle", "pickle.tagger"),
+    ("export {truncated.tagger} {out}", 1, "is truncated", "truncated.tagger"),
+    ("tag {model.tagger} {gold.txt} -o {out} --backend onnx", 1, "not an export file",
+     "model.tagger"),
+    ("tag {gold.txt} {gold.txt} -o {out} --backend onnx", 1, "not a tagger export file",
+     "gold.txt"),
+    ("tag {damaged.tagexport} {gold.txt} -o {out} --backend onnx", 1,
+     "export file is corrupted (header or graphs do not match", "damaged.tagexport"),
+    ("tag {truncated.tagexport} {gold.txt} -o {out} --backend onnx", 1, "is truncated",
+     "truncated.tagexport"),
+    ("tag {model.tagexport} {gold.txt} -o {out}", 1, "an export file (from tagger export)",
+     "model.tagexport"),
+    ("evaluate {model.tagexport} {gold.txt}", 1, "not a model file", "model.tagexport"),
     # serving a model: refused before listening
     ("serve {missing} --port 0", 2, "MODEL: file", "missing"),
     ("serve {folder} --port 0", 2, "MODEL: file", "folder"),

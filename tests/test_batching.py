@@ -4,8 +4,14 @@ import random
 
 import torch
 
-from tagger.network.batching import MAX_TOKEN_CHARS, bucketed_batches, collate, encode_sentence
-from tagger.text.vocab import Vocab, Vocabularies, build_vocabularies, normalise_word
+from tagger.network.batching import bucketed_batches, collate, encode_sentence
+from tagger.text.vocab import (
+    MAX_TOKEN_CHARS,
+    Vocab,
+    Vocabularies,
+    build_vocabularies,
+    normalise_word,
+)
 
 
 def _vocabs() -> Vocabularies:

@@ -547,6 +547,7 @@ COMMANDS = [
     "score",
     "train",
     "evaluate",
+    "export",
     "tag",
     "tokenize",
     "learn-vectors",

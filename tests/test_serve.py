@@ -33,6 +33,8 @@ import pytest
 from model_files import tiny_tagger
 from typer.testing import CliRunner
 
+from tagger.apply.exported import ExportedTagger
+from tagger.apply.exporting import export_model
 from tagger.apply.tagger import Tagger
 from tagger.cli import app
 from tagger.errors import ConfigError
@@ -153,10 +155,12 @@ def served(
     settings: ServiceSettings | None = None,
     gate: Gate | None = None,
     log: list[str] | None = None,
+    tagger: Tagger | None = None,
 ) -> Iterator[Running]:
-    """The service on a free loopback port, run by uvicorn in a thread; stopped on leaving."""
+    """The service on a free loopback port, run by uvicorn in a thread; stopped on leaving.
+    ``tagger`` (default: the model file loaded) is the one it runs."""
     service = Service(
-        Tagger.load(model),
+        tagger or Tagger.load(model),
         model,
         settings or ServiceSettings(),
         tag_texts=gate,
@@ -227,6 +231,25 @@ def test_tagging_many_texts_and_one_equals_the_library(model: Path, library: Tag
     # An untrained model is unsure everywhere: flagged at 0.8, not at 0.2 (empty texts never).
     assert [d["needs_review"] for d in documents] == [bool(t.strip()) for t in TEXTS]
     assert not any(d["needs_review"] for d in filtered)
+
+
+def test_an_exported_model_answers_as_the_model_file(
+    model: Path, library: Tagger, tmp_path: Path
+) -> None:
+    exported = tmp_path / "model.tagexport"
+    export_model(model, exported)
+    with served(exported, tagger=ExportedTagger.load(exported)) as running:
+        answer = call(running.url + "/tag", {"texts": TEXTS})
+        description = call(running.url + "/model").json
+    assert answer.status == 200
+    expected = records(library, TEXTS)
+    got = [d["mentions"] for d in answer.json["documents"]]
+    assert [[(m["type"], m["at"]) for m in doc] for doc in got] == [
+        [(m["type"], m["at"]) for m in doc] for doc in expected
+    ]
+    pairs = [(a, b) for x, y in zip(expected, got, strict=True) for a, b in zip(x, y, strict=True)]
+    assert pairs and all(abs(a["confidence"] - b["confidence"]) <= 1.0001e-4 for a, b in pairs)
+    assert description["training_data"]["fingerprint"] == "9f2c0d"
 
 
 def test_requests_queued_together_are_tagged_in_one_batch(model: Path, library: Tagger) -> None:

@@ -169,8 +169,10 @@ def scored_sentences(
     net = tagger.net
     temperature = tagger.temperature if temperature is None else temperature
     crf = None
-    if with_scores and temperature != 1.0 and net.crf is not None:
-        crf = tempered_crf(net.crf, temperature)  # made once, outside inference mode
+    if with_scores and net.crf is not None:
+        # Made once, outside inference mode; in float64, because the marginals subtract log-sums
+        # of hundreds over a long sentence, where float32 loses up to 1e-4 of a probability.
+        crf = tempered_crf(net.crf, temperature).double()
     result = [ScoredSentence([]) for _ in token_lists]
     for indices, emissions, mask in emission_batches(tagger, token_lists, batch_size, rows):
         with torch.inference_mode():
@@ -181,7 +183,7 @@ def scored_sentences(
                     result[i] = ScoredSentence(spans)
                 continue
             if crf is not None:
-                probabilities = crf.marginals(emissions / temperature, mask)  # (B, T, L)
+                probabilities = crf.marginals((emissions / temperature).double(), mask)
             else:
                 probabilities = label_probabilities(net, emissions, mask, temperature)
             chosen = np.zeros(tuple(mask.shape), dtype=np.int64)  # (B, T) decoded label ids

@@ -50,6 +50,26 @@ class OnError(StrEnum):
 ON_ERROR: tuple[str, ...] = tuple(f.value for f in OnError)
 
 
+class Backend(StrEnum):
+    """What runs the network: torch on a model file, or onnxruntime on an export file."""
+
+    TORCH = "torch"
+    ONNX = "onnx"
+
+
+BACKENDS: tuple[str, ...] = tuple(b.value for b in Backend)
+
+
+def load_tagger(model: str | Path, backend: str, threads: int | None) -> Tagger:
+    """The tagger of ``model`` on ``backend``: `Tagger.load` of a model file, or
+    `ExportedTagger.load` of an export file (imported only then; it needs no torch)."""
+    if backend == Backend.ONNX:
+        from tagger.apply.exported import ExportedTagger
+
+        return ExportedTagger.load(model, threads=threads)
+    return Tagger.load(model, threads=threads)
+
+
 @dataclass(frozen=True)
 class TagOptions:
     """How `tag_files` reads, tags and writes; checked once, here."""
@@ -65,7 +85,8 @@ class TagOptions:
     batch_size: int = PREDICT_BATCH
     chunk_chars: int = CHUNK_CHARS
     workers: int = 1
-    threads: int = 0  # torch threads per process; 0: torch's default with one worker, else 1
+    threads: int = 0  # threads per process; 0: the backend's default with one worker, else 1
+    backend: str = "torch"  # one of BACKENDS
 
     def __post_init__(self) -> None:
         if self.input_format != "auto" and self.input_format not in INPUT_FORMATS:
@@ -77,6 +98,8 @@ class TagOptions:
                 f"output format must be one of {', '.join(OUTPUT_FORMATS)}; "
                 f"got {self.output_format!r}"
             )
+        if self.backend not in BACKENDS:
+            raise ConfigError(f"backend must be one of {', '.join(BACKENDS)}; got {self.backend!r}")
         if self.on_error not in ON_ERROR:
             raise ConfigError(f"on_error must be stop or skip; got {self.on_error!r}")
         if self.scheme is not None:
@@ -133,8 +156,8 @@ def _job(tagger: Tagger, options: TagOptions) -> _TaggingJob:
 
 
 def _worker_job(model: str, options: TagOptions) -> _TaggingJob:
-    """A worker process's job: the model loaded once, one torch thread unless told otherwise."""
-    return _job(Tagger.load(model, threads=options.threads or 1), options)
+    """A worker process's job: the model loaded once, one thread unless told otherwise."""
+    return _job(load_tagger(model, options.backend, options.threads or 1), options)
 
 
 def tag_files(
@@ -153,7 +176,7 @@ def tag_files(
     started = time.monotonic()
     # Also checks the model file before any worker starts; the threads are this process's only
     # when it does the tagging itself.
-    tagger = Tagger.load(model, threads=options.threads if options.workers == 1 else None)
+    tagger = load_tagger(model, options.backend, options.threads if options.workers == 1 else None)
     if tagger.features is not None and tagger.needs_columns:
         for path in inputs or [STDIO]:
             kind = (

@@ -1,4 +1,4 @@
-"""Commands that make or measure a model: train, evaluate."""
+"""Commands that make, measure or export a model: train, evaluate, export."""
 
 from __future__ import annotations
 
@@ -331,3 +331,39 @@ def _gold_layout(
     if taken:
         say(f"note: gold files read as the model's training files were: {', '.join(taken)}")
     return fmt
+
+
+@app.command(
+    "export",
+    epilog=examples(
+        "tagger export runs/demo/model.tagger runs/demo/model.tagexport",
+        "tagger export runs/demo/model.tagger runs/demo/model-int8.tagexport --int8",
+    ),
+)
+def export(
+    model: ModelFile,
+    out: Annotated[
+        Path,
+        typer.Argument(dir_okay=False, help="Export file to write (tag it with --backend onnx)."),
+    ],
+    int8: Annotated[
+        bool,
+        typer.Option(
+            "--int8",
+            help="Store the linear and recurrent weights as 8-bit integers (dynamic "
+            "quantisation): smaller and faster, scores change slightly.",
+        ),
+    ] = False,
+) -> None:
+    """Write a model's network as ONNX graphs, with its CRF and vocabularies, in one export file
+    that tags without torch."""
+    from tagger.apply.exporting import export_model, require_export_packages
+    from tagger.reports.layout import number
+
+    with domain_errors():
+        require_export_packages()
+    usable_output(out, [model])
+    with domain_errors():
+        sizes = export_model(model, out, int8=int8)
+    shown = ", ".join(f"{name} {number(size)} bytes" for name, size in sizes.items())
+    say(f"wrote {out} ({'int8' if int8 else 'float32'} weights; graphs: {shown})")

@@ -7,6 +7,7 @@ from typing import Annotated
 
 import typer
 
+from tagger.apply.tagging import Backend
 from tagger.cli.common import ModelFile, app, domain_errors, say, stopped_words
 from tagger.cli.help import examples
 from tagger.errors import TaggerError
@@ -33,7 +34,15 @@ def serve(
         ),
     ] = "127.0.0.1",
     port: Annotated[int, typer.Option(min=0, max=65535, help="Port (0: any free one).")] = 8080,
-    threads: Annotated[int, typer.Option(min=0, help="torch threads tagging (0: all cores).")] = 0,
+    threads: Annotated[int, typer.Option(min=0, help="Threads tagging (0: all cores).")] = 0,
+    backend: Annotated[
+        Backend,
+        typer.Option(
+            help="torch serves a model file; onnx an export file (tagger export) with "
+            "onnxruntime, without torch.",
+            case_sensitive=False,
+        ),
+    ] = Backend.TORCH,
     max_texts: Annotated[int, typer.Option(help="Most texts in one request.")] = 64,
     max_text_chars: Annotated[int, typer.Option(help="Most characters in one text.")] = 20_000,
     max_body_bytes: Annotated[int, typer.Option(help="Largest request body.")] = 1_000_000,
@@ -76,11 +85,11 @@ def serve(
         raise typer.BadParameter(str(error)) from None
     with domain_errors():
         require_serve_extra()
-        from tagger.apply.tagger import Tagger
+        from tagger.apply.tagging import load_tagger
         from tagger.serve.app import Service
         from tagger.serve.server import bind, is_loopback, server_for
 
-        tagger = Tagger.load(model, threads=threads or None)
+        tagger = load_tagger(model, backend, threads or None)
         for note in tagger.notes:
             say(f"note: {note}")
         if tagger.features is not None and tagger.features.needs_columns:

@@ -9,10 +9,9 @@ import typer
 
 from tagger.apply.documents import InputFormat
 from tagger.apply.outputs import OutputFormat
-from tagger.apply.tagging import OnError
+from tagger.apply.tagging import Backend, OnError
 from tagger.apply.tokenizing import TokenizeFormat
 from tagger.cli.common import (
-    ModelFile,
     TokenColumn,
     app,
     count,
@@ -54,7 +53,16 @@ def _document_inputs(paths: list[Path] | None) -> list[str]:
     )
 )
 def tag(
-    model: ModelFile,
+    model: Annotated[
+        Path,
+        typer.Argument(
+            exists=True,
+            dir_okay=False,
+            readable=True,
+            help="Model file written by train (RUN_FOLDER/model.tagger), or with --backend onnx "
+            "an export file written by export.",
+        ),
+    ],
     inputs: Annotated[
         list[Path] | None,
         typer.Argument(help="Files to tag, in order; '-' or none reads standard input."),
@@ -108,8 +116,16 @@ def tag(
         typer.Option(help="Longest sentence accepted (default: the model's tokenizer setting)."),
     ] = None,
     threads: Annotated[
-        int, typer.Option(help="torch threads per process (0: all cores, or 1 per worker).")
+        int, typer.Option(help="Threads per process (0: all cores, or 1 per worker).")
     ] = 0,
+    backend: Annotated[
+        Backend,
+        typer.Option(
+            help="torch runs a model file; onnx runs an export file (tagger export) with "
+            "onnxruntime, without torch.",
+            case_sensitive=False,
+        ),
+    ] = Backend.TORCH,
     workers: Annotated[
         int, typer.Option(help="Worker processes, each holding the model once.")
     ] = 1,
@@ -136,6 +152,7 @@ def tag(
             chunk_chars=chunk_chars,
             workers=workers,
             threads=threads,
+            backend=backend,
         )
     except TaggerError as error:
         raise typer.BadParameter(str(error)) from None

@@ -29,10 +29,6 @@ import torch
 
 from tagger.text.vocab import Vocabularies
 
-MAX_TOKEN_CHARS = (
-    24  # longer tokens keep their first and last 12 characters: affixes carry the signal
-)
-
 
 @dataclass
 class EncodedSentence:
@@ -87,13 +83,6 @@ class Batch:
         return int(self.lengths.sum())
 
 
-def _clip_chars(token: str) -> str:
-    if len(token) <= MAX_TOKEN_CHARS:
-        return token
-    half = MAX_TOKEN_CHARS // 2
-    return token[:half] + token[-half:]
-
-
 def encode_sentence(
     tokens: Sequence[str],
     vocabs: Vocabularies,
@@ -104,7 +93,7 @@ def encode_sentence(
 
     ``features`` are the sentence's feature ids, slot-major, from `FeatureSpec.encode`."""
     words = [vocabs.words.index(vocabs.word_key(t)) for t in tokens]
-    chars = [vocabs.chars.encode(_clip_chars(t)) or [1] for t in tokens]
+    chars = [vocabs.char_ids(t) for t in tokens]
     label_ids = None
     if labels is not None:
         outside = vocabs.labels.stoi["O"]

@@ -61,6 +61,8 @@ _ELEMENT_BYTES = {
     "BOOL": 1,
 }
 _HEX_DIGEST = re.compile(r"[0-9a-f]{64}")
+# How an export file starts (tagger.apply.export_file.MAGIC, which this stage cannot import).
+_EXPORT_FILE = b"tagger-export"
 # How torch.save files start: a zip archive, or a bare pickle stream (protocol 2 and later).
 _ARCHIVE_OR_PICKLE = (b"PK\x03\x04", b"\x80")
 
@@ -195,6 +197,11 @@ def _read_header(blob: bytes, path: Path) -> tuple[dict[str, Any], int]:
         raise ModelFileError(f"{path}: not a tagger model file (only {len(blob)} bytes)")
     size = int.from_bytes(blob[:8], "little")
     if blob[8:9] not in (b"{", b""):  # a safetensors header is a JSON table
+        if blob.startswith(_EXPORT_FILE):
+            raise ModelFileError(
+                f"{path}: an export file (from tagger export), not a model file; "
+                "only tag --backend onnx reads it"
+            )
         if blob.startswith(_ARCHIVE_OR_PICKLE):
             raise ModelFileError(
                 f"{path}: not a tagger model file (it looks like a pickle or zip archive, "

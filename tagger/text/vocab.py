@@ -13,6 +13,9 @@ if TYPE_CHECKING:
 
 PAD = "<pad>"
 UNK = "<unk>"
+MAX_TOKEN_CHARS = (
+    24  # longer tokens keep their first and last 12 characters: affixes carry the signal
+)
 
 
 def normalise_word(word: str, lowercase: bool, digits_to_zero: bool) -> str:
@@ -62,6 +65,14 @@ class Vocab:
         return cls(data["items"], specials=data["specials"])
 
 
+def clip_chars(token: str) -> str:
+    """The characters of ``token`` the character encoder reads (see MAX_TOKEN_CHARS)."""
+    if len(token) <= MAX_TOKEN_CHARS:
+        return token
+    half = MAX_TOKEN_CHARS // 2
+    return token[:half] + token[-half:]
+
+
 @dataclass
 class Vocabularies:
     words: Vocab
@@ -76,6 +87,10 @@ class Vocabularies:
 
     def word_key(self, token: str) -> str:
         return normalise_word(token, self.lowercase, self.digits_to_zero)
+
+    def char_ids(self, token: str) -> list[int]:
+        """The character ids the character encoder reads for ``token`` (never empty)."""
+        return self.chars.encode(clip_chars(token)) or [1]
 
     def to_dict(self) -> dict:
         return {

@@ -1,0 +1,221 @@
+"""`ExportedTagger`: a `Tagger` whose network runs as ONNX graphs in onnxruntime and whose labels
+are decoded in numpy (`tagger.apply.label_decoding`), read from an export file
+(`tagger.apply.export_file`). This module and what it imports never import torch, so tagging
+with `--backend onnx` works where torch is not installed.
+
+Everything around the network is the torch tagger's own: tokenising, feature ids, the engine and
+output formats, span scores, the review flag's certainty and the calibration temperature. The
+work per call follows `tagger.apply.predict`: each distinct token's word and character ids are
+looked up once, its character features computed once ("characters" graph), then sentences of
+similar length are batched through the "words" graph.
+"""
+
+from __future__ import annotations
+
+import importlib.util
+from collections.abc import Iterator, Sequence
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+from tagger.apply.export_file import read_export_file
+from tagger.apply.label_decoding import LabelDecoder, argmax_paths, softmax
+from tagger.apply.review import ScoredSentence
+from tagger.apply.tagger import PREDICT_BATCH, Rows, Tagger
+from tagger.errors import ConfigError, ModelFileError
+from tagger.network.metadata import read_stored_model
+
+CHAR_BLOCK = 4096  # distinct tokens through the characters graph at a time
+
+
+def require_runtime() -> None:
+    """ConfigError naming what to install when onnxruntime is missing."""
+    if importlib.util.find_spec("onnxruntime") is None:
+        raise ConfigError(
+            "tagging with --backend onnx needs onnxruntime: pip install 'tagger[onnx]'"
+        )
+
+
+def _decoding(record: Any, labels: int, path: str | Path) -> dict[str, Any]:
+    """The export file's CRF table, its shapes checked against the label count."""
+    ok = isinstance(record, dict)
+    if ok:
+        try:
+            shapes = {
+                name: np.asarray(record[name], dtype=np.float64).shape
+                for name in ("start", "end", "transitions", "start_ok", "end_ok", "transitions_ok")
+            }
+        except (KeyError, ValueError, TypeError):
+            ok = False
+        else:
+            square = (labels, labels)
+            ok = all(
+                shapes[name] == (square if name.startswith("transitions") else (labels,))
+                for name in shapes
+            )
+    if not ok:
+        raise ModelFileError(
+            f"{path}: export file is corrupted (its CRF scores do not fit {labels} labels)"
+        )
+    return record
+
+
+@dataclass
+class ExportedTagger(Tagger):
+    """A tagger read from an export file: ``ExportedTagger.load(path).tag(["some text"])``.
+    Its ``net`` is None; ``sessions`` holds the onnxruntime session of each graph."""
+
+    sessions: dict[str, Any] = field(default_factory=dict)
+    decoding: dict[str, Any] | None = None  # the CRF's scores and flags; None: softmax output
+    weights: str = "float32"
+
+    @classmethod
+    def load(cls, path: str | Path, threads: int | None = None) -> ExportedTagger:
+        """Read and check an export file and open its graphs; ``threads`` (None or 0:
+        onnxruntime's default) sets the threads of each graph's run."""
+        require_runtime()
+        import onnxruntime
+
+        header, graphs = read_export_file(path)
+        stored = read_stored_model(header["model"], path)
+        if stored.vocabs.subwords is not None or stored.vocabs.char_lm is not None:
+            raise ModelFileError(f"{path}: export file holds a model this tagger cannot run")
+        wanted = {"words"} | (
+            {"characters"} if stored.config.model.char_encoder != "none" else set()
+        )
+        if set(graphs) != wanted:
+            raise ModelFileError(
+                f"{path}: export file is corrupted (graphs {sorted(graphs)}; "
+                f"expected {sorted(wanted)})"
+            )
+        decoding = None
+        if stored.config.model.output == "crf":
+            decoding = _decoding(header.get("decoding"), len(stored.vocabs.labels), path)
+        options = onnxruntime.SessionOptions()
+        options.intra_op_num_threads = threads or 0
+        options.inter_op_num_threads = 1
+        options.log_severity_level = 3  # errors only: stderr carries the command's own lines
+        sessions = {}
+        for name, graph in graphs.items():
+            try:
+                sessions[name] = onnxruntime.InferenceSession(
+                    graph, options, providers=["CPUExecutionProvider"]
+                )
+            except Exception as error:  # onnxruntime's own error types are not public
+                detail = " ".join(str(error).split())[:160]
+                raise ModelFileError(
+                    f"{path}: export file's graph {name!r} cannot be loaded ({detail})"
+                ) from None
+        meta = header["model"]
+        return cls(
+            None,  # type: ignore[arg-type]  # no torch network
+            stored.vocabs,
+            stored.config,
+            stored.input_scheme,
+            meta,
+            stored.features,
+            [],
+            sessions,
+            decoding,
+            header["weights"],
+        )
+
+    def save(self, path: str | Path, extra: dict[str, Any] | None = None) -> None:
+        raise ModelFileError(
+            f"{path}: a model read from an export file cannot be saved as a model file"
+        )
+
+    # --- the network, in onnxruntime -----------------------------------------------------------
+
+    def _char_table(self, chars: list[list[int]]) -> np.ndarray | None:
+        """(N+1, F): row 0 (padding) zeros, then each distinct token's character features."""
+        session = self.sessions.get("characters")
+        if session is None:
+            return None
+        order = sorted(range(len(chars)), key=lambda i: len(chars[i]))
+        table: np.ndarray | None = None
+        for first in range(0, len(order), CHAR_BLOCK):
+            chosen = order[first : first + CHAR_BLOCK]
+            padded = np.zeros((len(chosen), len(chars[chosen[-1]])), dtype=np.int64)
+            for row, i in enumerate(chosen):
+                padded[row, : len(chars[i])] = chars[i]
+            (features,) = session.run(None, {"chars": padded})  # (n, F)
+            if table is None:
+                table = np.zeros((len(chars) + 1, features.shape[1]), dtype=np.float32)
+            table[np.asarray(chosen) + 1] = features
+        return table
+
+    def emission_batches(
+        self, token_lists: Sequence[Sequence[str]], batch_size: int, rows: Rows | None = None
+    ) -> Iterator[tuple[list[int], np.ndarray, np.ndarray]]:
+        """(indices into ``token_lists``, emissions (B, T, L), mask (B, T)) per batch of the
+        non-empty sentences, sentences of similar length together (indices not in order)."""
+        features = self.feature_ids(token_lists, rows)  # before any work: may refuse the input
+        distinct: dict[str, int] = {}
+        token_rows = [
+            [distinct.setdefault(t, len(distinct) + 1) for t in tokens] for tokens in token_lists
+        ]
+        vocabs = self.vocabs
+        word_of = np.asarray([0, *(vocabs.words.index(vocabs.word_key(t)) for t in distinct)])
+        char_table = self._char_table([vocabs.char_ids(t) for t in distinct]) if distinct else None
+        real = sorted(
+            (i for i, tokens in enumerate(token_lists) if tokens), key=lambda i: len(token_lists[i])
+        )
+        words = self.sessions["words"]
+        for first in range(0, len(real), batch_size):
+            indices = real[first : first + batch_size]
+            lengths = [len(token_rows[i]) for i in indices]
+            ids = np.zeros((len(indices), max(lengths)), dtype=np.int64)  # (B, T)
+            for b, i in enumerate(indices):
+                ids[b, : lengths[b]] = token_rows[i]
+            inputs = {"words": word_of[ids], "lengths": np.asarray(lengths, dtype=np.int64)}
+            if char_table is not None:
+                inputs["char_features"] = char_table[ids]  # (B, T, F)
+            if self.features is not None:
+                slots = np.zeros((*ids.shape, len(features[indices[0]] or [])), dtype=np.int64)
+                for b, i in enumerate(indices):
+                    slots[b, : lengths[b]] = np.asarray(features[i], dtype=np.int64).T
+                inputs["feature_ids"] = slots  # (B, T, K)
+            (emissions,) = words.run(None, inputs)
+            yield indices, emissions, ids != 0
+
+    # --- prediction ----------------------------------------------------------------------------
+
+    def predict_sentences(
+        self,
+        token_lists: Sequence[Sequence[str]],
+        batch_size: int = PREDICT_BATCH,
+        with_scores: bool = True,
+        rows: Rows | None = None,
+        temperature: float | None = None,
+    ) -> list[ScoredSentence]:
+        """As `Tagger.predict_sentences`, computed by the graphs and numpy."""
+        temperature = self.temperature if temperature is None else temperature
+        plain = tempered = None
+        if self.decoding is not None:
+            plain = LabelDecoder.from_record(self.decoding)
+            tempered = LabelDecoder.from_record(self.decoding, temperature)
+        result = [ScoredSentence([]) for _ in token_lists]
+        for indices, emissions, mask in self.emission_batches(token_lists, batch_size, rows):
+            paths = plain.decode(emissions, mask) if plain else argmax_paths(emissions, mask)
+            if not with_scores:
+                for i, path in zip(indices, paths, strict=True):
+                    spans = [(t, s, e, 1.0) for t, s, e in self.label_ids_to_spans(path)]
+                    result[i] = ScoredSentence(spans)
+                continue
+            if tempered is not None:
+                probabilities = tempered.marginals(emissions / temperature, mask)
+            else:
+                probabilities = softmax(emissions, temperature)
+            chosen = np.zeros(mask.shape, dtype=np.int64)  # (B, T) decoded label ids
+            for b, path in enumerate(paths):
+                chosen[b, : len(path)] = path
+            picked = np.take_along_axis(probabilities, chosen[:, :, None], axis=2)[:, :, 0]
+            for i, path, p in zip(indices, paths, picked.tolist(), strict=True):
+                # exp() of a log-probability may overshoot 1 by a rounding error
+                sure = [min(1.0, q) for q in p[: len(path)]]
+                spans = [(t, s, e, min(sure[s:e])) for t, s, e in self.label_ids_to_spans(path)]
+                result[i] = ScoredSentence(spans, min(sure))
+        return result
