@@ -14,7 +14,7 @@ import torch
 from tagger.apply.tagger import Tagger
 from tagger.config import config_from_dict
 from tagger.data.corpus import Sentence
-from tagger.errors import DataError, ModelFileError
+from tagger.errors import ConfigError, DataError, ModelFileError
 from tagger.network.char_lm import CharLanguageModel
 from tagger.network.net import build_net
 from tagger.network.shapes import char_lm_tensor_count, char_lm_tensors
@@ -109,6 +109,22 @@ def test_resuming_with_other_settings_or_nothing_to_resume_is_refused(tmp_path: 
     (tmp_path / "raw.txt").write_text(raw_text(20), encoding="utf-8")
     with pytest.raises(DataError, match="nothing to resume"):
         learn_char_lm([tmp_path / "raw.txt"], tmp_path / "x.tagclm", SMALL, resume=True)
+    stopped = CharLMSettings(**{**SMALL.__dict__, "checkpoint_minutes": 0.0})
+
+    def interrupt(event: dict) -> None:
+        if event["event"] == "batch" and event["done"] > 0.2:  # after a state was saved
+            raise KeyboardInterrupt
+
+    out = tmp_path / "y.tagclm"
+    with pytest.raises(KeyboardInterrupt):
+        learn_char_lm([tmp_path / "raw.txt"], out, stopped, progress=interrupt)
+    with pytest.raises(ConfigError, match="other settings"):
+        wider = CharLMSettings(**{**stopped.__dict__, "hidden_size": 30})
+        learn_char_lm([tmp_path / "raw.txt"], out, wider, resume=True)
+    # the time budget and the threads may change: they do not change what is learnt
+    longer = CharLMSettings(**{**stopped.__dict__, "max_minutes": 90.0, "threads": 2})
+    learn_char_lm([tmp_path / "raw.txt"], out, longer, resume=True)
+    assert out.exists() and not resume_path(out).exists()
 
 
 def test_a_damaged_or_foreign_file_is_one_line_naming_it(tmp_path: Path) -> None:

@@ -259,6 +259,20 @@ def _save_state(
     save_char_lm(path, model, tokenizer.to_dict(), {}, where, torch.get_rng_state())
 
 
+RESUMABLE = ("threads", "checkpoint_minutes", "max_minutes")  # a resumed run may change these
+
+
+def _same_run(stored: object, settings: CharLMSettings) -> bool:
+    """Were the stored settings those of `settings`, apart from what does not change the model
+    (threads, how often the state is saved, the time budget)?"""
+    if not isinstance(stored, dict):
+        return False
+    ours = asdict(settings)
+    return {k: v for k, v in stored.items() if k not in RESUMABLE} == {
+        k: v for k, v in ours.items() if k not in RESUMABLE
+    }
+
+
 def _resume(
     path: Path,
     model: CharLanguageModel,
@@ -270,7 +284,7 @@ def _resume(
         raise DataError("nothing to resume: no resume state beside the output", str(path))
     stored, meta, extra = load_char_lm(path, resume_state=True)
     position = meta.get("position") or {}
-    if position.get("settings") != asdict(settings) or stored.spec.to_dict() != spec.to_dict():
+    if not _same_run(position.get("settings"), settings) or stored.spec.to_dict() != spec.to_dict():
         raise ConfigError(
             f"{path}: the resume state was made with other settings or text; run without "
             "--resume to start again"
