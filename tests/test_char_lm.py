@@ -112,7 +112,7 @@ def test_resuming_with_other_settings_or_nothing_to_resume_is_refused(tmp_path: 
     stopped = CharLMSettings(**{**SMALL.__dict__, "checkpoint_minutes": 0.0})
 
     def interrupt(event: dict) -> None:
-        if event["event"] == "batch" and event["done"] > 0.2:  # after a state was saved
+        if event["event"] == "batch" and event["done"] > 0.3:  # after a state was saved
             raise KeyboardInterrupt
 
     out = tmp_path / "y.tagclm"
