@@ -14,7 +14,7 @@ train.max_minutes bounded by --minutes) and tags data/demo/test.txt:
     vectors   plus model.pretrained_vectors: vectors learnt first by
               `tagger learn-vectors data/demo/unannotated.txt.gz --config configs/default.toml`
               (timed; --vector-dim and --vector-epochs pass on; --reuse-vectors keeps a file
-              learnt before), read the default way (model.vectors_use = both)
+              learnt before), read with model.vectors_use = both
     vectors-fixed, vectors-initialise
               the same vectors with model.vectors_use = fixed or initialise
     vectors-lexicon
@@ -78,10 +78,11 @@ VARIANTS: dict[str, list[str]] = {
     "words": [],
     "lexicon": [_WITH_LEXICON],
     "shape": [_WITH_LEXICON, "model.word_shape=true"],
-    "vectors": [_WITH_VECTORS],
+    # "vectors" keeps the use it was recorded with, both (the default then; fixed is now)
+    "vectors": [_WITH_VECTORS, 'model.vectors_use="both"'],
     "vectors-fixed": [_WITH_VECTORS, 'model.vectors_use="fixed"'],
     "vectors-initialise": [_WITH_VECTORS, 'model.vectors_use="initialise"'],
-    "vectors-lexicon": [_WITH_VECTORS, _WITH_LEXICON],
+    "vectors-lexicon": [_WITH_VECTORS, _WITH_LEXICON, 'model.vectors_use="both"'],
 }
 LEXICON_TYPES = ("COMPONENT", "DEFECT")
 
