@@ -173,6 +173,8 @@ def train(
                 f"(run folder {out})"
             )
             raise typer.Exit(code) from None
+    if result.rank:  # under torchrun, rank 0 says how the run ended
+        raise typer.Exit(1 if result.diverged else 0)
     if result.diverged:
         say(f"tagger: error: {result.stop_reason}")
         raise typer.Exit(1)

@@ -20,6 +20,7 @@ and the checkpoint. When the epochs end, the saved model's temperature is fitted
 
 from __future__ import annotations
 
+import contextlib
 import random
 from collections.abc import Callable, Sequence
 from dataclasses import dataclass, field
@@ -44,6 +45,7 @@ from tagger.training.data import (
     prepare_sentences,
     read_training_files,
 )
+from tagger.training.distributed import Ranks, process_group, rank_steps, shared_checkpoint
 from tagger.training.overview import data_warnings, earliest_stop, run_overview
 from tagger.training.records import (
     CHECKPOINT_NAME,
@@ -56,7 +58,7 @@ from tagger.training.records import (
 from tagger.training.run_folder import RunFolder, check_named_files, run_folder
 from tagger.training.schedule import end_epoch, learning_rate, new_schedule
 from tagger.training.setup import TrainingSetup, new_network, setup_training, step_tools
-from tagger.training.step import LossNotFinite, StepTools, train_step
+from tagger.training.step import LossNotFinite, StepShare, StepTools, train_step
 
 Progress = Callable[[dict[str, Any]], None]
 
@@ -70,6 +72,7 @@ class TrainResult:
     diverged: bool
     run_dir: Path
     notes: list[str] = field(default_factory=list)
+    rank: int = 0  # under torchrun, this process's rank; only rank 0 wrote the run folder
 
     @property
     def model_path(self) -> Path:
@@ -89,12 +92,12 @@ def train(
     One run at a time in a folder: a second one is refused (FolderBusyError). A folder holding
     a run is refused (OutputError) unless `resume` continues it or `overwrite` replaces it."""
     check_named_files(config)
-    with run_folder(Path(run_dir), resume, overwrite) as folder:
+    with process_group() as ranks, _folder(ranks, Path(run_dir), resume, overwrite) as folder:
         train_sentences, dev_sentences = read_training_files(config)
         data = prepare_sentences(
             config, train_sentences, dev_sentences, config.data.train, config.data.dev or None
         )
-        return _train(config, data, folder, resume, progress or (lambda event: None))
+        return _train(config, data, folder, resume, _reporter(ranks, progress), ranks)
 
 
 def train_on_sentences(
@@ -110,13 +113,35 @@ def train_on_sentences(
     `train` does on files. Without dev sentences, dev is held out of train as data.dev_fraction
     and data.dev_holdout say. data.train and data.dev are not read, only recorded in the model."""
     check_named_files(config, data_files=False)
-    with run_folder(Path(run_dir), resume, overwrite) as folder:
+    with process_group() as ranks, _folder(ranks, Path(run_dir), resume, overwrite) as folder:
         data = prepare_sentences(config, train_sentences, dev_sentences)
-        return _train(config, data, folder, resume, progress or (lambda event: None))
+        return _train(config, data, folder, resume, _reporter(ranks, progress), ranks)
+
+
+def _folder(
+    ranks: Ranks, path: Path, resume: bool, overwrite: bool
+) -> contextlib.AbstractContextManager[RunFolder]:
+    """The run folder, made, checked and held by rank 0 alone; the other ranks never write in
+    it (nor need to see it: the checkpoint reaches them from rank 0)."""
+    if ranks.lead:
+        return run_folder(path, resume, overwrite)
+    return contextlib.nullcontext(RunFolder(path, overwrite=False))
+
+
+def _reporter(ranks: Ranks, progress: Progress | None) -> Progress:
+    """Progress is told by rank 0 only, so a run on several ranks prints one run's lines."""
+    if progress is None or not ranks.lead:
+        return lambda event: None
+    return progress
 
 
 def _train(
-    config: Config, data: PreparedData, folder: RunFolder, resume: bool, report: Progress
+    config: Config,
+    data: PreparedData,
+    folder: RunFolder,
+    resume: bool,
+    report: Progress,
+    ranks: Ranks,
 ) -> TrainResult:
     run_dir = folder.path
     if folder.renamed:
@@ -132,13 +157,19 @@ def _train(
     if vectors_note:
         report(events.note(vectors_note))
     tools = step_tools(config, setup, net)
+    # Wrapping checks that every rank built the same network (a collective: every rank is here,
+    # rank 0 holding the run folder, before any reads the checkpoint).
+    tools.replica, tools.total = ranks.replicate(net), (ranks.total if ranks.spread else None)
     schedule = new_schedule(config, tools.optimizer)
-    state = _resume(run_dir, config, data, tools, schedule, report) if resume else RunState()
-    folder.begin()
-    write_guide(run_dir, config)
-    write_config(run_dir, config)
+    state = _resume(run_dir, config, data, tools, schedule, report, ranks) if resume else RunState()
+    if ranks.lead:
+        folder.begin()
+        write_guide(run_dir, config)
+        write_config(run_dir, config)
     parameters = sum(p.numel() for p in net.parameters())
     report(events.start(run_overview(config, data, parameters, run_dir, state.epoch + 1)))
+    if ranks.spread:
+        report(events.note(f"training on {ranks.world} processes (torch.distributed, gloo)"))
     for message in data.notes:
         report(events.note(message))
     warnings = data_warnings(data)
@@ -161,29 +192,45 @@ def _train(
     first = epochs + 1 if state.stop else state.epoch + 1  # a stopped run stays stopped
     for epoch in range(first, epochs + 1):
         started = now()
-        totals = _train_epoch(tools, setup.encoded, config, epoch, state, clock, report)
+        totals = _train_epoch(tools, setup.encoded, config, epoch, state, clock, report, ranks)
         if totals.not_finite is not None:
             diverged = True
             stop_reason = _diverged_reason(totals.not_finite, epoch, state, run_dir)
             break
         train_seconds = now() - started
-        dev = score_sentences(scored, data.dev, data.dev_spans)
+        # Dev is scored once, by rank 0; every rank takes its scores and its stop decision
+        # (its clock is the one that counts), so all keep the same state and stop together.
+        dev = ranks.share(score_sentences(scored, data.dev, data.dev_spans) if ranks.lead else None)
         improved = state.score(epoch, dev)
-        if improved:
+        if improved and ranks.lead:
             scored.save(run_dir / MODEL_NAME, {**meta, "epoch": epoch, "dev_metrics": dev})
         seconds = (train_seconds, now() - started)
         row = _history_row(epoch, totals, dev, learning_rate(tools.optimizer), seconds, improved)
         end_epoch(schedule, dev["micro"]["f1"])
-        row["stop"] = _stop_reason(state, config, clock, epoch)
+        row["stop"] = ranks.share(_stop_reason(state, config, clock, epoch) if ranks.lead else "")
         state.history.append(row)
         state.epoch, state.seconds_used = epoch, clock.used()
-        write_history(run_dir, state.history)
-        save_checkpoint(run_dir / CHECKPOINT_NAME, config, data.fingerprint, tools, schedule, state)
+        if ranks.lead:
+            write_history(run_dir, state.history)
+            save_checkpoint(
+                run_dir / CHECKPOINT_NAME, config, data.fingerprint, tools, schedule, state
+            )
         report(events.epoch(row, state.best_f1, state.best_epoch))
         if row["stop"]:
             stop_reason = row["stop"]
             break
 
+    if not ranks.lead:
+        return TrainResult(
+            state.history,
+            state.best_epoch,
+            state.best_dev,
+            stop_reason,
+            diverged,
+            run_dir,
+            data.notes,
+            ranks.rank,
+        )
     calibration = None
     if state.best_epoch and (run_dir / MODEL_NAME).exists():
         calibration = calibrate_model_file(run_dir / MODEL_NAME, data.dev, data.dev_spans)
@@ -229,6 +276,13 @@ def _epoch_seed(seed: int, epoch: int) -> int:
     return seed * 1_000_003 + epoch
 
 
+def epoch_batches(encoded: list[EncodedSentence], config: Config, epoch: int) -> list[list[int]]:
+    """The epoch's length-bucketed batches (sentence indices), shuffled by (seed, epoch): the
+    same list on every rank."""
+    rng = random.Random(_epoch_seed(config.train.seed, epoch))
+    return bucketed_batches([len(e.words) for e in encoded], config.train.batch_size, rng)
+
+
 def _train_epoch(
     tools: StepTools,
     encoded: list[EncodedSentence],
@@ -237,25 +291,30 @@ def _train_epoch(
     state: RunState,
     clock: RunClock,
     report: Progress,
+    ranks: Ranks,
 ) -> EpochTotals:
-    """One pass over the training sentences in seeded batches, a batch event after each step."""
-    rng = random.Random(_epoch_seed(config.train.seed, epoch))
-    torch.manual_seed(_epoch_seed(config.train.seed, epoch))
+    """One pass over the training sentences in seeded batches, a batch event after each step.
+    On several ranks, each trains on its share of the batches (`rank_steps`); the loss and
+    tokens counted are those of the whole step, over every rank."""
+    torch.manual_seed(ranks.seed(_epoch_seed(config.train.seed, epoch)))
     tools.net.train()
-    batches = bucketed_batches([len(e.words) for e in encoded], config.train.batch_size, rng)
+    steps = rank_steps(epoch_batches(encoded, config, epoch), ranks.world)
     started = now()
     totals = EpochTotals()
-    for number, indices in enumerate(batches, start=1):
-        batch = collate(encoded, indices)
+    for number, step in enumerate(steps, start=1):
+        batch = collate(encoded, step[ranks.rank])
+        share = None
+        if ranks.spread:
+            share = StepShare(ranks.world, sum(len(indices) for indices in step))
         try:
-            totals.loss += train_step(tools, batch)
+            totals.loss += train_step(tools, batch, share)
         except LossNotFinite as error:
             totals.not_finite = (number, error.value)
             return totals
-        totals.tokens += batch.tokens
+        totals.tokens += sum(len(encoded[i].words) for indices in step for i in indices)
         elapsed = now() - started
         epoch_left, run_left = seconds_left(
-            state.history, elapsed, number, len(batches), config.train.epochs - epoch
+            state.history, elapsed, number, len(steps), config.train.epochs - epoch
         )
         stop_at = earliest_stop(epoch, config.train.epochs, config.train.patience, state.bad_epochs)
         report(
@@ -263,7 +322,7 @@ def _train_epoch(
                 epoch,
                 config.train.epochs,
                 number,
-                len(batches),
+                len(steps),
                 totals.loss / max(totals.tokens, 1),
                 totals.tokens / max(elapsed, 1e-9),
                 (epoch_left, clock.capped(run_left)),
@@ -281,19 +340,24 @@ def _resume(
     tools: StepTools,
     schedule: LRScheduler | None,
     report: Progress,
+    ranks: Ranks,
 ) -> RunState:
     checkpoint = run_dir / CHECKPOINT_NAME
-    if not checkpoint.exists():
+    state = shared_checkpoint(
+        ranks,
+        checkpoint,
+        lambda path: restore_checkpoint(
+            path,
+            config,
+            data.fingerprint,
+            tools,
+            schedule,
+            note=lambda message: report(events.note(message)),
+        ),
+    )
+    if state is None:
         report(events.note(f"no checkpoint in {run_dir}: starting from the beginning"))
         return RunState()
-    state = restore_checkpoint(
-        checkpoint,
-        config,
-        data.fingerprint,
-        tools,
-        schedule,
-        note=lambda message: report(events.note(message)),
-    )
     budget = ""
     if config.train.max_minutes:
         budget = (

@@ -58,6 +58,45 @@ class StepTools:
     rare: RareItems
     unknown_replace: float  # chance a rare item is read as unknown
     clip_norm: float  # 0: no clipping
+    # Training on several processes (tagger.training.distributed): the batch loss wrapped so
+    # that backward averages gradients over the ranks, and the sum of a number over the ranks.
+    replica: torch.nn.Module | None = None
+    total: Callable[[float], float] | None = None
+
+
+@dataclass(frozen=True)
+class StepShare:
+    """One rank's part of a step that several processes train together."""
+
+    ranks: int  # processes training together
+    sentences: int  # sentences in the step's batches over all ranks
+
+
+class BatchLoss(torch.nn.Module):
+    """The summed loss of a batch as a module's forward, which DistributedDataParallel wraps."""
+
+    def __init__(self, net: TaggerNet) -> None:
+        super().__init__()
+        self.net = net
+
+    def forward(
+        self,
+        words: torch.Tensor,
+        batch: Batch,
+        features: torch.Tensor | None,
+    ) -> torch.Tensor:
+        return batch_loss(self.net, words, batch, features)
+
+
+def batch_loss(
+    net: TaggerNet, words: torch.Tensor, batch: Batch, features: torch.Tensor | None
+) -> torch.Tensor:
+    """The batch's summed loss, read with `words` and `features` (after unknown words)."""
+    emissions = net.emissions(
+        words, batch.chars, batch.lengths, features=features, fixed=batch.bags, lm=batch.lm
+    )
+    assert batch.labels is not None, "a training batch has labels"
+    return net.loss(emissions, batch.labels, batch.mask)
 
 
 @dataclass
@@ -68,7 +107,8 @@ class StepWork:
     words: torch.Tensor | None = None  # (B, T) word ids after unknown-word replacement
     features: torch.Tensor | None = None  # (B, T, slots) feature ids after replacement
     loss: torch.Tensor | None = None  # summed over the batch's sentences
-    loss_value: float = 0.0
+    loss_value: float = 0.0  # summed over the step's sentences (over every rank's batch)
+    share: StepShare | None = None  # None: one process trains the step alone
 
 
 def read_rare_as_unknown(tools: StepTools, work: StepWork) -> None:
@@ -89,29 +129,32 @@ def read_rare_as_unknown(tools: StepTools, work: StepWork) -> None:
 
 
 def forward(tools: StepTools, work: StepWork) -> None:
-    """The summed loss of the batch; raises LossNotFinite when it is NaN or infinite."""
-    batch = work.batch
+    """The summed loss of the batch; raises LossNotFinite when it is NaN or infinite (on any
+    rank: every rank sees the sum over all, so all of them stop at the same step)."""
     assert work.words is not None, "read_rare_as_unknown runs first"
-    emissions = tools.net.emissions(
-        work.words,
-        batch.chars,
-        batch.lengths,
-        features=work.features,
-        fixed=batch.bags,
-        lm=batch.lm,
-    )
-    assert batch.labels is not None, "a training batch has labels"
-    work.loss = tools.net.loss(emissions, batch.labels, batch.mask)
+    if tools.replica is not None:
+        work.loss = tools.replica(work.words, work.batch, work.features)
+    else:
+        work.loss = batch_loss(tools.net, work.words, work.batch, work.features)
     work.loss_value = work.loss.item()
+    if tools.total is not None:
+        work.loss_value = tools.total(work.loss_value)
     if not math.isfinite(work.loss_value):
         raise LossNotFinite(work.loss_value)
 
 
 def backward(tools: StepTools, work: StepWork) -> None:
-    """Gradients of the loss per sentence, so the step size does not grow with the batch."""
+    """Gradients of the loss per sentence, so the step size does not grow with the batch.
+
+    On several ranks, each scales its summed loss by ranks / (the step's sentences over all
+    ranks): the average of the ranks' gradients is then the gradient of the mean loss over every
+    sentence of the step, as one process trained on all the step's batches put together."""
     assert work.loss is not None, "forward runs first"
     tools.optimizer.zero_grad(set_to_none=True)
-    (work.loss / len(work.batch.indices)).backward()
+    if work.share is None:
+        (work.loss / len(work.batch.indices)).backward()
+    else:
+        (work.loss * (work.share.ranks / work.share.sentences)).backward()
 
 
 def clip_gradients(tools: StepTools, work: StepWork) -> None:
@@ -139,10 +182,11 @@ STEP_PHASES: tuple[tuple[str, Phase], ...] = (
 )
 
 
-def train_step(tools: StepTools, batch: Batch) -> float:
-    """Train on one batch; returns its summed loss. Raises LossNotFinite before any update when
-    the loss is not finite. Random draws come from torch's global generator."""
-    work = StepWork(batch)
+def train_step(tools: StepTools, batch: Batch, share: StepShare | None = None) -> float:
+    """Train on one batch; returns its summed loss (on several ranks, `share` says the step's
+    size, and the loss is summed over every rank's batch). Raises LossNotFinite before any
+    update when the loss is not finite. Random draws come from torch's global generator."""
+    work = StepWork(batch, share=share)
     for _, phase in STEP_PHASES:
         phase(tools, work)
     return work.loss_value
