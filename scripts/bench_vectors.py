@@ -204,7 +204,7 @@ def render(record: dict) -> str:
     if char_lm:
         lines += [
             f"Character language models: `{char_lm['command']}` took {char_lm['seconds']:.0f} s "
-            f"({char_lm['stopped']}) over {char_lm['characters']:,} characters; held-out "
+            f"({char_lm['stopped']}) on a text of {char_lm['characters']:,} characters; held-out "
             f"perplexity {char_lm['held_out_perplexity']:.2f} per character against "
             f"{char_lm['unigram_perplexity']:.2f} for a unigram model.",
             "",

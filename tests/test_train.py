@@ -277,7 +277,7 @@ def test_pretrained_vectors_initialise_the_embedding(
     config = small_config(
         data,
         data,
-        model={"pretrained_vectors": str(tmp_path / "vectors.txt")},
+        model={"pretrained_vectors": str(tmp_path / "vectors.txt"), "vectors_use": "initialise"},
         train={"epochs": 1, "learning_rate": 0.0},
     )
     result = train(config, tmp_path / "run")
@@ -285,6 +285,21 @@ def test_pretrained_vectors_initialise_the_embedding(
     weight = tagger.net.words.weight
     assert torch.allclose(weight[tagger.vocabs.words.index("bearing")], torch.full((16,), 0.5))
     assert torch.allclose(weight[tagger.vocabs.words.index("leak")], torch.full((16,), -0.25))
+    assert tagger.net.fixed_vectors is None
+
+
+def test_by_default_text_vectors_become_a_frozen_table(tiny_files: Path, tmp_path: Path) -> None:
+    lines = ["bearing " + " ".join(["0.5"] * 16), "unseen " + " ".join(["-0.25"] * 16)]
+    (tmp_path / "vectors.txt").write_text("\n".join(lines) + "\n")
+    data = tiny_files / "train.txt"
+    config = small_config(data, data, model={"pretrained_vectors": str(tmp_path / "vectors.txt")})
+    tagger = Tagger.load(train(config, tmp_path / "run").model_path)
+    table = tagger.net.fixed_vectors.table
+    (encoded,) = tagger.encode([["unseen", "bearing", "gasket"]])
+    # a word of the file that train lacks reads its row; a word in neither reads zeros
+    assert torch.equal(table[encoded.bags[0]].mean(0), torch.full((16,), -0.25))
+    assert torch.equal(table[encoded.bags[1]].mean(0), torch.full((16,), 0.5))
+    assert encoded.bags[2] == []
 
 
 def test_with_weight_averaging_the_model_file_holds_the_average(
