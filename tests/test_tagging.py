@@ -284,6 +284,26 @@ def test_span_scores_are_brute_force_marginals(model: Path) -> None:
     assert tagger.predict_scored_spans([tokens]) == [tagger.predict_sentences([tokens])[0].spans]
 
 
+def test_a_sentence_scores_the_same_alone_and_beside_longer_ones(model: Path) -> None:
+    # In a batch the shorter sentences are padded, and the probabilities are 0 at padding: the
+    # certainty and the span scores must read the real tokens only.
+    tagger = Tagger.load(model)
+    sentences = [
+        _detokenised(s).replace(".", " .").replace(";", " ;").split()
+        for s in _sentences(7, 12, unseen=True)
+    ]
+    sentences.append(["T-14"])
+    assert len({len(s) for s in sentences}) > 3
+    together = tagger.predict_sentences(sentences, batch_size=len(sentences))
+    alone = [tagger.predict_sentences([s])[0] for s in sentences]
+    for a, b in zip(together, alone, strict=True):
+        assert [s[:3] for s in a.spans] == [s[:3] for s in b.spans]
+        assert [s[3] for s in a.spans] == pytest.approx([s[3] for s in b.spans], abs=1e-6)
+        assert a.certainty == pytest.approx(b.certainty, abs=1e-6)
+        assert 0 < a.certainty <= min([1.0, *(s[3] for s in a.spans)])
+    assert min(a.certainty for a in together) < 0.99  # unseen names leave the model unsure
+
+
 @settings(max_examples=300, deadline=None)
 @given(st.sampled_from(SCHEME_NAMES), st.data())
 def test_label_paths_read_as_tags_to_spans_reads_them(scheme: str, data: st.DataObject) -> None:
