@@ -3,7 +3,6 @@ learning-curve (whether more annotation pays)."""
 
 from __future__ import annotations
 
-import json
 from pathlib import Path
 from typing import Annotated, Any
 
@@ -13,9 +12,11 @@ from tagger.apply.documents import InputFormat
 from tagger.apply.pick_options import LengthNorm, Measure
 from tagger.cli.common import (
     AsJson,
+    ConfigOverrides,
     ModelFile,
     TokenColumn,
     app,
+    config_from_options,
     domain_errors,
     print_json,
     say,
@@ -182,12 +183,7 @@ def cross_validate(
             "--out", file_okay=False, help="Folder for each fold's run and cross-validation.json."
         ),
     ] = Path("runs/cross-validation"),
-    overrides: Annotated[
-        list[str] | None,
-        typer.Option(
-            "--set", help="Override a config key, e.g. --set train.epochs=10 (repeatable)."
-        ),
-    ] = None,
+    overrides: ConfigOverrides = None,
     overwrite: Annotated[
         bool,
         typer.Option("--overwrite", help="Replace the fold runs OUT already holds."),
@@ -206,7 +202,6 @@ def cross_validate(
 
     Documents (-DOCSTART- lines) stay whole in one fold; without them sentences are dealt at
     random (train.seed). Reports the mean and standard deviation of span F1 per type."""
-    from tagger.config import apply_overrides, load_config, resolve_paths
     from tagger.data.atomic import atomic_output
     from tagger.reports.annotation import format_cross_validation
     from tagger.reports.page import cross_validation_page, require_report_extra
@@ -216,11 +211,8 @@ def cross_validate(
     with domain_errors():
         if html is not None:
             require_report_extra()
-        config = load_config(config_path)
-        extra = list(overrides or [])
-        if train_file is not None:
-            extra.append(f"data.train={json.dumps(str(train_file))}")
-        config = resolve_paths(apply_overrides(config, extra), Path.cwd())
+        given = {"data.train": None if train_file is None else str(train_file)}
+        config = config_from_options(config_path, overrides, given)
 
     def progress(fold: int) -> Any:
         shown = TrainingProgress()
@@ -312,12 +304,7 @@ def learning_curve(
             "--out", file_okay=False, help="Folder for each model's run and learning-curve.json."
         ),
     ] = Path("runs/learning-curve"),
-    overrides: Annotated[
-        list[str] | None,
-        typer.Option(
-            "--set", help="Override a config key, e.g. --set train.epochs=10 (repeatable)."
-        ),
-    ] = None,
+    overrides: ConfigOverrides = None,
     overwrite: Annotated[
         bool,
         typer.Option("--overwrite", help="Replace the runs OUT already holds."),
@@ -337,7 +324,6 @@ def learning_curve(
 
     Each seed shuffles the sentences once and every share takes the start of that shuffle, so
     a larger share holds the smaller ones."""
-    from tagger.config import apply_overrides, load_config, resolve_paths
     from tagger.data.atomic import atomic_output
     from tagger.reports.annotation import format_learning_curve
     from tagger.reports.page import learning_curve_page, require_report_extra
@@ -348,13 +334,11 @@ def learning_curve(
     with domain_errors():
         if html is not None:
             require_report_extra()
-        config = load_config(config_path)
-        extra = list(overrides or [])
-        if train_file is not None:
-            extra.append(f"data.train={json.dumps(str(train_file))}")
-        if dev_file is not None:
-            extra.append(f"data.dev={json.dumps(str(dev_file))}")
-        config = resolve_paths(apply_overrides(config, extra), Path.cwd())
+        given = {
+            "data.train": None if train_file is None else str(train_file),
+            "data.dev": None if dev_file is None else str(dev_file),
+        }
+        config = config_from_options(config_path, overrides, given)
 
     def progress(point: Any) -> Any:
         shown = TrainingProgress()

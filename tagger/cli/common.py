@@ -177,6 +177,10 @@ Encoding = Annotated[
     str,
     typer.Option(help="Encoding of the column files, e.g. latin-1 or cp1252 for older files."),
 ]
+ConfigOverrides = Annotated[
+    list[str] | None,
+    typer.Option("--set", help="Override a config key, e.g. --set train.epochs=10 (repeatable)."),
+]
 AsJson = Annotated[
     bool, typer.Option("--json", help="Print machine-readable JSON instead of a table.")
 ]
@@ -345,3 +349,19 @@ def _must_be_a_file(name: str, argument: str) -> None:
         raise typer.BadParameter(f"file {name!r} is a directory.", param_hint=f"'{argument}'")
     if not path.exists():
         raise typer.BadParameter(f"file {name!r} does not exist.", param_hint=f"'{argument}'")
+
+
+def config_from_options(
+    config_path: Path | None, overrides: Sequence[str] | None, given: dict[str, Any]
+) -> Any:
+    """The config a training command runs: the file (or the defaults), then `--set`, then the
+    options given by name (`given`, key -> value; None: not given), which win over `--set`.
+
+    Paths in the config file are read from its folder; those given here, from the current one.
+    Made absolute, so that a run folder's resolved-config.toml reads back from anywhere."""
+    from tagger.config import apply_overrides, load_config, resolve_paths
+
+    config = load_config(config_path)
+    extra = list(overrides or [])
+    extra += [f"{key}={json.dumps(value)}" for key, value in given.items() if value is not None]
+    return resolve_paths(apply_overrides(config, extra), Path.cwd())

@@ -2,7 +2,6 @@
 
 from __future__ import annotations
 
-import json
 import sys
 from dataclasses import replace
 from pathlib import Path
@@ -12,11 +11,13 @@ import typer
 
 from tagger.cli.common import (
     AsJson,
+    ConfigOverrides,
     Encoding,
     ModelFile,
     app,
     checked_option_encoding,
     column_format,
+    config_from_options,
     domain_errors,
     input_argument,
     print_json,
@@ -94,12 +95,7 @@ def train(
             "--out", file_okay=False, help="Run folder for the model, checkpoint and history."
         ),
     ] = Path("runs/latest"),
-    overrides: Annotated[
-        list[str] | None,
-        typer.Option(
-            "--set", help="Override a config key, e.g. --set model.cell=gru (repeatable)."
-        ),
-    ] = None,
+    overrides: ConfigOverrides = None,
     resume: Annotated[
         bool, typer.Option("--resume", help="Continue from the run folder's last checkpoint.")
     ] = False,
@@ -131,7 +127,6 @@ def train(
     """Train a tagger; the best model by dev span F1 is written to OUT/model.tagger.
 
     The model keeps the column layout it was trained on, which evaluate reads gold files with."""
-    from tagger.config import apply_overrides, load_config, resolve_paths
     from tagger.training.loop import train as run_training
 
     if encoding is not None:
@@ -142,8 +137,6 @@ def train(
             param_hint="'--overwrite'",
         )
     with domain_errors():
-        config = load_config(config_path)
-        extra = list(overrides or [])
         given = {
             "data.train": None if train_file is None else str(train_file),
             "data.dev": None if dev_file is None else str(dev_file),
@@ -153,11 +146,7 @@ def train(
             "data.encoding": encoding,
             "train.threads": threads,
         }
-        # After --set: an option given by name wins over the same key set by --set.
-        extra += [f"{key}={json.dumps(value)}" for key, value in given.items() if value is not None]
-        # Paths in the config file are read from its folder; those given here, from the current
-        # one. Made absolute, so that the run folder's resolved-config.toml reads back from anywhere.
-        config = resolve_paths(apply_overrides(config, extra), Path.cwd())
+        config = config_from_options(config_path, overrides, given)
     with domain_errors(
         column_files=[name for name in (config.data.train, config.data.dev) if name]
     ):
