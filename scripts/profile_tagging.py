@@ -316,7 +316,12 @@ def render(r: dict) -> str:
         f"Model `{r['model']}` ({r['flops_per_token']:,} FLOPs a token for the encoder and "
         f"output layer), the command's own pipeline in one process, 1 thread, JSON Lines out; "
         f"matrix-product ceiling {r['ceiling_gflops']} GFLOP/s (1024^3 float32, measured in this "
-        "run). The machine is shared and busy: the figures are not clean, read shares and ratios.",
+        "run). "
+        + (
+            "The machine was quiet (load average under 1 before the run)."
+            if m["load_before"] < 1
+            else "The machine was busy: the figures are not clean, read shares and ratios."
+        ),
         "",
         "| | " + " | ".join(names) + " |",
         "|---|" + "---:|" * len(names),
