@@ -155,8 +155,8 @@ def recall_by_seen(
         raise ValueError(f"{len(gold)} gold sentences but {len(predicted)} predicted")
     found: Counter[tuple[str, str]] = Counter()  # (type, "seen"/"unseen") -> found
     total: Counter[tuple[str, str]] = Counter()
-    right: Counter[str] = Counter()  # type -> predicted spans that are right
-    tagged: Counter[str] = Counter()
+    right: Counter[tuple[str, str]] = Counter()  # (type, group) -> predicted spans that are right
+    tagged: Counter[tuple[str, str]] = Counter()
     for gold_sentence, predicted_sentence in zip(gold, predicted, strict=True):
         predicted_spans = {(m[0], edges) for m, edges in predicted_sentence}
         gold_spans = {(m[0], edges) for m, edges in gold_sentence}
@@ -165,16 +165,20 @@ def recall_by_seen(
             total[group] += 1
             found[group] += (mention[0], edges) in predicted_spans
         for mention, edges in predicted_sentence:
-            tagged[mention[0]] += 1
-            right[mention[0]] += (mention[0], edges) in gold_spans
+            group = (mention[0], "seen" if seen(mention) else "unseen")
+            tagged[group] += 1
+            right[group] += (mention[0], edges) in gold_spans
 
     def scores(kinds: list[str]) -> dict:
         def sum_of(counts: Counter, keys: list) -> int:
             return sum(counts[key] for key in keys)
 
-        hits = {g: sum_of(found, [(k, g) for k in kinds]) for g in ("seen", "unseen")}
-        mentions = {g: sum_of(total, [(k, g) for k in kinds]) for g in ("seen", "unseen")}
-        n_right, n_tagged = sum_of(right, kinds), sum_of(tagged, kinds)
+        groups = ("seen", "unseen")
+        hits = {g: sum_of(found, [(k, g) for k in kinds]) for g in groups}
+        mentions = {g: sum_of(total, [(k, g) for k in kinds]) for g in groups}
+        rights = {g: sum_of(right, [(k, g) for k in kinds]) for g in groups}
+        tags = {g: sum_of(tagged, [(k, g) for k in kinds]) for g in groups}
+        n_right, n_tagged = sum(rights.values()), sum(tags.values())
         n_found, n_gold = sum(hits.values()), sum(mentions.values())
         f1 = 2 * n_right / (n_tagged + n_gold) if n_tagged + n_gold else 0.0  # n_right == n_found
         entry: dict = {
@@ -182,15 +186,21 @@ def recall_by_seen(
             "recall": ratio(n_found, n_gold),
             "f1": round(f1, 4),
         }
-        for group in ("seen", "unseen"):
+        for group in groups:
+            # A predicted span is "unseen" when its own type and text are not in train: the
+            # precision of what the model says about names it never saw annotated.
+            both = mentions[group] + tags[group]
             entry[group] = {
                 "mentions": mentions[group],
                 "found": hits[group],
                 "recall": ratio(hits[group], mentions[group]),
+                "predicted": tags[group],
+                "precision": ratio(rights[group], tags[group]),
+                "f1": round((hits[group] + rights[group]) / both, 4) if both else 0.0,
             }
         return entry
 
-    types = sorted({kind for kind, _ in total} | set(tagged))
+    types = sorted({kind for kind, _ in total} | {kind for kind, _ in tagged})
     return {**{t: scores([t]) for t in types}, "all": scores(types)}
 
 

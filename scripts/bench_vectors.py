@@ -1,9 +1,14 @@
-"""Word vectors learnt from unannotated text, measured on BC5CDR: what they add to span F1 and to
-recall on test mentions seen and unseen in train, and what learning them costs.
+"""Word vectors learnt from unannotated text, measured on BC5CDR (or the demo): what they add to
+span F1 and to recall on test mentions seen and unseen in train, and what learning them costs.
 
     .venv/bin/python scripts/bench_vectors.py                         # every variant, seeds 1-3
     .venv/bin/python scripts/bench_vectors.py --seeds 1 --variants both fixed
     .venv/bin/python scripts/bench_vectors.py --seeds 1 --variants char-lm both+char-lm
+    .venv/bin/python scripts/bench_vectors.py --corpus demo --variants none fixed
+
+With `--corpus demo` the same steps run on the demo: vectors learnt from
+data/demo/unannotated.txt.gz, configs/default.toml trained on data/demo/train.txt with dev.txt,
+scored on test.txt; runs in runs/vectors-demo/, records benchmarks/vectors_demo.{json,md}.
 
 1. `tagger learn-vectors ../shared/corpora/unlabeled/biomed.txt.gz --config configs/bc5cdr.toml`
    (3.8 million tokens of biomedical text holding none of BC5CDR), timed; reused when present.
@@ -23,28 +28,76 @@ from __future__ import annotations
 
 import argparse
 import json
+import os
 import statistics
 import subprocess
 import sys
 import time
+from dataclasses import dataclass
 from pathlib import Path
 
 ROOT = Path(__file__).resolve().parents[1]
 sys.path.insert(0, str(ROOT))
 sys.path.insert(0, str(ROOT / "scripts"))
 
-from bench_mentions import BC5CDR, mention_set, recall_by_seen, sentence_mentions  # noqa: E402
+from bench_mentions import mention_set, recall_by_seen, sentence_mentions  # noqa: E402
 from benchlib import machine, portable_path  # noqa: E402
 
 from tagger.training.records import CHECKPOINT_NAME, HISTORY_NAMES, OUTCOME_NAME  # noqa: E402
 
 CORPORA = ROOT.parent / "shared" / "corpora"
-RAW = CORPORA / "unlabeled" / "biomed.txt.gz"
-DEV = CORPORA / "bc5cdr" / "devel.tsv"
-RUNS = ROOT / "runs" / "vectors"
-VECTORS = RUNS / "biomed.tagvec"
-RESULTS = ROOT / "benchmarks" / "vectors.json"
-SUMMARY = ROOT / "benchmarks" / "vectors.md"
+
+
+@dataclass(frozen=True)
+class Setting:
+    """One corpus with its raw text, config and where its runs and records go."""
+
+    title: str
+    raw: Path
+    raw_words: str  # how the records describe the raw text
+    config: str
+    train: Path
+    dev: Path
+    test: Path
+    runs: Path
+    results: Path
+    summary: Path
+
+    @property
+    def vectors(self) -> Path:
+        return self.runs / (self.raw.name.split(".")[0] + ".tagvec")
+
+    @property
+    def char_lm(self) -> Path:
+        return self.vectors.with_suffix(".tagclm")
+
+
+SETTINGS = {
+    "bc5cdr": Setting(
+        "BC5CDR",
+        CORPORA / "unlabeled" / "biomed.txt.gz",
+        "3.8 million tokens, none of BC5CDR",
+        "configs/bc5cdr.toml",
+        CORPORA / "bc5cdr" / "train.tsv",
+        CORPORA / "bc5cdr" / "devel.tsv",
+        CORPORA / "bc5cdr" / "test.tsv",
+        ROOT / "runs" / "vectors",
+        ROOT / "benchmarks" / "vectors.json",
+        ROOT / "benchmarks" / "vectors.md",
+    ),
+    "demo": Setting(
+        "the demo",
+        ROOT / "data" / "demo" / "unannotated.txt.gz",
+        "the demo's invented unannotated service reports",
+        "configs/default.toml",
+        ROOT / "data" / "demo" / "train.txt",
+        ROOT / "data" / "demo" / "dev.txt",
+        ROOT / "data" / "demo" / "test.txt",
+        ROOT / "runs" / "vectors-demo",
+        ROOT / "benchmarks" / "vectors_demo.json",
+        ROOT / "benchmarks" / "vectors_demo.md",
+    ),
+}
 VARIANTS = {
     "none": "no vectors (the base)",
     "both": "frozen table of 50,000 words + 80,000 n-gram rows, and the trained embedding "
@@ -54,9 +107,8 @@ VARIANTS = {
     "char-lm": "no vectors; the character language models' word states as features",
     "both+char-lm": "both, and the character language models' word states",
 }
-LEARN_ARGS = ["--config", "configs/bc5cdr.toml", "--threads", "2", "--epochs", "5"]
-CHAR_LM = RUNS / "biomed.tagclm"
-CHAR_LM_ARGS = ["--config", "configs/bc5cdr.toml", "--threads", "1", "--max-minutes", "60"]
+LEARN_ARGS = ["--threads", "2", "--epochs", "5"]
+CHAR_LM_ARGS = ["--threads", "1", "--max-minutes", "60"]
 
 
 def tagger(args: list[str]) -> None:
@@ -64,53 +116,63 @@ def tagger(args: list[str]) -> None:
     subprocess.run([sys.executable, "-m", "tagger", *args], cwd=ROOT, check=True)
 
 
-def learn_vectors() -> dict:
-    if VECTORS.exists():
-        print(f"reusing {portable_path(VECTORS)}", flush=True)
-        return json.loads(RESULTS.read_text()).get("learning", {}) if RESULTS.exists() else {}
-    RUNS.mkdir(parents=True, exist_ok=True)
-    args = ["learn-vectors", portable_path(RAW), *LEARN_ARGS, "--out", portable_path(VECTORS)]
+def earlier(setting: Setting, key: str) -> dict:
+    if not setting.results.exists():
+        return {}
+    return json.loads(setting.results.read_text()).get(key, {})
+
+
+def learn_vectors(setting: Setting) -> dict:
+    vectors = setting.vectors
+    if vectors.exists():
+        print(f"reusing {portable_path(vectors)}", flush=True)
+        return earlier(setting, "learning")
+    setting.runs.mkdir(parents=True, exist_ok=True)
+    args = ["learn-vectors", portable_path(setting.raw), "--config", setting.config, *LEARN_ARGS]
+    args += ["--out", portable_path(vectors)]
     started = time.monotonic()
     tagger(args)
     return {
         "command": "tagger " + " ".join(args),
         "seconds": round(time.monotonic() - started, 1),
-        "file_bytes": VECTORS.stat().st_size,
+        "file_bytes": vectors.stat().st_size,
     }
 
 
-def learn_char_lm() -> dict:
+def learn_char_lm(setting: Setting) -> dict:
     """The character language models (an hour's budget on one thread), resumed if stopped."""
-    if CHAR_LM.exists() and not Path(f"{CHAR_LM}.resume").exists():
-        print(f"reusing {portable_path(CHAR_LM)}", flush=True)
-        return json.loads(RESULTS.read_text()).get("char_lm", {}) if RESULTS.exists() else {}
-    RUNS.mkdir(parents=True, exist_ok=True)
-    args = ["learn-char-lm", portable_path(RAW), *CHAR_LM_ARGS, "--out", portable_path(CHAR_LM)]
-    resume = ["--resume"] if Path(f"{CHAR_LM}.resume").exists() else []
+    char_lm = setting.char_lm
+    if char_lm.exists() and not Path(f"{char_lm}.resume").exists():
+        print(f"reusing {portable_path(char_lm)}", flush=True)
+        return earlier(setting, "char_lm")
+    setting.runs.mkdir(parents=True, exist_ok=True)
+    args = ["learn-char-lm", portable_path(setting.raw), "--config", setting.config]
+    args += [*CHAR_LM_ARGS, "--out", portable_path(char_lm)]
+    resume = ["--resume"] if Path(f"{char_lm}.resume").exists() else []
     started = time.monotonic()
     tagger([*args, *resume])
     from tagger.unannotated.char_lm_file import load_char_lm
 
-    learnt = load_char_lm(CHAR_LM)[1]["learnt"]
+    learnt = load_char_lm(char_lm)[1]["learnt"]
     return {
         "command": "tagger " + " ".join(args),
         "seconds": round(time.monotonic() - started, 1),
-        "file_bytes": CHAR_LM.stat().st_size,
+        "file_bytes": char_lm.stat().st_size,
         **{k: learnt[k] for k in ("characters", "held_out_perplexity", "unigram_perplexity")},
         "stopped": learnt["stopped"],
     }
 
 
-def train_and_score(variant: str, seed: int, train_mentions: set) -> dict:
-    run = RUNS / f"{variant}-seed{seed}"
+def train_and_score(setting: Setting, variant: str, seed: int, train_mentions: set) -> dict:
+    run = setting.runs / f"{variant}-seed{seed}"
     args = [
         "train",
         "--config",
-        "configs/bc5cdr.toml",
+        setting.config,
         "--train",
-        portable_path(BC5CDR.train),
+        portable_path(setting.train),
         "--dev",
-        portable_path(DEV),
+        portable_path(setting.dev),
         "--out",
         portable_path(run),
         "--set",
@@ -122,10 +184,10 @@ def train_and_score(variant: str, seed: int, train_mentions: set) -> dict:
     ]
     use = variant.removesuffix("+char-lm")
     if use in ("both", "fixed", "initialise"):
-        args += ["--set", f"model.pretrained_vectors={portable_path(VECTORS)}"]
+        args += ["--set", f"model.pretrained_vectors={portable_path(setting.vectors)}"]
         args += ["--set", f"model.vectors_use={use}"]
     if variant.endswith("char-lm"):
-        args += ["--set", f"model.char_lm={portable_path(CHAR_LM)}"]
+        args += ["--set", f"model.char_lm={portable_path(setting.char_lm)}"]
     if not (run / OUTCOME_NAME).exists():
         started = time.monotonic()
         tagger([*args, *(["--resume"] if (run / CHECKPOINT_NAME).exists() else [])])
@@ -139,12 +201,12 @@ def train_and_score(variant: str, seed: int, train_mentions: set) -> dict:
         [
             "evaluate",
             portable_path(model),
-            portable_path(BC5CDR.test),
+            portable_path(setting.test),
             "--predictions",
             portable_path(predictions),
         ]
     )
-    gold, predicted = sentence_mentions(BC5CDR.test), sentence_mentions(predictions)
+    gold, predicted = sentence_mentions(setting.test), sentence_mentions(predictions)
     history = json.loads((run / HISTORY_NAMES[0]).read_text())
     return {
         "trained_by": "tagger " + " ".join(args),
@@ -168,11 +230,14 @@ def summarise(runs: dict[str, dict[str, dict]]) -> dict:
             "seeds": sorted(int(s) for s in seeds),
             "f1": spread([s["all"]["f1"] for s in scores]),
         }
-        for kind in ("Chemical", "Disease", "all"):
+        for kind in sorted({k for s in scores for k in s}):
             for group in ("seen", "unseen"):
                 values = [s[kind][group]["recall"] for s in scores if kind in s]
                 if values:
                     entry[f"{kind} {group} recall"] = spread(values)
+        unseen = [s["all"]["unseen"]["f1"] for s in scores if "f1" in s["all"]["unseen"]]
+        if len(unseen) == len(scores):
+            entry["unseen f1"] = spread(unseen)
         summary[variant] = entry
     return summary
 
@@ -183,14 +248,16 @@ def figure(value: dict) -> str:
     return f"{100 * value['median']:.2f} ({100 * value['min']:.2f}-{100 * value['max']:.2f})"
 
 
-def render(record: dict) -> str:
+def render(setting: Setting, record: dict) -> str:
     lines = [
-        "# Word vectors from unannotated text on BC5CDR",
+        f"# Word vectors from unannotated text on {setting.title}",
         "",
         "Written by `scripts/bench_vectors.py`. Vectors learnt from "
-        f"`{portable_path(RAW)}` (3.8 million tokens, none of BC5CDR). Span F1 on test.tsv and "
-        "recall on test mentions seen / unseen in train (same type and text), median of the "
-        "seeds with the range.",
+        f"`{portable_path(setting.raw)}` ({setting.raw_words}). Span F1 on "
+        f"`{portable_path(setting.test)}`, recall on its mentions seen / unseen in train (same "
+        "type and text), and F1 on unseen spans (recall over the unseen gold mentions, precision "
+        "over the predicted spans whose type and text are not in train); median of the seeds "
+        "with the range.",
         "",
     ]
     learning = record.get("learning") or {}
@@ -209,17 +276,29 @@ def render(record: dict) -> str:
             f"{char_lm['unigram_perplexity']:.2f} for a unigram model.",
             "",
         ]
-    header = ["variant", "seeds", "span F1", "Chemical seen", "Chemical unseen", "Disease seen"]
-    header += ["Disease unseen"]
+    suffix = " seen recall"
+    types = sorted(
+        {
+            k.removesuffix(suffix)
+            for e in record["summary"].values()
+            for k in e
+            if k.endswith(suffix)
+        }
+        - {"all"}
+    )
+    recalls = [f"{t} {group}" for t in types for group in ("seen", "unseen")]
+    header = ["variant", "seeds", "span F1", "unseen-span F1", *(f"{r} recall" for r in recalls)]
     lines += ["| " + " | ".join(header) + " |", "|" + "---|" * len(header)]
     for variant, entry in record["summary"].items():
         cells = [variant, ",".join(map(str, entry["seeds"])), figure(entry["f1"])]
-        for key in ("Chemical seen", "Chemical unseen", "Disease seen", "Disease unseen"):
+        cells.append(figure(entry["unseen f1"]) if "unseen f1" in entry else "-")
+        for key in recalls:
             value = entry.get(f"{key} recall")
             cells.append(figure(value) if value else "-")
         lines.append("| " + " | ".join(cells) + " |")
     lines += ["", "Variants:", ""]
     lines += [f"- {name}: {VARIANTS[name]}" for name in record["summary"]]
+    lines += ["", f"Config `{setting.config}`, one thread, the config's epochs and patience."]
     lines += ["", f"Machine: {json.dumps(record['machine'])}", ""]
     if record.get("note"):
         lines += [f"Note: {record['note']}", ""]
@@ -231,29 +310,40 @@ def main() -> int:
     parser.add_argument("--seeds", type=int, nargs="+", default=[1, 2, 3])
     parser.add_argument("--variants", nargs="+", choices=list(VARIANTS), default=list(VARIANTS))
     parser.add_argument("--note", default="", help="what else ran on the machine, say")
+    parser.add_argument("--corpus", choices=list(SETTINGS), default="bc5cdr")
     args = parser.parse_args()
-    missing = [p for p in (RAW, BC5CDR.train, DEV, BC5CDR.test) if not p.exists()]
+    setting = SETTINGS[args.corpus]
+    missing = [p for p in (setting.raw, setting.train, setting.dev, setting.test) if not p.exists()]
     if missing:
         print(f"skipped: {', '.join(map(str, missing))} absent", flush=True)
         return 0
-    learning = learn_vectors()
-    char_lm = learn_char_lm() if any(v.endswith("char-lm") for v in args.variants) else {}
-    train_mentions = mention_set(BC5CDR.train)
+    learning = learn_vectors(setting)
+    wants_lm = any(v.endswith("char-lm") for v in args.variants)
+    char_lm = learn_char_lm(setting) if wants_lm else {}
+    train_mentions = mention_set(setting.train)
     for variant in args.variants:
         for seed in args.seeds:
-            result = train_and_score(variant, seed, train_mentions)
+            result = train_and_score(setting, variant, seed, train_mentions)
             # read again just before writing: another process may run other variants beside
-            record = json.loads(RESULTS.read_text()) if RESULTS.exists() else {"runs": {}}
+            results = setting.results
+            record = json.loads(results.read_text()) if results.exists() else {"runs": {}}
             record["learning"] = learning or record.get("learning", {})
             record["char_lm"] = char_lm or record.get("char_lm", {})
             record["runs"].setdefault(variant, {})[str(seed)] = result
             record["summary"] = summarise(record["runs"])
             record["machine"] = machine()
             record["note"] = args.note or record.get("note", "")
-            RESULTS.write_text(json.dumps(record, indent=2) + "\n")
-            SUMMARY.write_text(render(record))
-    print(f"wrote {portable_path(RESULTS)} and {portable_path(SUMMARY)}", flush=True)
+            write_atomically(results, json.dumps(record, indent=2) + "\n")
+            write_atomically(setting.summary, render(setting, record))
+    print(f"wrote {portable_path(setting.results)} and {portable_path(setting.summary)}")
     return 0
+
+
+def write_atomically(path: Path, text: str) -> None:
+    """A reader beside (another seed's process) never sees half a record."""
+    part = path.with_name(f"{path.name}.{os.getpid()}.part")
+    part.write_text(text)
+    part.replace(path)
 
 
 if __name__ == "__main__":

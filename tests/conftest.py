@@ -30,6 +30,8 @@ def load_script():
             sys.path.insert(0, str(SCRIPTS))
         spec = importlib.util.spec_from_file_location(name, SCRIPTS / f"{name}.py")
         module = importlib.util.module_from_spec(spec)
+        # Registered before it runs, as an import would: dataclasses look their module up there.
+        sys.modules[name] = module
         spec.loader.exec_module(module)
         return module
 

@@ -110,22 +110,29 @@ def test_recall_is_split_between_seen_and_unseen_mentions(mentions, files) -> No
     predicted = mentions.sentence_mentions(files["predicted"])
     exact = mentions.recall_by_seen(gold, predicted, train.__contains__)
     chemical, disease = exact["Chemical"], exact["Disease"]
-    assert chemical["seen"] == {"mentions": 1, "found": 1, "recall": 1.0}
-    assert chemical["unseen"] == {"mentions": 1, "found": 0, "recall": 0.0}
-    assert disease["seen"] == {"mentions": 1, "found": 0, "recall": 0.0}
-    assert disease["unseen"] == {"mentions": 2, "found": 1, "recall": 0.5}
+
+    def group(mentions: int, found: int, recall: float, predicted: int, precision: float, f1):
+        keys = ("mentions", "found", "recall", "predicted", "precision", "f1")
+        return dict(zip(keys, (mentions, found, recall, predicted, precision, f1), strict=True))
+
+    # Predicted spans fall in a group by their own type and text: (Chemical, Aspirin) is seen;
+    # (Chemical, and), (Disease, aspirin), (Disease, renal) and (Disease, acute pain) are not.
+    assert chemical["seen"] == group(1, 1, 1.0, 1, 1.0, 1.0)
+    assert chemical["unseen"] == group(1, 0, 0.0, 1, 0.0, 0.0)
+    assert disease["seen"] == group(1, 0, 0.0, 0, 0.0, 0.0)
+    assert disease["unseen"] == group(2, 1, 0.5, 3, 0.3333, 0.4)
     # Chemical: 2 tagged (Aspirin right, "and" wrong); Disease: 3 tagged (acute pain right).
     assert (chemical["precision"], chemical["recall"], chemical["f1"]) == (0.5, 0.5, 0.5)
     assert (disease["precision"], disease["recall"]) == (0.3333, 0.3333)
     pooled = exact["all"]
-    assert pooled["seen"] == {"mentions": 2, "found": 1, "recall": 0.5}
-    assert pooled["unseen"] == {"mentions": 3, "found": 1, "recall": 0.3333}
+    assert pooled["seen"] == group(2, 1, 0.5, 1, 1.0, 0.6667)
+    assert pooled["unseen"] == group(3, 1, 0.3333, 4, 0.25, 0.2857)
     assert (pooled["precision"], pooled["recall"], pooled["f1"]) == (0.4, 0.4, 0.4)
 
     folded = mentions.recall_by_seen(gold, predicted, mentions.ignoring_case(train))
     # Ignoring case, "aspirin" counts as seen: the Chemical split moves, recall overall does not.
-    assert folded["Chemical"]["seen"] == {"mentions": 2, "found": 1, "recall": 0.5}
-    assert folded["Chemical"]["unseen"] == {"mentions": 0, "found": 0, "recall": 0.0}
+    assert folded["Chemical"]["seen"] == group(2, 1, 0.5, 1, 1.0, 0.6667)
+    assert folded["Chemical"]["unseen"] == group(0, 0, 0.0, 1, 0.0, 0.0)
     assert folded["Chemical"]["recall"] == chemical["recall"]
 
 
