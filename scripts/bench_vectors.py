@@ -33,7 +33,7 @@ import statistics
 import subprocess
 import sys
 import time
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from pathlib import Path
 
 ROOT = Path(__file__).resolve().parents[1]
@@ -62,14 +62,24 @@ class Setting:
     runs: Path
     results: Path
     summary: Path
+    buckets: int | None = None  # n-gram rows of the vectors; None: learn-vectors' default
+
+    @property
+    def stem(self) -> str:
+        return self.raw.name.split(".")[0]
 
     @property
     def vectors(self) -> Path:
-        return self.runs / (self.raw.name.split(".")[0] + ".tagvec")
+        rows = f"-{self.buckets}rows" if self.buckets else ""
+        return self.runs / f"{self.stem}{rows}.tagvec"
 
     @property
     def char_lm(self) -> Path:
-        return self.vectors.with_suffix(".tagclm")
+        return self.runs / f"{self.stem}.tagclm"
+
+    def label(self, variant: str) -> str:
+        """The variant's name in the records: with its n-gram rows when they are not the default."""
+        return f"{variant}, {self.buckets:,} n-gram rows" if self.buckets else variant
 
 
 SETTINGS = {
@@ -126,9 +136,12 @@ def learn_vectors(setting: Setting) -> dict:
     vectors = setting.vectors
     if vectors.exists():
         print(f"reusing {portable_path(vectors)}", flush=True)
+        if setting.buckets:
+            return earlier(setting, "learning_other_rows").get(str(setting.buckets), {})
         return earlier(setting, "learning")
     setting.runs.mkdir(parents=True, exist_ok=True)
     args = ["learn-vectors", portable_path(setting.raw), "--config", setting.config, *LEARN_ARGS]
+    args += ["--buckets", str(setting.buckets)] if setting.buckets else []
     args += ["--out", portable_path(vectors)]
     started = time.monotonic()
     tagger(args)
@@ -164,7 +177,8 @@ def learn_char_lm(setting: Setting) -> dict:
 
 
 def train_and_score(setting: Setting, variant: str, seed: int, train_mentions: set) -> dict:
-    run = setting.runs / f"{variant}-seed{seed}"
+    rows = f"-{setting.buckets}rows" if setting.buckets else ""
+    run = setting.runs / f"{variant}{rows}-seed{seed}"
     args = [
         "train",
         "--config",
@@ -297,7 +311,7 @@ def render(setting: Setting, record: dict) -> str:
             cells.append(figure(value) if value else "-")
         lines.append("| " + " | ".join(cells) + " |")
     lines += ["", "Variants:", ""]
-    lines += [f"- {name}: {VARIANTS[name]}" for name in record["summary"]]
+    lines += [f"- {name}: {VARIANTS[name.split(',')[0]]}" for name in record["summary"]]
     lines += ["", f"Config `{setting.config}`, one thread, the config's epochs and patience."]
     lines += ["", f"Machine: {json.dumps(record['machine'])}", ""]
     if record.get("note"):
@@ -311,8 +325,11 @@ def main() -> int:
     parser.add_argument("--variants", nargs="+", choices=list(VARIANTS), default=list(VARIANTS))
     parser.add_argument("--note", default="", help="what else ran on the machine, say")
     parser.add_argument("--corpus", choices=list(SETTINGS), default="bc5cdr")
+    parser.add_argument(
+        "--buckets", type=int, help="n-gram rows of the vectors (default: learn-vectors' own)"
+    )
     args = parser.parse_args()
-    setting = SETTINGS[args.corpus]
+    setting = replace(SETTINGS[args.corpus], buckets=args.buckets)
     missing = [p for p in (setting.raw, setting.train, setting.dev, setting.test) if not p.exists()]
     if missing:
         print(f"skipped: {', '.join(map(str, missing))} absent", flush=True)
@@ -327,9 +344,13 @@ def main() -> int:
             # read again just before writing: another process may run other variants beside
             results = setting.results
             record = json.loads(results.read_text()) if results.exists() else {"runs": {}}
-            record["learning"] = learning or record.get("learning", {})
+            if setting.buckets:  # the default vectors keep their own record
+                rows = record.setdefault("learning_other_rows", {})
+                rows[str(setting.buckets)] = learning or rows.get(str(setting.buckets), {})
+            else:
+                record["learning"] = learning or record.get("learning", {})
             record["char_lm"] = char_lm or record.get("char_lm", {})
-            record["runs"].setdefault(variant, {})[str(seed)] = result
+            record["runs"].setdefault(setting.label(variant), {})[str(seed)] = result
             record["summary"] = summarise(record["runs"])
             record["machine"] = machine()
             record["note"] = args.note or record.get("note", "")
