@@ -12,9 +12,9 @@ documents, and evaluation of a model on gold files.
     tagging.py     the `tag` pipeline: `tag_files`, its options and summary
     tokenizing.py  `tokenize_files`: the tokens the tagger sees
     evaluate.py    `evaluate_files`: tag gold files and score them
-    export_file.py, exporting.py, label_decoding.py, exported.py
-                   `export` and the onnx backend: the export file, writing it, numpy decoding,
-                   `ExportedTagger` (no torch)
+    export_file.py, exporting.py, export_graphs.py, label_decoding.py, exported.py
+                   `export` and the onnx backend: the export file, writing it, the network's
+                   parts as ONNX graphs, numpy decoding, `ExportedTagger` (no torch)
 
 May import `tagger.network` and everything below it; never `tagger.training` or the CLI.
 """

@@ -20,9 +20,13 @@ Layout, in this order:
     graphs     the ONNX bytes of each graph named in the header, back to back; nothing after
 
 The graphs are "characters" (character ids (tokens, chars) -> character features (tokens, F);
-models with a character encoder only) and "words" (word ids (batch, time), lengths (batch,), the
-character features of each position and the feature ids (batch, time, slots) of models that have
-them -> emissions (batch, time, labels)).
+models with a character encoder only), "vectors" (each token's rows of the frozen vector table
+(tokens, rows) -> its vector (tokens, dim); models with a frozen table only), "char_lm" (a batch
+as the character language model reads it -> each token's states (batch, time, 2*hidden); models
+reading one only) and "words" (word ids (batch, time), lengths (batch,), and of models that have
+them the character features, feature ids (batch, time, slots), vectors and language model states
+of each position -> emissions (batch, time, labels)); `tagger.apply.export_graphs` names their
+inputs.
 
 The digest covers the canonical JSON of the header without "digest" (keys sorted, ASCII, no
 spaces) and each graph's bytes, each part preceded by its length, so an edited label name or a

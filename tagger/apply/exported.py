@@ -5,9 +5,11 @@ with `--backend onnx` works where torch is not installed.
 
 Everything around the network is the torch tagger's own: tokenising, feature ids, the engine and
 output formats, span scores, the review flag's certainty and the calibration temperature. The
-work per call follows `tagger.apply.predict`: each distinct token's word and character ids are
-looked up once, its character features computed once ("characters" graph), then sentences of
-similar length are batched through the "words" graph.
+work per call follows `tagger.apply.predict`: each distinct token's word and character ids (and
+its rows of a frozen vector table) are looked up once, its character features ("characters"
+graph) and table vector ("vectors" graph) computed once, then sentences of similar length are
+batched through the character language model ("char_lm" graph), when the model reads one, and
+the "words" graph.
 """
 
 from __future__ import annotations
@@ -26,8 +28,9 @@ from tagger.apply.review import ScoredSentence
 from tagger.apply.tagger import PREDICT_BATCH, Rows, Tagger
 from tagger.errors import ConfigError, ModelFileError
 from tagger.network.metadata import read_stored_model
+from tagger.text.char_context import pad_readings
 
-CHAR_BLOCK = 4096  # distinct tokens through the characters graph at a time
+CHAR_BLOCK = 4096  # distinct tokens through the characters and vectors graphs at a time
 
 
 def require_runtime() -> None:
@@ -80,11 +83,14 @@ class ExportedTagger(Tagger):
 
         header, graphs = read_export_file(path)
         stored = read_stored_model(header["model"], path)
-        if stored.vocabs.subwords is not None or stored.vocabs.char_lm is not None:
-            raise ModelFileError(f"{path}: export file holds a model this tagger cannot run")
-        wanted = {"words"} | (
-            {"characters"} if stored.config.model.char_encoder != "none" else set()
-        )
+        vocabs = stored.vocabs
+        parts = {
+            "characters": stored.config.model.char_encoder != "none",
+            "vectors": vocabs.subwords is not None,
+            "char_lm": vocabs.char_lm is not None,
+            "words": True,
+        }
+        wanted = {name for name, present in parts.items() if present}
         if set(graphs) != wanted:
             raise ModelFileError(
                 f"{path}: export file is corrupted (graphs {sorted(graphs)}; "
@@ -134,18 +140,30 @@ class ExportedTagger(Tagger):
         session = self.sessions.get("characters")
         if session is None:
             return None
-        order = sorted(range(len(chars)), key=lambda i: len(chars[i]))
-        table: np.ndarray | None = None
-        for first in range(0, len(order), CHAR_BLOCK):
-            chosen = order[first : first + CHAR_BLOCK]
-            padded = np.zeros((len(chosen), len(chars[chosen[-1]])), dtype=np.int64)
-            for row, i in enumerate(chosen):
-                padded[row, : len(chars[i])] = chars[i]
-            (features,) = session.run(None, {"chars": padded})  # (n, F)
-            if table is None:
-                table = np.zeros((len(chars) + 1, features.shape[1]), dtype=np.float32)
-            table[np.asarray(chosen) + 1] = features
-        return table
+        return _per_token(session, "chars", chars)
+
+    def _vector_table(self, tokens: Sequence[str]) -> np.ndarray | None:
+        """(N+1, dim): row 0 (padding) zeros, then each distinct token's vector from the frozen
+        table (its word's row, the mean of its n-grams' rows, or zeros)."""
+        session = self.sessions.get("vectors")
+        if session is None:
+            return None
+        index = self.vocabs.subwords
+        return _per_token(session, "bags", [index.bag(t) for t in tokens])
+
+    def _lm_states(self, token_lists: Sequence[Sequence[str]]) -> np.ndarray | None:
+        """(B, T, 2*hidden): the character language model's states at each token's boundaries;
+        None for a model that reads none."""
+        session = self.sessions.get("char_lm")
+        if session is None:
+            return None
+        ids, lengths, starts, ends = pad_readings(
+            [self.vocabs.char_lm.encode(t) for t in token_lists]
+        )
+        (states,) = session.run(
+            None, {"lm_ids": ids, "lm_lengths": lengths, "lm_starts": starts, "lm_ends": ends}
+        )
+        return states
 
     def emission_batches(
         self, token_lists: Sequence[Sequence[str]], batch_size: int, rows: Rows | None = None
@@ -160,6 +178,7 @@ class ExportedTagger(Tagger):
         vocabs = self.vocabs
         word_of = np.asarray([0, *(vocabs.words.index(vocabs.word_key(t)) for t in distinct)])
         char_table = self._char_table([vocabs.char_ids(t) for t in distinct]) if distinct else None
+        vector_table = self._vector_table(list(distinct)) if distinct else None
         real = sorted(
             (i for i, tokens in enumerate(token_lists) if tokens), key=lambda i: len(token_lists[i])
         )
@@ -178,6 +197,11 @@ class ExportedTagger(Tagger):
                 for b, i in enumerate(indices):
                     slots[b, : lengths[b]] = np.asarray(features[i], dtype=np.int64).T
                 inputs["feature_ids"] = slots  # (B, T, K)
+            if vector_table is not None:
+                inputs["vectors"] = vector_table[ids]  # (B, T, dim)
+            lm_states = self._lm_states([token_lists[i] for i in indices])
+            if lm_states is not None:
+                inputs["lm_states"] = lm_states  # (B, T, 2*hidden)
             (emissions,) = words.run(None, inputs)
             yield indices, emissions, ids != 0
 
@@ -219,3 +243,19 @@ class ExportedTagger(Tagger):
                 spans = [(t, s, e, min(sure[s:e])) for t, s, e in self.label_ids_to_spans(path)]
                 result[i] = ScoredSentence(spans, min(sure))
         return result
+
+
+def _per_token(session: Any, name: str, ids: list[list[int]]) -> np.ndarray:
+    """(N+1, width), row 0 zeros (padding), then ``session``'s output for each of the N >= 1
+    tokens' ids (its input ``name``), run in blocks of similar length padded with 0."""
+    order = sorted(range(len(ids)), key=lambda i: len(ids[i]))
+    outputs = []
+    for first in range(0, len(order), CHAR_BLOCK):
+        chosen = order[first : first + CHAR_BLOCK]
+        padded = np.zeros((len(chosen), max(1, len(ids[chosen[-1]]))), dtype=np.int64)
+        for row, i in enumerate(chosen):
+            padded[row, : len(ids[i])] = ids[i]
+        outputs.append(session.run(None, {name: padded})[0])  # (n, width)
+    table = np.zeros((len(ids) + 1, outputs[0].shape[1]), dtype=np.float32)
+    table[np.asarray(order) + 1] = np.concatenate(outputs)
+    return table

@@ -341,8 +341,9 @@ def export(
         bool,
         typer.Option(
             "--int8",
-            help="Store the linear and recurrent weights as 8-bit integers (dynamic "
-            "quantisation): smaller and faster, scores change slightly.",
+            help="Store the linear and recurrent weights and the embedding tables (a frozen "
+            "vector table too) as 8-bit integers (dynamic quantisation): smaller and faster, "
+            "scores change slightly.",
         ),
     ] = False,
 ) -> None:

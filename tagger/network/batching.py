@@ -27,6 +27,7 @@ from dataclasses import dataclass
 import numpy as np
 import torch
 
+from tagger.text.char_context import Reading, pad_readings
 from tagger.text.vocab import Vocabularies
 
 
@@ -51,19 +52,10 @@ class LMInput:
     ends: torch.Tensor  # (batch, time) index of each token's last character
 
 
-def collate_lm(readings: Sequence[tuple[list[int], list[int], list[int]]]) -> LMInput:
+def collate_lm(readings: Sequence[Reading]) -> LMInput:
     """Pad sentences' language model readings into one LMInput (padding tokens point at 0)."""
-    width = max(len(ids) for ids, _, _ in readings)
-    time = max(len(starts) for _, starts, _ in readings)
-    ids = np.zeros((len(readings), width), dtype=np.int64)
-    starts = np.zeros((len(readings), time), dtype=np.int64)
-    ends = np.zeros((len(readings), time), dtype=np.int64)
-    for b, (chars, first, last) in enumerate(readings):
-        ids[b, : len(chars)] = chars
-        starts[b, : len(first)] = first
-        ends[b, : len(last)] = last
-    lengths = torch.tensor([len(chars) for chars, _, _ in readings])
-    return LMInput(torch.from_numpy(ids), lengths, torch.from_numpy(starts), torch.from_numpy(ends))
+    ids, lengths, starts, ends = (torch.from_numpy(a) for a in pad_readings(readings))
+    return LMInput(ids, lengths, starts, ends)
 
 
 @dataclass

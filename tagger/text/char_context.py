@@ -21,6 +21,11 @@ from collections.abc import Sequence
 from dataclasses import dataclass, field
 from typing import Any
 
+import numpy as np
+
+# what `CharLMSpec.encode` gives: character ids, each token's first index, each token's last
+Reading = tuple[list[int], list[int], list[int]]
+
 PAD, BOUNDARY, UNKNOWN = 0, 1, 2
 FIRST_CHAR = 3  # ids of the model's characters start here
 
@@ -78,3 +83,22 @@ class CharLMSpec:
     @classmethod
     def from_dict(cls, data: dict[str, Any]) -> CharLMSpec:
         return cls(**data)
+
+
+def pad_readings(
+    readings: Sequence[Reading],
+) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    """Sentences' readings padded into one batch: ids (B, chars) with 0 padding, lengths (B,),
+    starts and ends (B, tokens) with padding tokens pointing at index 0 (all int64). Both
+    backends batch through here, so the torch and exported networks read the same arrays."""
+    width = max(len(ids) for ids, _, _ in readings)
+    time = max(len(starts) for _, starts, _ in readings)
+    ids = np.zeros((len(readings), width), dtype=np.int64)
+    starts = np.zeros((len(readings), time), dtype=np.int64)
+    ends = np.zeros((len(readings), time), dtype=np.int64)
+    for b, (chars, first, last) in enumerate(readings):
+        ids[b, : len(chars)] = chars
+        starts[b, : len(first)] = first
+        ends[b, : len(last)] = last
+    lengths = np.asarray([len(chars) for chars, _, _ in readings], dtype=np.int64)
+    return ids, lengths, starts, ends
