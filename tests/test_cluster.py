@@ -199,3 +199,19 @@ def test_on_error_is_that_of_one_machine(
         assert results["cluster"] == results["one"]
         code, _, files = results["one"]
         assert (code, bool(files)) == ((1, False) if on_error == "stop" else (0, True))
+
+
+def test_without_the_extra_the_command_says_what_to_install(
+    model: Path, tmp_path: Path, monkeypatch: pytest.MonkeyPatch
+) -> None:
+    from tagger.apply import cluster as cluster_module
+
+    monkeypatch.setattr(cluster_module, "PACKAGE", "tagger_no_such_package")
+    out = tmp_path / "tagged.jsonl"
+    result = _tag(str(model), str(DEMO / "new_reports.jsonl"), "-o", str(out), "--cluster", "x")
+    assert result.exit_code == 1
+    assert result.stderr == (
+        "tagger: error: tagging on a cluster needs dask's distributed: "
+        "pip install 'tagger[cluster]'\n"
+    )
+    assert not out.exists()
