@@ -50,7 +50,6 @@ def _document_inputs(paths: list[Path] | None) -> list[str]:
     epilog=examples(
         "tagger tag runs/demo/model.tagger data/demo/new_reports.jsonl -o tagged.jsonl",
         "tagger tag runs/demo/model.tagger app.log --input-format lines",
-        "tagger tag /shared/model.tagger archive.jsonl -o tagged.jsonl --cluster tcp://10.0.0.5:8786",
     )
 )
 def tag(
