@@ -4,11 +4,13 @@ process trains on each step's batches put together."""
 
 from __future__ import annotations
 
+import json
 import os
 import random
 import socket
 import subprocess
 import sys
+import time
 from pathlib import Path
 
 import pytest
@@ -115,9 +117,8 @@ def _free_port() -> int:
         return int(probe.getsockname()[1])
 
 
-def _two_ranks(config: Path, out: Path, *extra: str) -> list[str]:
-    """`tagger train` on two ranks started by hand with the variables torchrun sets (quicker
-    than the launcher); returns each rank's stderr."""
+def _start_ranks(config: Path, out: Path, *extra: str) -> list[subprocess.Popen[str]]:
+    """The two ranks of `_two_ranks`, started and left running."""
     shared = {
         **os.environ,
         "PYTHONPATH": str(ROOT),
@@ -127,7 +128,7 @@ def _two_ranks(config: Path, out: Path, *extra: str) -> list[str]:
         "MASTER_PORT": str(_free_port()),
         "OMP_NUM_THREADS": "1",
     }
-    ranks = [
+    return [
         subprocess.Popen(
             [sys.executable, *_train_command(config, out, *extra)],
             stdout=subprocess.DEVNULL,
@@ -138,6 +139,12 @@ def _two_ranks(config: Path, out: Path, *extra: str) -> list[str]:
         )
         for rank in range(2)
     ]
+
+
+def _two_ranks(config: Path, out: Path, *extra: str) -> list[str]:
+    """`tagger train` on two ranks started by hand with the variables torchrun sets (quicker
+    than the launcher); returns each rank's stderr."""
+    ranks = _start_ranks(config, out, *extra)
     errors = []
     try:
         for process in ranks:
@@ -212,3 +219,41 @@ def test_two_ranks_train_what_one_process_trains_on_each_step_put_together(
     assert sorted(path.name for path in again.iterdir()) == sorted(
         path.name for path in (tmp_path / "run").iterdir()
     )
+
+
+@pytest.mark.slow
+def test_a_rank_that_dies_ends_the_run_and_the_checkpoint_resumes(tmp_path: Path) -> None:
+    config = _write_data(tmp_path)
+    out = tmp_path / "run"
+    # Far more epochs than the run lives: the other rank is killed as soon as rank 0 has
+    # written its first checkpoint, so the run cannot end on its own first.
+    ranks = _start_ranks(config, out, "--set", "train.epochs=500", "--set", "train.patience=500")
+    try:
+        checkpoint = out / CHECKPOINT_NAME
+        rank_0 = ranks[0]
+        hung = time.monotonic() + RUN_SECONDS  # no checkpoint by then: the run has hung
+        while not checkpoint.exists():
+            assert rank_0.poll() is None, rank_0.communicate()[1][-3000:]
+            assert time.monotonic() < hung, "no checkpoint was written"
+            time.sleep(0.02)
+        ranks[1].kill()  # abruptly, mid-epoch: no chance to say anything
+        _, stderr = rank_0.communicate(timeout=RUN_SECONDS)
+    finally:
+        for process in ranks:
+            if process.poll() is None:
+                process.kill()
+            process.communicate()
+    assert rank_0.returncode == 1
+    last = stderr.splitlines()[-1]
+    assert last.startswith("tagger: error: rank 0 of 2: another training process stopped")
+    assert last.endswith("continue with the same command and --resume")
+
+    # The checkpoint left behind loads, and --resume on two ranks goes on from its epoch.
+    finished = len(json.loads((out / "epochs.json").read_text(encoding="utf-8")))
+    assert finished >= 1
+    assert _weights(checkpoint, "net.")
+    more = str(finished + 1)
+    resumed = _two_ranks(config, out, "--resume", "--set", f"train.epochs={more}")
+    assert f"stopped: reached train.epochs={more}" in resumed[0]
+    epochs = json.loads((out / "epochs.json").read_text(encoding="utf-8"))
+    assert [row["epoch"] for row in epochs] == list(range(1, finished + 2))

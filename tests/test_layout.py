@@ -149,3 +149,15 @@ def test_file_commands_start_without_torch(command: str, tmp_path: Path) -> None
     )
     done = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
     assert done.stdout.strip().splitlines()[-1] == "False"
+
+
+def test_only_the_cluster_module_imports_dask() -> None:
+    importing = sorted(
+        {
+            str(path.relative_to(PACKAGE.parent))
+            for path in _modules().values()
+            for _, imported in _runtime_imports(path)
+            if imported.split(".")[0] in ("dask", "distributed")
+        }
+    )
+    assert importing == ["tagger/apply/cluster.py"]

@@ -10,8 +10,10 @@ front with `FeatureInputError` (the columns it learnt from are not there to read
 
 Streaming: each chunk of documents is tokenised, tagged and formatted, and written before the next
 is read; plain text comes in pieces of about `chunk_chars` characters (`tagger.apply.plaintext`),
-joined again on writing (`tagger.apply.writing`). With several workers, chunks go to a pool of processes that each load the model once;
-results are written in input order.
+joined again on writing (`tagger.apply.writing`). With several workers, chunks go to a pool of
+processes that each load the model once (`tagger.apply.pool`); with a cluster's address, to the
+workers of that Dask scheduler (`tagger.apply.cluster`). Either way results are written in input
+order, by the same writer, so the output bytes do not depend on where the chunks were tagged.
 
 Bad input never vanishes: every item `read_documents` could not read, a sentence longer than
 `max_sentence_tokens` and a token the columns output cannot hold become `Skipped` records naming
@@ -27,6 +29,7 @@ from contextlib import closing
 from dataclasses import dataclass, field, replace
 from enum import StrEnum
 from pathlib import Path
+from typing import TYPE_CHECKING
 
 from tagger.apply.documents import INPUT_FORMATS, STDIO, Item, detect_input_format, read_documents
 from tagger.apply.engine import CHUNK_CHARS, Engine, chunks
@@ -38,6 +41,9 @@ from tagger.data.atomic import atomic_output
 from tagger.data.schemes import normalise_scheme_name
 from tagger.errors import ConfigError
 from tagger.reports.notes import RepeatedNotes
+
+if TYPE_CHECKING:
+    from tagger.apply.cluster import ClusterResults
 
 
 class OnError(StrEnum):
@@ -87,6 +93,8 @@ class TagOptions:
     workers: int = 1
     threads: int = 0  # threads per process; 0: the backend's default with one worker, else 1
     backend: str = "torch"  # one of BACKENDS
+    cluster: str | None = None  # a Dask scheduler's address: its workers tag the chunks
+    cluster_wait: float = 10.0  # seconds to wait for that scheduler to answer
 
     def __post_init__(self) -> None:
         if self.input_format != "auto" and self.input_format not in INPUT_FORMATS:
@@ -113,6 +121,12 @@ class TagOptions:
                 raise ConfigError(f"{name} must be at least 1; got {getattr(self, name)!r}")
         if self.threads < 0:
             raise ConfigError(f"threads must not be negative; got {self.threads!r}")
+        if self.cluster is not None and self.workers > 1:
+            raise ConfigError(
+                "workers is for one machine; on a cluster, start as many dask workers as wanted"
+            )
+        if not self.cluster_wait > 0:
+            raise ConfigError(f"cluster_wait must be above 0 seconds; got {self.cluster_wait!r}")
         if self.max_sentence_tokens is not None and self.max_sentence_tokens < 1:
             raise ConfigError(
                 f"max_sentence_tokens must be at least 1; got {self.max_sentence_tokens!r}"
@@ -199,10 +213,18 @@ def tag_files(
         settings=job.engine.settings,
     )
     chunked = chunks(items, options.chunk_chars, stop_at_skip=options.on_error == "stop")
-    if options.workers > 1:
-        results: Iterator[ChunkResult] = pooled(
-            options.workers, _worker_job, (str(model), options), chunked
+    results: Iterator[ChunkResult] | ClusterResults
+    if options.cluster is not None:
+        from tagger.apply.cluster import ClusterResults
+
+        # Connects now: a wrong address fails before the output is opened. The workers may run
+        # elsewhere: they are given the model's absolute path.
+        where = str(Path(model).resolve())
+        results = ClusterResults(
+            options.cluster, where, _worker_job, (where, options), chunked, options.cluster_wait
         )
+    elif options.workers > 1:
+        results = pooled(options.workers, _worker_job, (str(model), options), chunked)
     else:
         results = (job(chunk) for chunk in chunked)
     with closing(results), atomic_output(out, "w") as handle:

@@ -129,6 +129,18 @@ def tag(
     workers: Annotated[
         int, typer.Option(help="Worker processes, each holding the model once.")
     ] = 1,
+    cluster: Annotated[
+        str | None,
+        typer.Option(
+            metavar="ADDRESS",
+            help="Tag on the workers of the Dask scheduler at this address (e.g. "
+            "tcp://10.0.0.5:8786; the cluster extra); each worker must see the model file at "
+            "the same path. The output is the same as on one machine.",
+        ),
+    ] = None,
+    cluster_wait: Annotated[
+        float, typer.Option(help="Seconds to wait for the --cluster scheduler to answer.")
+    ] = 10.0,
     batch_size: Annotated[int, typer.Option(help="Sentences per batch.")] = 64,
     chunk_chars: Annotated[
         int, typer.Option(help="Characters of text read, tagged and written at a time.")
@@ -153,6 +165,8 @@ def tag(
             workers=workers,
             threads=threads,
             backend=backend,
+            cluster=cluster,
+            cluster_wait=cluster_wait,
         )
     except TaggerError as error:
         raise typer.BadParameter(str(error)) from None

@@ -159,15 +159,19 @@ def process_group() -> Iterator[Ranks]:
             f"cannot join the {world} training processes at "
             f"{os.environ['MASTER_ADDR']}:{os.environ['MASTER_PORT']}: {first}"
         ) from None
+    ranks = Ranks(dist.get_rank(), dist.get_world_size())
     try:
-        yield Ranks(dist.get_rank(), dist.get_world_size())
+        yield ranks
     except RuntimeError as error:
         if not (isinstance(error, dist.DistError) or "gloo" in str(error)):
             raise
         said = " ".join(str(error).split())[:240]
+        # A rank that dies cannot say so; each survivor says who it is and what it saw, so the
+        # operator can tell from the lines which rank is missing.
         raise RankError(
-            f"another training process stopped or cannot be reached ({said}); the run folder "
-            "keeps the last finished epoch: continue with the same command and --resume"
+            f"rank {ranks.rank} of {ranks.world}: another training process stopped or cannot be "
+            f"reached ({said}); the run folder keeps the last finished epoch: continue with the "
+            "same command and --resume"
         ) from None
     finally:
         dist.destroy_process_group()

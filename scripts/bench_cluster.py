@@ -1,0 +1,246 @@
+"""Tagging on a Dask cluster against one worker, on one machine.
+
+    .venv/bin/python scripts/bench_cluster.py runs/demo/model.tagger            # the record
+    .venv/bin/python scripts/bench_cluster.py --megabytes 0.2 --out /tmp/c     # a smoke run
+
+Writes a JSON Lines input of at least `--megabytes` MB in a temporary folder (the demo's
+unannotated reports, a record per non-empty line, repeated), then measures
+
+* one worker: `tagger tag --threads 1` as a child process, end to end;
+* a `LocalCluster` of 2 worker processes x 1 thread (started before the clock starts):
+  `tagger tag --cluster ADDRESS` as a child process, end to end, and its output compared with
+  one worker's byte for byte;
+* model load time per worker: `Tagger.load` run on each worker (`Client.run`);
+* per-chunk overhead: chunks of the real input (`--chunk-chars` characters, as `tag` cuts them)
+  sent through the same cluster to a task that hands them back, one at a time (the latency a
+  chunk pays) and all at once (the cost per chunk when the scheduler is kept busy, as `tag` keeps
+  it), set beside the time one worker takes to tag a chunk. The smallest chunk for which the
+  overhead stays under 5% follows: overhead x characters/s / 0.05.
+
+Without a model, one is trained on the demo with the default config for one epoch (speed does
+not depend on how well it learnt). Writes benchmarks/cluster.{json,md} (or `--out`).
+"""
+
+from __future__ import annotations
+
+import argparse
+import gzip
+import json
+import re
+import shutil
+import statistics
+import subprocess
+import sys
+import tempfile
+import time
+from pathlib import Path
+
+ROOT = Path(__file__).resolve().parents[1]
+sys.path.insert(0, str(ROOT / "scripts"))
+
+from benchlib import machine, portable_path  # noqa: E402
+
+DEMO = ROOT / "data" / "demo"
+OVERHEAD_SHARE = 0.05  # the most of a chunk's time that scheduling may take
+OVERHEAD_CHUNKS = 20  # chunks sent through the cluster for the overhead
+SUMMARY = re.compile(r"tagged .*?, ([0-9,]+) tokens?,")
+
+
+def write_input(folder: Path, megabytes: float) -> tuple[Path, int]:
+    """A JSON Lines file of at least `megabytes` MB: the demo's unannotated reports, a record per
+    non-empty line, repeated; returns it and its number of documents."""
+    with gzip.open(DEMO / "unannotated.txt.gz", "rt", encoding="utf-8") as archive:
+        lines = [line.strip() for line in archive if line.strip()]
+    path = folder / "archive.jsonl"
+    size, documents = 0, 0
+    with path.open("w", encoding="utf-8") as out:
+        while size < megabytes * 1_000_000:
+            for line in lines:
+                record = json.dumps({"id": f"r{documents}", "text": line}, ensure_ascii=False)
+                out.write(record + "\n")
+                size += len(record.encode("utf-8")) + 1
+                documents += 1
+                if size >= megabytes * 1_000_000:
+                    break
+    return path, documents
+
+
+def train_model(folder: Path) -> Path:
+    run = folder / "model"
+    subprocess.run(
+        [sys.executable, "-m", "tagger", "train", "--train", str(DEMO / "train.txt"),
+         "--dev", str(DEMO / "dev.txt"), "--out", str(run), "--set", "train.epochs=1"],
+        check=True, cwd=ROOT, capture_output=True,
+    )  # fmt: skip
+    return run / "model.tagger"
+
+
+def tag(model: Path, source: Path, out: Path, chunk_chars: int, *extra: str) -> dict:
+    """`tagger tag` as a child process, timed end to end; its tokens from the summary line."""
+    command = [sys.executable, "-m", "tagger", "tag", str(model), str(source), "-o", str(out),
+               "--threads", "1", "--chunk-chars", str(chunk_chars), *extra]  # fmt: skip
+    started = time.perf_counter()
+    done = subprocess.run(command, check=True, cwd=ROOT, capture_output=True, text=True)
+    seconds = time.perf_counter() - started
+    tokens = int(SUMMARY.search(done.stderr).group(1).replace(",", ""))
+    return {"seconds": round(seconds, 3), "tokens": tokens,
+            "tokens_per_second": round(tokens / seconds, 1)}  # fmt: skip
+
+
+def _load_seconds(model: str) -> list[float]:
+    """Run on a worker: how long `Tagger.load` takes there (one thread, as `tag` loads it), the
+    first time (what a worker's first chunk pays: torch and the network code imported too) and
+    again (the model file alone)."""
+    from tagger.apply.tagger import Tagger
+
+    times = []
+    for _ in range(2):
+        started = time.perf_counter()
+        Tagger.load(model, threads=1)
+        times.append(round(time.perf_counter() - started, 3))
+    return times
+
+
+def _hand_back(items: list) -> list:
+    return items
+
+
+def sample_chunks(source: Path, chunk_chars: int, count: int) -> list[list]:
+    """The first `count` chunks of `source` as `tag` cuts them."""
+    from tagger.apply.documents import read_documents
+    from tagger.apply.engine import chunks
+
+    found = []
+    for chunk in chunks(read_documents([source], "jsonl"), chunk_chars, stop_at_skip=False):
+        found.append(chunk)
+        if len(found) == count:
+            break
+    return found
+
+
+def chunk_overhead(client, sample: list[list]) -> dict:
+    """Seconds per chunk sent to a worker and handed back: one at a time and all at once."""
+    one_by_one = []
+    for index, chunk in enumerate(sample):
+        started = time.perf_counter()
+        client.submit(_hand_back, chunk, key=f"bench-one-{index}", pure=False).result()
+        one_by_one.append(time.perf_counter() - started)
+    started = time.perf_counter()
+    futures = [
+        client.submit(_hand_back, chunk, key=f"bench-all-{index}", pure=False)
+        for index, chunk in enumerate(sample)
+    ]
+    client.gather(futures)
+    together = (time.perf_counter() - started) / len(sample)
+    return {"one_at_a_time": round(statistics.median(one_by_one), 4),
+            "all_at_once": round(together, 4)}  # fmt: skip
+
+
+def measure(model: Path, source: Path, chunk_chars: int, work: Path) -> dict:
+    from distributed import Client, LocalCluster
+
+    one = tag(model, source, work / "one.jsonl", chunk_chars)
+    print(f"one worker: {one}", flush=True)
+    with (
+        LocalCluster(n_workers=2, threads_per_worker=1, processes=True, dashboard_address=None)
+        as cluster,
+        Client(cluster) as client,
+    ):  # fmt: skip
+        loads = client.run(_load_seconds, str(model.resolve()))
+        spread = tag(model, source, work / "cluster.jsonl", chunk_chars,
+                     "--cluster", cluster.scheduler_address)  # fmt: skip
+        print(f"cluster of 2: {spread}", flush=True)
+        overhead = chunk_overhead(client, sample_chunks(source, chunk_chars, OVERHEAD_CHUNKS))
+    same = (work / "one.jsonl").read_bytes() == (work / "cluster.jsonl").read_bytes()
+    chars_per_second = source.stat().st_size / one["seconds"]  # input bytes: close to characters
+    chunk_seconds = chunk_chars / chars_per_second
+    worst = max(overhead.values())
+    return {
+        "chunk_chars": chunk_chars,
+        "one_worker": one,
+        "cluster_of_2": spread,
+        "speed_up": round(spread["tokens_per_second"] / one["tokens_per_second"], 2),
+        "byte_identical": same,
+        "model_load_seconds": {
+            "first": sorted(s[0] for s in loads.values()),
+            "again": sorted(s[1] for s in loads.values()),
+        },  # fmt: skip
+        "chunk_overhead_seconds": overhead,
+        "chunk_tagging_seconds": round(chunk_seconds, 3),
+        "overhead_share": round(worst / chunk_seconds, 4),
+        "smallest_chunk_chars_under_5_percent": round(worst * chars_per_second / OVERHEAD_SHARE),
+    }
+
+
+def render(result: dict) -> str:
+    m, r = result["machine"], result["results"]
+    one, two, overhead = r["one_worker"], r["cluster_of_2"], r["chunk_overhead_seconds"]
+    lines = [
+        "# Tagging on a Dask cluster against one worker",
+        "",
+        f"Model `{result['model']}`; input {result['input']['megabytes']:.1f} MB of JSON Lines "
+        f"({result['input']['documents']:,} documents: the demo's unannotated reports, "
+        f"repeated); chunks of {r['chunk_chars']:,} characters. Both runs are `tagger tag` child "
+        "processes timed end to end (start-up, reading, tagging, writing); the cluster is a "
+        "`LocalCluster` of 2 worker processes x 1 thread on this machine, started before the "
+        f"clock. Load average before the run: {m['load_before']}.",
+        "",
+        "| run | tokens | seconds | tokens/s |",
+        "|---|---:|---:|---:|",
+        f"| one worker (`--threads 1`) | {one['tokens']:,} | {one['seconds']:.1f} | "
+        f"{one['tokens_per_second']:,.0f} |",
+        f"| cluster of 2 (`--cluster`) | {two['tokens']:,} | {two['seconds']:.1f} | "
+        f"{two['tokens_per_second']:,.0f} |",
+        "",
+        f"- Cluster against one worker: {r['speed_up']:.2f}x; output byte-identical: "
+        f"{'yes' if r['byte_identical'] else 'NO'}.",
+        f"- Model load per worker: {_seconds(r['model_load_seconds']['first'])} the first time "
+        f"(torch and the network code imported too), {_seconds(r['model_load_seconds']['again'])} "
+        "again.",
+        f"- Per-chunk overhead (a chunk sent to a worker and handed back): "
+        f"{1000 * overhead['one_at_a_time']:.1f} ms one at a time, "
+        f"{1000 * overhead['all_at_once']:.1f} ms each when {OVERHEAD_CHUNKS} go at once; one "
+        f"worker tags a chunk in {r['chunk_tagging_seconds']:.2f} s, so the overhead is at most "
+        f"{100 * r['overhead_share']:.1f}% of it. Under 5% needs chunks of at least "
+        f"{r['smallest_chunk_chars_under_5_percent']:,} characters.",
+        "",
+        f"_{m['date']}, commit {m['commit']}, `{m['command']}`._",
+        "",
+    ]
+    return "\n".join(lines)
+
+
+def _seconds(values: list[float]) -> str:
+    return " and ".join(f"{value:.2f} s" for value in values)
+
+
+def main() -> None:
+    from tagger.apply.engine import CHUNK_CHARS
+
+    parser = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
+    parser.add_argument("model", type=Path, nargs="?", help="model file (default: train one)")
+    parser.add_argument("--megabytes", type=float, default=20.0)
+    parser.add_argument("--chunk-chars", type=int, default=CHUNK_CHARS)
+    parser.add_argument("--out", type=Path, default=ROOT / "benchmarks" / "cluster")
+    args = parser.parse_args()
+    work = Path(tempfile.mkdtemp(prefix="tagger-bench-cluster-"))
+    try:
+        model = args.model or train_model(work)
+        source, documents = write_input(work, args.megabytes)
+        results = measure(model, source, args.chunk_chars, work)
+        result = {
+            "model": portable_path(args.model) if args.model else "demo, default config, 1 epoch",
+            "input": {"megabytes": source.stat().st_size / 1e6, "documents": documents},
+            "results": results,
+            "machine": machine(),
+        }
+    finally:
+        shutil.rmtree(work, ignore_errors=True)
+    args.out.parent.mkdir(parents=True, exist_ok=True)
+    args.out.with_suffix(".json").write_text(json.dumps(result, indent=1) + "\n")
+    args.out.with_suffix(".md").write_text(render(result))
+    print(render(result))
+
+
+if __name__ == "__main__":
+    main()
