@@ -87,7 +87,7 @@ def run_corpus(name: str, quick: bool) -> dict[str, Any]:
         files.append(f"data.dev={settings['dev']}")
     config = apply_overrides(load_config(settings["config"]), [*chosen, *files])
     folder = ROOT / "runs" / "learning-curve-bench" / (f"quick-{name}" if quick else name)
-    began = time.monotonic()
+    began, setting = time.monotonic(), machine()
     summary = learning_curve(
         config,
         folder,
@@ -144,7 +144,7 @@ def run_corpus(name: str, quick: bool) -> dict[str, Any]:
         "difference": expected.f1 - median,
         "within_target": abs(expected.f1 - median) <= TOLERANCE,
         "minutes": round(minutes, 1),
-        "machine": machine(),
+        "machine": setting,
     }
 
 

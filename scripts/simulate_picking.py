@@ -290,9 +290,9 @@ def table(result: dict) -> str:
         f"{100 * TARGET:.0f}% of random's sentences, median of {len(seeds)} seeds: "
         + ("median not reached" if median is None else f"median {100 * median:.0f}%")
         + f", {verdict}",
-        f"run time {result['minutes']:.0f} min ({result['machine']['date']}, commit "
+        f"run time {result['minutes']:.0f} min, finished {result['machine']['date']} (commit "
         f"{result['machine']['commit']}, {result['machine']['cores']} cores, 1 training thread, "
-        f"load {result['machine']['load_before']} when it began)",
+        f"load average {result['machine']['load_before']} then)",
     ]
     return "\n".join(lines)
 
