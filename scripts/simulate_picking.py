@@ -212,6 +212,7 @@ def simulate(mode: str, folder: Path) -> dict:
         "pool": len(pool),
         "dev": len(dev),
         "step": step,
+        "epochs": config.train.epochs,
         "curves": curves,
         "reach": reach(curves),
         "minutes": round((time.monotonic() - began_run) / 60, 1),
@@ -269,6 +270,14 @@ def table(result: dict) -> str:
             lines.append(f"  {strategy:<14}{seed:>7} {cells}")
         cells = "".join(f"{100 * f:9.2f}" for f in round_medians(by_seed))
         lines.append(f"  {strategy:<14} median {cells}")
+    gaps = [
+        r - q
+        for r, q in zip(
+            round_medians(curves["ranked"]), round_medians(curves["random"]), strict=True
+        )
+    ]
+    lines += ["", "ranked minus random, median F1 by round (points):"]
+    lines.append("  " + "  ".join(f"{100 * g:+.2f}" for g in gaps))
     lines += ["", "ranked tokens annotated / random tokens annotated, by round (median of seeds):"]
     ratios = []
     for same_round in zip(
@@ -276,6 +285,15 @@ def table(result: dict) -> str:
     ):
         ratios.append(statistics.median(r["tokens"] / q["tokens"] for r, q in same_round))
     lines.append("  " + "  ".join(f"{r:.2f}" for r in ratios))
+    models = [p for by_seed in curves.values() for points in by_seed.values() for p in points]
+    epochs = result.get("epochs")
+    if epochs and all("best_epoch" in p for p in models):
+        last = sum(p["best_epoch"] == epochs for p in models)
+        lines.append("")
+        lines.append(
+            f"models whose best dev F1 came at the last epoch allowed ({epochs}): {last} of "
+            f"{len(models)}" + (" (still improving when stopped)" if last else "")
+        )
     per_seed = result["reach"]["per_seed"]
     shares = ", ".join(
         f"seed {seed}: " + ("not reached" if v is None else f"{100 * v:.0f}%")

@@ -73,17 +73,21 @@ def test_results_page_lists_the_annotation_loop_records(load_script, tmp_path: P
     (tmp_path / "learning_curve.json").write_text(
         json.dumps({"demo": _entry("demo", 0.915, 0.912, 0.918)})
     )
+    alone = benchmark.render_annotation_loop(tmp_path)  # one record is enough for the section
+    assert alone[0].startswith("## The annotation loop") and "predicts 91.50" in alone[-2]
     points = [{"sentences": n, "f1": f} for n, f in ((100, 0.5), (500, 0.8))]
+    ahead = [{"sentences": n, "f1": f} for n, f in ((100, 0.5), (500, 0.81))]
     (tmp_path / "picking.json").write_text(
         json.dumps({
             "step": 100, "minutes": 50.0, "machine": {"command": "scripts/simulate_picking.py"},
-            "curves": {"random": {"1": points, "2": points, "3": points}},
+            "curves": {"random": {"1": points, "2": points, "3": points},
+                       "ranked": {"1": ahead, "2": ahead, "3": points}},
             "reach": {"median": 0.6, "target": 0.7, "met": True},
         })
     )  # fmt: skip
     text = "\n".join(benchmark.render_annotation_loop(tmp_path))
     assert "CoNLL-2000, 3 seeds, 5 rounds from 100 to 500 sentences" in text
     assert "ends at test F1 80.00 (median), and ranked picking reaches it with 60%" in text
-    assert "target at most 70%: met; 50 min." in text
+    assert "in the final round it is +1.00 points ahead; target at most 70%: met; 50 min." in text
     assert "demo, the curve through 10-40% (3 seeds each) predicts 91.50 (91.20-91.80)" in text
     assert "measured 91.00 (median of 3, 90.50-91.20); +0.50 points, target within 1: met" in text
