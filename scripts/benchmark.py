@@ -4,6 +4,7 @@
     .venv/bin/python scripts/benchmark.py --full      # the record: ~6 hours on 2 cores
     .venv/bin/python scripts/benchmark.py --full --only conll2000_pos cells
     .venv/bin/python scripts/benchmark.py --list      # the run names and what each does
+    .venv/bin/python scripts/benchmark.py --render    # RESULTS.md again from the records, no runs
 
 Runs (names for --only), in the order they run:
 
@@ -42,7 +43,10 @@ seed, one thread: it proves that the whole benchmark runs, and its figures mean 
 
 Results are merged into benchmarks/results.json (by mode, then run name; re-read just before each
 write, so partial runs accumulate) and rendered to benchmarks/RESULTS.md after every run. Each entry
-holds the date, the machine, the commit when the command started, and the command.
+holds the date, the machine, the commit when the command started, and the command. RESULTS.md also
+lists the annotation loop's headline figures from the records scripts/simulate_picking.py and
+scripts/bench_learning_curve.py write beside it; `--render` rewrites RESULTS.md from what is
+recorded, running nothing.
 """
 
 from __future__ import annotations
@@ -708,7 +712,7 @@ def record(folder: Path, mode: Mode, name: str, entry: dict, started: dict, seco
     with atomic_output(path) as out:
         out.write(json.dumps(results, indent=2) + "\n")
     with atomic_output(folder / "RESULTS.md") as out:
-        out.write(render(results))
+        out.write(render(results, folder))
 
 
 TIMED_ALONE = "timed with nothing else running, thread counts as in the table"
@@ -914,7 +918,67 @@ def render_speed(entries: dict) -> list[str]:
     return lines
 
 
-def render(results: dict) -> str:
+def _read_record(path: Path) -> dict | None:
+    return json.loads(path.read_text()) if path.exists() else None
+
+
+def render_annotation_loop(folder: Path) -> list[str]:
+    """The annotation loop's two targets, from the records their own scripts write beside
+    results.json (benchmarks/picking*.json, benchmarks/learning_curve.json)."""
+    lines: list[str] = []
+    for name, corpus in (("picking", "CoNLL-2000"), ("picking_bc5cdr", "BC5CDR")):
+        picking = _read_record(folder / f"{name}.json")
+        if picking is None:
+            continue
+        curves, reached = picking["curves"], picking["reach"]
+        finals = [points[-1] for points in curves["random"].values()]
+        share = reached["median"]
+        last_random = median([f["f1"] for f in finals])
+        gap = median([points[-1]["f1"] for points in curves["ranked"].values()]) - last_random
+        lines.append(
+            f"- **What to annotate next** (`benchmarks/{name}.md`, "
+            f"`{picking['machine']['command']}`): {corpus}, {len(finals)} seeds, 5 rounds from "
+            f"{finals[0]['sentences'] - 4 * picking['step']:,} to {finals[0]['sentences']:,} "
+            f"sentences; random picking ends at test F1 "
+            f"{100 * last_random:.2f} (median), and ranked picking "
+            + (
+                "does not reach it in most seeds"
+                if share is None
+                else f"reaches it with {100 * share:.0f}% of random's sentences (median)"
+            )
+            + f"; at equal sentences in the final round it is {100 * gap:+.2f} points ahead"
+            + f"; target at most {100 * reached['target']:.0f}%: "
+            + ("met" if reached["met"] else "NOT met")
+            + f"; {picking['minutes']:.0f} min."
+        )
+    curve = _read_record(folder / "learning_curve.json")
+    for entry in (curve or {}).values():
+        predicted, measured = entry["predicted"], entry["measured"]
+        lines.append(
+            f"- **Full-train F1 from a learning curve** (`benchmarks/learning_curve.md`, "
+            f"`{entry['machine']['command']}`): {entry['corpus']}, the curve through 10-40% "
+            f"(3 seeds each) predicts {100 * predicted['f1']:.2f} "
+            f"({100 * predicted['low']:.2f}-{100 * predicted['high']:.2f}) at "
+            f"{predicted['sentences']:,} sentences; measured {100 * measured['median']:.2f} "
+            f"(median of 3, {100 * measured['min']:.2f}-{100 * measured['max']:.2f}); "
+            f"{100 * entry['difference']:+.2f} points, target within 1: "
+            + ("met" if entry["within_target"] else "NOT met")
+            + f"; {entry['minutes']:.0f} min."
+        )
+    if not lines:
+        return []
+    return [
+        "## The annotation loop: records of their own scripts",
+        "",
+        "Each names its settings, date, commit and command in its own file; the lines below are "
+        "their headline figures against the targets of issue 12.",
+        "",
+        *lines,
+        "",
+    ]
+
+
+def render(results: dict, folder: Path = RESULTS_DIR) -> str:
     lines = [
         "# Benchmark results",
         "",
@@ -934,6 +998,7 @@ def render(results: dict) -> str:
             "No full run is recorded yet: `.venv/bin/python scripts/benchmark.py --full`.",
             "",
         ]
+    lines += render_annotation_loop(folder)
     quick = results.get("quick", {})
     if quick:
         lines += [
@@ -962,6 +1027,11 @@ def main() -> int:
     which.add_argument("--quick", action="store_true", help="smoke run, a few minutes")
     which.add_argument("--full", action="store_true", help="the record, many hours")
     which.add_argument("--list", action="store_true", help="describe the runs and exit")
+    which.add_argument(
+        "--render",
+        action="store_true",
+        help="rewrite RESULTS.md from the records already written, running nothing",
+    )
     parser.add_argument("--only", nargs="+", choices=RUN_NAMES, metavar="NAME", default=None)
     parser.add_argument("--seeds", type=int, nargs="+", help="default: 3 (full) or 1 (quick)")
     parser.add_argument("--threads", type=int, help="torch threads of each training run; default 1")
@@ -977,8 +1047,13 @@ def main() -> int:
         runs = __doc__[__doc__.index("Runs (") : __doc__.index("Each accuracy")]
         print(runs.rstrip())
         return 0
-    mode = FULL if args.full else QUICK
     args.out = args.out.resolve()
+    if args.render:
+        results = json.loads((args.out / "results.json").read_text())
+        with atomic_output(args.out / "RESULTS.md") as out:
+            out.write(render(results, args.out))
+        return 0
+    mode = FULL if args.full else QUICK
     os.chdir(ROOT)  # the configs name their corpora relative to the project folder
     bench = Benchmark(
         mode, tuple(args.seeds or mode.seeds), args.threads or mode.threads, args.jobs or mode.jobs

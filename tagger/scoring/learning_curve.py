@@ -10,8 +10,9 @@ answer every time.
 
 The uncertainty is a bootstrap over the measured points (seeded): the points are drawn with
 replacement, the curve refitted, and the spread of what each refit expects at twice the largest
-size gives the interval. Draws with fewer than three distinct sizes cannot fix three parameters
-and are drawn again.
+size gives the interval (`expect_doubling`), or the spread of their F1 at any one size
+(`expect_at`: e.g. the whole training file predicted from its smaller shares). Draws with fewer
+than three distinct sizes cannot fix three parameters and are drawn again.
 """
 
 from __future__ import annotations
@@ -99,6 +100,31 @@ class Doubling:
         )
 
 
+def _refits(x: np.ndarray, y: np.ndarray, resamples: int, seed: int) -> list[PowerLaw]:
+    """The curve refitted to `resamples` seeded draws of the points with replacement (draws
+    holding fewer than three distinct sizes drawn again, at most 20 tries a refit)."""
+    rng = np.random.default_rng(seed)
+    refits: list[PowerLaw] = []
+    attempts = 0
+    while len(refits) < resamples and attempts < 20 * resamples:
+        attempts += 1
+        drawn = rng.integers(0, len(x), len(x))
+        if len(np.unique(x[drawn])) < MIN_SIZES:
+            continue
+        refits.append(fit_power_law(x[drawn], y[drawn]))
+    return refits
+
+
+def _interval(values: list[float], fallback: float, level: float) -> tuple[float, float]:
+    """The central `level` interval of `values`; (fallback, fallback) when there are none
+    (every draw repeated sizes: no spread to report but the fit's own)."""
+    if not values:
+        return fallback, fallback
+    tail = (1 - level) / 2
+    low, high = (float(v) for v in np.quantile(values, [tail, 1 - tail]))
+    return low, high
+
+
 def expect_doubling(
     sizes: Sequence[float],
     f1: Sequence[float],
@@ -111,22 +137,10 @@ def expect_doubling(
     curve = fit_power_law(sizes, f1)
     x, y = np.asarray(sizes, dtype=float), np.asarray(f1, dtype=float)
     largest = float(x.max())
-    rng = np.random.default_rng(seed)
-    gains: list[float] = []
-    attempts = 0
-    while len(gains) < resamples and attempts < 20 * resamples:
-        attempts += 1
-        drawn = rng.integers(0, len(x), len(x))
-        if len(np.unique(x[drawn])) < MIN_SIZES:
-            continue
-        refit = fit_power_law(x[drawn], y[drawn])
-        gains.append(float(refit(2 * largest) - refit(largest)))
+    refits = _refits(x, y, resamples, seed)
+    gains = [float(refit(2 * largest) - refit(largest)) for refit in refits]
     gain = float(curve(2 * largest) - curve(largest))
-    if gains:
-        tail = (1 - level) / 2
-        low, high = (float(v) for v in np.quantile(gains, [tail, 1 - tail]))
-    else:  # every draw repeated sizes (only three points): no spread to report but the fit's own
-        low = high = gain
+    low, high = _interval(gains, gain, level)
     now = float(curve(largest))
     return curve, Doubling(
         sentences=int(round(largest)),
@@ -137,3 +151,36 @@ def expect_doubling(
         level=level,
         resamples=len(gains),
     )
+
+
+@dataclass(frozen=True)
+class Expectation:
+    """What the fitted curve expects at one training size, with a bootstrap interval."""
+
+    sentences: float
+    f1: float  # the fitted curve's F1 there (not capped: a value above 1 says the fit is off)
+    low: float  # the interval of the refits' F1 there
+    high: float
+    level: float
+    resamples: int
+
+
+def expect_at(
+    sizes: Sequence[float],
+    f1: Sequence[float],
+    at: float,
+    resamples: int = RESAMPLES,
+    seed: int = SEED,
+    level: float = LEVEL,
+) -> tuple[PowerLaw, Expectation]:
+    """The curve through the points and its F1 at `at` sentences (e.g. the whole training file,
+    from fits to its smaller shares), with the interval of the bootstrap refits' F1 there.
+    ValueError as fit_power_law, or for `at` not positive."""
+    if at <= 0:
+        raise ValueError("the size to expect an F1 at must be positive")
+    curve = fit_power_law(sizes, f1)
+    x, y = np.asarray(sizes, dtype=float), np.asarray(f1, dtype=float)
+    values = [float(refit(at)) for refit in _refits(x, y, resamples, seed)]
+    expected = float(curve(at))
+    low, high = _interval(values, expected, level)
+    return curve, Expectation(at, expected, low, high, level, len(values))
