@@ -132,3 +132,7 @@ def test_the_record_says_whether_each_target_is_met(load_script) -> None:
     assert "| after | 850 | 85% | 900 | 75% | 2.00 | 0.50 | 0.03 | 5.0 | 30 | 5.0 | 9.0 |" in text
     assert "on batches of 16 texts" in text and "500 tokens per CPU second, 50% of" in text
     assert "**after**: commit abc, httptools, uvloop" in text
+    assert "Tagging alone, in batches of 16 texts, reaches 50% of the library's" in text
+    entry = _entry()
+    entry["library"]["median"]["tokens_per_cpu_second_in_batches"] = 900.0
+    assert "Tagging alone" not in bench.render(entry)  # said only when it rules the target out
