@@ -652,7 +652,18 @@ def tree_source(tree: Path) -> str:
     if found.returncode != 0 or len(lines) != 2 or Path(lines[0]).resolve() != tree:
         return f"source tree {portable_path(tree)}"
     changed = subprocess.run(
-        ["git", "-C", str(tree), "status", "--porcelain", "--untracked-files=no"],
+        # benchmarks/ aside: the records a run rewrites are not changes to what is measured
+        [
+            "git",
+            "-C",
+            str(tree),
+            "status",
+            "--porcelain",
+            "--untracked-files=no",
+            "--",
+            ".",
+            ":!benchmarks",
+        ],
         capture_output=True,
         text=True,
     ).stdout.strip()
