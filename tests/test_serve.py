@@ -11,6 +11,7 @@ SIGTERM and compares its answers with those of the `tag` command.
 from __future__ import annotations
 
 import datetime
+import importlib.util
 import json
 import os
 import re
@@ -38,7 +39,7 @@ from tagger.apply.exporting import export_model
 from tagger.apply.tagger import Tagger
 from tagger.cli import app
 from tagger.errors import ConfigError
-from tagger.serve.access_log import log_time
+from tagger.serve.access_log import ArrivalClock, log_time
 from tagger.serve.app import Service
 from tagger.serve.records import Tagged, text_tagger
 from tagger.serve.server import ListenError, bind, server_for
@@ -156,6 +157,7 @@ def served(
     gate: Gate | None = None,
     log: list[str] | None = None,
     tagger: Tagger | None = None,
+    speedups: bool = True,
 ) -> Iterator[Running]:
     """The service on a free loopback port, run by uvicorn in a thread; stopped on leaving.
     ``tagger`` (default: the model file loaded) is the one it runs."""
@@ -173,7 +175,7 @@ def served(
         urls.append(url)
         listening.set()
 
-    server, run = server_for(service, bind("127.0.0.1", 0), on_listening)
+    server, run = server_for(service, bind("127.0.0.1", 0), on_listening, speedups)
     thread = threading.Thread(target=run, daemon=True)
     thread.start()
     assert listening.wait(WAIT)
@@ -231,6 +233,23 @@ def test_tagging_many_texts_and_one_equals_the_library(model: Path, library: Tag
     # An untrained model is unsure everywhere: flagged at 0.8, not at 0.2 (empty texts never).
     assert [d["needs_review"] for d in documents] == [bool(t.strip()) for t in TEXTS]
     assert not any(d["needs_review"] for d in filtered)
+
+
+def test_uvicorns_pure_python_parts_answer_alike(model: Path, library: Tagger) -> None:
+    # The plain install's HTTP parser and event loop (h11, asyncio), chosen even where httptools
+    # and uvloop are installed; and those two where they are.
+    with served(model, speedups=False) as running:
+        answer = call(running.url + "/tag", {"texts": TEXTS})
+        refused = call(running.url + "/tag", {"texts": []})
+        parts = running.server.config
+    assert (parts.http_protocol_class.__name__, parts.loop) == ("H11Protocol", "asyncio")
+    assert answer.status == 200
+    assert [d["mentions"] for d in answer.json["documents"]] == records(library, TEXTS)
+    assert refused.status == 400 and refused.json["field"] == "texts"
+    if importlib.util.find_spec("httptools") is not None:
+        with served(model) as running:
+            parts = running.server.config
+        assert (parts.http_protocol_class.__name__, parts.loop) == ("HttpToolsProtocol", "auto")
 
 
 def test_an_exported_model_answers_as_the_model_file(
@@ -417,6 +436,18 @@ def test_log_time_is_the_formats_own() -> None:
         2000, 10, 10, 13, 55, 36, tzinfo=datetime.timezone(datetime.timedelta(hours=-7))
     )
     assert log_time(moment) == "[10/Oct/2000:13:55:36 -0700]"
+
+
+def test_the_arrival_time_is_made_once_a_second() -> None:
+    readings = iter([1_000_000_000.25, 1_000_000_000.99, 1_000_000_001.5])
+    clock = ArrivalClock(lambda: next(readings))
+
+    def local(second: int) -> str:
+        return log_time(datetime.datetime.fromtimestamp(second).astimezone())
+
+    first, same_second, next_second = clock(), clock(), clock()
+    assert first == same_second == local(1_000_000_000)
+    assert next_second == local(1_000_000_001) != first
 
 
 # --- stopping --------------------------------------------------------------------------------

@@ -56,7 +56,10 @@ def serve(
     batch_texts: Annotated[int, typer.Option(help="Most texts tagged in one batch.")] = 64,
     batch_wait_ms: Annotated[
         float,
-        typer.Option(help="Milliseconds a request waits for others to join its batch."),
+        typer.Option(
+            help="Milliseconds a batch that is not full waits for more requests, from when it "
+            "could start."
+        ),
     ] = 5.0,
     access_log: Annotated[
         bool,

@@ -10,6 +10,7 @@
     access_log.py one Common Log Format line per request
     server.py     listening on a socket and stopping gracefully (uvicorn)
 
-Needs the `serve` extra (starlette, uvicorn); only `app.py` and `server.py` import them, and only
-the `serve` command imports those. May import `tagger.apply` and everything below it.
+Needs the `serve` extra (starlette, uvicorn; its httptools and uvloop are used when installed and
+not required); only `app.py` and `server.py` import them, and only the `serve` command imports
+those. May import `tagger.apply` and everything below it.
 """

@@ -12,6 +12,7 @@ status. Nothing here needs the web framework.
 from __future__ import annotations
 
 import datetime
+import time
 from collections.abc import Awaitable, Callable, MutableMapping
 from typing import Any
 
@@ -34,8 +35,27 @@ def log_time(moment: datetime.datetime) -> str:
     )
 
 
-def log_line(scope: Scope, status: int | None, size: int, moment: datetime.datetime) -> str:
-    """One request's line (without its line break)."""
+class ArrivalClock:
+    """The local time now as `log_time` writes it. The format counts whole seconds, and a busy
+    service logs many requests in each, so the text is made once a second: reading the local
+    time zone and formatting it for every request was a visible share of the event loop's CPU
+    per request (benchmarks/serve_profile.md)."""
+
+    def __init__(self, now: Callable[[], float] = time.time) -> None:
+        self.now = now
+        self._second: int | None = None
+        self._text = ""
+
+    def __call__(self) -> str:
+        second = int(self.now())
+        if second != self._second:
+            moment = datetime.datetime.fromtimestamp(second).astimezone()
+            self._second, self._text = second, log_time(moment)
+        return self._text
+
+
+def log_line(scope: Scope, status: int | None, size: int, when: str) -> str:
+    """One request's line (without its line break); `when` as `log_time` writes it."""
     client = scope.get("client")
     host = client[0] if client else "-"
     target = scope.get("raw_path") or scope.get("path", "").encode()
@@ -47,7 +67,7 @@ def log_line(scope: Scope, status: int | None, size: int, moment: datetime.datet
     # A request line is quoted: escape what would end the quotes or the line.
     request = f"{scope.get('method', '-')} {target} HTTP/{scope.get('http_version', '1.1')}"
     request = request.replace("\\", "\\\\").replace('"', '\\"')
-    return f'{host} - - {log_time(moment)} "{request}" {status or "-"} {size or "-"}'
+    return f'{host} - - {when} "{request}" {status or "-"} {size or "-"}'
 
 
 class AccessLog:
@@ -56,12 +76,13 @@ class AccessLog:
     def __init__(self, app: App, write: Callable[[str], None]) -> None:
         self.app = app
         self.write = write
+        self.clock = ArrivalClock()
 
     async def __call__(self, scope: Scope, receive: Receive, send: Send) -> None:
         if scope["type"] != "http":
             await self.app(scope, receive, send)
             return
-        moment = datetime.datetime.now().astimezone()  # the time the request arrived
+        when = self.clock()  # the time the request arrived
         status: int | None = None
         size = 0
 
@@ -76,4 +97,4 @@ class AccessLog:
         try:
             await self.app(scope, receive, watching)
         finally:
-            self.write(log_line(scope, status, size, moment))
+            self.write(log_line(scope, status, size, when))

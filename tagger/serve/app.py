@@ -95,10 +95,11 @@ class Service:
             settings.queue_requests,
         )
         app = Starlette(
+            # Tried in order: the route nearly every request takes comes first.
             routes=[
+                Route("/tag", self.tag, methods=["POST"]),
                 Route("/health", self.health, methods=["GET"]),
                 Route("/model", self.model, methods=["GET"]),
-                Route("/tag", self.tag, methods=["POST"]),
             ],
             exception_handlers={HTTPException: self.no_route},
             lifespan=self.lifespan,

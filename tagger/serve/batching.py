@@ -2,13 +2,18 @@
 
     request --submit--> bounded queue --gather--> batch of texts --worker thread--> results
                         (full: Overloaded)        (<= batch_texts; waits at most batch_wait
-                                                   from the arrival of its first request)
+                                                   from when the batch could start)
 
 The event loop only queues and answers; the tagging itself runs in a single worker thread, so the
 loop stays free to read and answer other requests while a batch is tagged, and batches never run
 two at a time (one batch uses every torch thread). While a batch is tagged, new requests gather in
-the queue and form the next batch as soon as it ends: under load batches fill without waiting,
-and a lone request waits at most `batch_wait` for company.
+the queue and form the next batch. A batch starts as soon as it is full; otherwise it waits for
+company at most `batch_wait`, counted from when it could start: the arrival of its first request,
+or the end of the batch before it if that is later. So a lone request waits at most `batch_wait`,
+and requests queued behind a batch still wait that long for others: the clients just answered by
+that batch send their next requests within it, and a tagging batch costs much less per text when
+it is larger (clients that each keep one request in flight otherwise split into two halves that
+take turns, each batch half as large as it could be).
 
 A request is never split across batches; one larger than `batch_texts` is tagged alone. A request
 whose client gave up (its future cancelled, e.g. on a timeout) is dropped from the queue before
@@ -38,7 +43,6 @@ class Overloaded(TaggerError):
 class _Waiting(Generic[Result]):
     texts: Sequence[str]
     future: asyncio.Future[list[Result]]
-    arrived: float  # the event loop's clock
 
 
 @dataclass
@@ -98,7 +102,7 @@ class MicroBatcher(Generic[Result]):
         """One result per text, in order; Overloaded when the queue is full. Cancelling the
         caller (a timeout) drops the request if it has not reached the worker thread yet."""
         loop = asyncio.get_running_loop()
-        waiting = _Waiting(texts, loop.create_future(), loop.time())
+        waiting = _Waiting(texts, loop.create_future())
         try:
             self.queue.put_nowait(waiting)
         except asyncio.QueueFull:
@@ -123,20 +127,19 @@ class MicroBatcher(Generic[Result]):
 
     async def _gather(self) -> list[_Waiting[Result]]:
         """The requests of the next batch: the first to arrive, and those that come before its
-        wait ends, while their texts fit in one batch."""
+        wait ends (`batch_wait` from now), while their texts fit in one batch."""
         loop = asyncio.get_running_loop()
         first = await self._next()
         while first.future.done():  # its client gave up while it waited
             first = await self._next()
         batch, size = [first], len(first.texts)
-        deadline = first.arrived + self.batch_wait
+        # Now is the first request's arrival (it was awaited) or the end of the batch before.
+        deadline = loop.time() + self.batch_wait
         while size < self.batch_texts:
             if self.queue.empty():
-                remaining = deadline - loop.time()
-                if remaining <= 0:
-                    break
                 try:
-                    following = await asyncio.wait_for(self.queue.get(), remaining)
+                    async with asyncio.timeout_at(deadline):
+                        following = await self.queue.get()
                 except TimeoutError:
                     break
             else:

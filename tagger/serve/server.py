@@ -5,6 +5,11 @@ machine does not have is one clear error, and port 0 (any free port) is known at
 SIGTERM stops accepting connections, lets requests in flight finish (at most the request timeout
 and a second more), then ends the tagging thread; uvicorn raises the signal again once it is
 done, for the caller to see how the service was stopped.
+
+HTTP is parsed by httptools and the event loop is uvloop's when both are installed (the `serve`
+extra asks for them): C in place of h11's and asyncio's Python, about half the event loop's CPU
+per request (benchmarks/serve.md). Without them uvicorn's pure-Python parts serve the same
+answers; `speedups=False` asks for those even when the others are installed.
 """
 
 from __future__ import annotations
@@ -76,13 +81,19 @@ class _Server(uvicorn.Server):
 
 
 def server_for(
-    service: Service, sock: socket.socket, on_listening: Callable[[str], None]
+    service: Service,
+    sock: socket.socket,
+    on_listening: Callable[[str], None],
+    speedups: bool = True,
 ) -> tuple[_Server, Callable[[], None]]:
     """The server of `service` on a bound socket, and the function that runs it until stopped;
-    `on_listening` gets the URL once connections are accepted."""
+    `on_listening` gets the URL once connections are accepted. With `speedups`, httptools and
+    uvloop when they are installed ("auto": uvicorn falls back to h11 and asyncio without them)."""
     host, port = sock.getsockname()[:2]
     config = uvicorn.Config(
         service.app,
+        http="auto" if speedups else "h11",
+        loop="auto" if speedups else "asyncio",
         lifespan="on",
         log_config=None,  # uvicorn's own lines: warnings and errors only, on stderr
         log_level="warning",
