@@ -8,8 +8,6 @@ from __future__ import annotations
 
 import json
 import random
-import subprocess
-import sys
 from pathlib import Path
 
 import pytest
@@ -21,6 +19,7 @@ from test_tagging import (
     model,  # noqa: F401 - a fixture: the tiny tagger trained once
 )
 from typer.testing import CliRunner
+from without_torch import tag_without_torch
 
 from tagger.apply.export_file import read_export_file
 from tagger.apply.exported import ExportedTagger
@@ -147,21 +146,8 @@ def test_the_onnx_backend_tags_where_torch_cannot_be_imported(
     export_model(model, exported)
     texts = [_detokenised(s) for s in _sentences(4, 6)]
     expected = [[m.to_record() for m in found] for found in Tagger.load(model).tag(texts)]
-    # A None entry in sys.modules makes `import torch` raise ImportError.
-    code = (
-        "import json, sys\n"
-        "sys.modules['torch'] = None\n"
-        "from tagger.apply.exported import ExportedTagger\n"
-        f"tagger = ExportedTagger.load({str(exported)!r}, threads=1)\n"
-        f"found = tagger.tag({texts!r})\n"
-        "print(json.dumps([[m.to_record() for m in f] for f in found]))\n"
-        "print('torch' in sys.modules and sys.modules['torch'] is not None)\n"
-    )
-    done = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True)
-    assert done.returncode == 0, done.stderr
-    records, torch_loaded = done.stdout.strip().splitlines()
-    assert torch_loaded == "False"
-    got = json.loads(records)
+    got, torch_loaded = tag_without_torch(exported, texts)
+    assert not torch_loaded
     assert [[(m["type"], m["at"]) for m in doc] for doc in got] == [
         [(m["type"], m["at"]) for m in doc] for doc in expected
     ]

@@ -10,14 +10,13 @@ from __future__ import annotations
 
 import json
 import random
-import subprocess
-import sys
 from pathlib import Path
 
 import numpy as np
 import pytest
 import torch
 from typer.testing import CliRunner
+from without_torch import tag_without_torch
 
 from tagger.apply.export_file import read_export_file, write_export_file
 from tagger.apply.exported import ExportedTagger
@@ -290,18 +289,8 @@ def test_the_new_parts_tag_where_torch_cannot_be_imported(everything: Path) -> N
     export_model(everything, exported)
     texts = ["Technician Zbigniew replaced the thermoswitch .", "The pumpjack on unit 4 was ."]
     expected = [[m.to_record() for m in found] for found in Tagger.load(everything).tag(texts)]
-    # A None entry in sys.modules makes `import torch` raise ImportError.
-    code = (
-        "import json, sys\n"
-        "sys.modules['torch'] = None\n"
-        "from tagger.apply.exported import ExportedTagger\n"
-        f"tagger = ExportedTagger.load({str(exported)!r}, threads=1)\n"
-        f"found = tagger.tag({texts!r})\n"
-        "print(json.dumps([[m.to_record() for m in f] for f in found]))\n"
-    )
-    done = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True)
-    assert done.returncode == 0, done.stderr
-    got = json.loads(done.stdout)
+    got, torch_loaded = tag_without_torch(exported, texts)
+    assert not torch_loaded
     assert [[(m["type"], m["at"]) for m in doc] for doc in got] == [
         [(m["type"], m["at"]) for m in doc] for doc in expected
     ]
