@@ -26,6 +26,7 @@ from __future__ import annotations
 import argparse
 import gzip
 import json
+import pickle
 import re
 import shutil
 import statistics
@@ -87,6 +88,49 @@ def tag(model: Path, source: Path, out: Path, chunk_chars: int, *extra: str) -> 
             "tokens_per_second": round(tokens / seconds, 1)}  # fmt: skip
 
 
+def two_alone(model: Path, source: Path, work: Path, chunk_chars: int) -> dict:
+    """Two `tagger tag --threads 1` child processes at once, each on half of the input, no
+    cluster: what this machine gives two processes at all, the ceiling any cluster of two
+    workers on it is held to."""
+    lines = source.read_text(encoding="utf-8").splitlines(keepends=True)
+    halves = [work / "first-half.jsonl", work / "second-half.jsonl"]
+    halves[0].write_text("".join(lines[: len(lines) // 2]), encoding="utf-8")
+    halves[1].write_text("".join(lines[len(lines) // 2 :]), encoding="utf-8")
+    started = time.perf_counter()
+    children = [
+        subprocess.Popen(
+            [
+                sys.executable,
+                "-m",
+                "tagger",
+                "tag",
+                str(model),
+                str(half),
+                "-o",
+                str(half.with_suffix(".out")),
+                "--threads",
+                "1",
+                "--chunk-chars",
+                str(chunk_chars),
+            ],
+            cwd=ROOT,
+            stdout=subprocess.PIPE,
+            stderr=subprocess.PIPE,
+            text=True,
+        )  # fmt: skip
+        for half in halves
+    ]
+    tokens = 0
+    for child in children:
+        _, stderr = child.communicate()
+        if child.returncode != 0:
+            raise RuntimeError(stderr)
+        tokens += int(SUMMARY.search(stderr).group(1).replace(",", ""))
+    seconds = time.perf_counter() - started
+    return {"seconds": round(seconds, 3), "tokens": tokens,
+            "tokens_per_second": round(tokens / seconds, 1)}  # fmt: skip
+
+
 def _load_seconds(model: str) -> list[float]:
     """Run on a worker: how long `Tagger.load` takes there (one thread, as `tag` loads it), the
     first time (what a worker's first chunk pays: torch and the network code imported too) and
@@ -101,8 +145,9 @@ def _load_seconds(model: str) -> list[float]:
     return times
 
 
-def _hand_back(items: list) -> list:
-    return items
+def _hand_back(items: bytes) -> bytes:
+    """A chunk's trip without the tagging: unpacked and packed again, as `tag_chunk` does."""
+    return pickle.dumps(pickle.loads(items), protocol=pickle.HIGHEST_PROTOCOL)
 
 
 def sample_chunks(source: Path, chunk_chars: int, count: int) -> list[list]:
@@ -118,9 +163,10 @@ def sample_chunks(source: Path, chunk_chars: int, count: int) -> list[list]:
     return found
 
 
-def chunk_overhead(client, sample: list[list]) -> dict:
+def chunk_overhead(client, sample: list) -> dict:
     """Seconds per chunk sent to a worker and handed back: one at a time and all at once."""
     one_by_one = []
+    sample = [pickle.dumps(chunk, protocol=pickle.HIGHEST_PROTOCOL) for chunk in sample]
     for index, chunk in enumerate(sample):
         started = time.perf_counter()
         client.submit(_hand_back, chunk, key=f"bench-one-{index}", pure=False).result()
@@ -141,6 +187,8 @@ def measure(model: Path, source: Path, chunk_chars: int, work: Path) -> dict:
 
     one = tag(model, source, work / "one.jsonl", chunk_chars)
     print(f"one worker: {one}", flush=True)
+    alone = two_alone(model, source, work, chunk_chars)
+    print(f"two processes alone: {alone}", flush=True)
     with (
         LocalCluster(n_workers=2, threads_per_worker=1, processes=True, dashboard_address=None)
         as cluster,
@@ -160,6 +208,10 @@ def measure(model: Path, source: Path, chunk_chars: int, work: Path) -> dict:
         "one_worker": one,
         "cluster_of_2": spread,
         "speed_up": round(spread["tokens_per_second"] / one["tokens_per_second"], 2),
+        "two_processes_alone": alone,
+        "machine_two_process_speed_up": round(
+            alone["tokens_per_second"] / one["tokens_per_second"], 2
+        ),
         "byte_identical": same,
         "model_load_seconds": {
             "first": sorted(s[0] for s in loads.values()),
@@ -191,9 +243,11 @@ def render(result: dict) -> str:
         f"{one['tokens_per_second']:,.0f} |",
         f"| cluster of 2 (`--cluster`) | {two['tokens']:,} | {two['seconds']:.1f} | "
         f"{two['tokens_per_second']:,.0f} |",
+        *_alone_row(r),
         "",
         f"- Cluster against one worker: {r['speed_up']:.2f}x; output byte-identical: "
         f"{'yes' if r['byte_identical'] else 'NO'}.",
+        *_alone_line(r),
         f"- Model load per worker: {_seconds(r['model_load_seconds']['first'])} the first time "
         f"(torch and the network code imported too), {_seconds(r['model_load_seconds']['again'])} "
         "again.",
@@ -208,6 +262,27 @@ def render(result: dict) -> str:
         "",
     ]
     return "\n".join(lines)
+
+
+def _alone_row(r: dict) -> list[str]:
+    if "two_processes_alone" not in r:
+        return []
+    alone = r["two_processes_alone"]
+    return [
+        f"| two `tag` processes at once, half the input each, no cluster | {alone['tokens']:,} | "
+        f"{alone['seconds']:.1f} | {alone['tokens_per_second']:,.0f} |"
+    ]
+
+
+def _alone_line(r: dict) -> list[str]:
+    if "two_processes_alone" not in r:
+        return []
+    ceiling = r["machine_two_process_speed_up"]
+    return [
+        f"- Two processes with no cluster at all reach {ceiling:.2f}x one process on this "
+        f"machine: the ceiling for any two workers here; the cluster gets "
+        f"{100 * r['speed_up'] / ceiling:.0f}% of it."
+    ]
 
 
 def _seconds(values: list[float]) -> str:

@@ -328,11 +328,18 @@ def main() -> int:
     parser.add_argument(
         "--buckets", type=int, help="n-gram rows of the vectors (default: learn-vectors' own)"
     )
+    parser.add_argument(
+        "--rescore", action="store_true", help="score the recorded runs again, train nothing"
+    )
     args = parser.parse_args()
     setting = replace(SETTINGS[args.corpus], buckets=args.buckets)
     missing = [p for p in (setting.raw, setting.train, setting.dev, setting.test) if not p.exists()]
     if missing:
         print(f"skipped: {', '.join(map(str, missing))} absent", flush=True)
+        return 0
+    if args.rescore:
+        rescore(setting, mention_set(setting.train))
+        print(f"wrote {portable_path(setting.results)} and {portable_path(setting.summary)}")
         return 0
     learning = learn_vectors(setting)
     wants_lm = any(v.endswith("char-lm") for v in args.variants)
@@ -358,6 +365,25 @@ def main() -> int:
             write_atomically(setting.summary, render(setting, record))
     print(f"wrote {portable_path(setting.results)} and {portable_path(setting.summary)}")
     return 0
+
+
+def rescore(setting: Setting, train_mentions: set) -> None:
+    """Score every recorded run again from the predictions it wrote, and write the record and
+    its page again: for when the counting changes, without training or tagging anything."""
+    record = json.loads(setting.results.read_text())
+    for label, seeds in record["runs"].items():
+        variant, _, rows = label.partition(", ")
+        suffix = f"-{rows.split()[0].replace(',', '')}rows" if rows else ""
+        for seed, result in seeds.items():
+            predictions = setting.runs / f"{variant}{suffix}-seed{seed}" / "test.predicted.tsv"
+            if predictions.exists():
+                gold, predicted = sentence_mentions(setting.test), sentence_mentions(predictions)
+                result["scores"] = recall_by_seen(gold, predicted, train_mentions.__contains__)
+            else:
+                print(f"kept the recorded scores of {label} seed {seed}: {predictions} is gone")
+    record["summary"] = summarise(record["runs"])
+    write_atomically(setting.results, json.dumps(record, indent=2) + "\n")
+    write_atomically(setting.summary, render(setting, record))
 
 
 def write_atomically(path: Path, text: str) -> None:
