@@ -1,5 +1,6 @@
-"""Tagging with an exported model in a fresh Python where `import torch` fails: what the onnx
-backend promises to a machine without torch."""
+"""Checks of the onnx backend shared by the export tests: tagging in a fresh Python where
+`import torch` fails (what the backend promises to a machine without torch), and its records set
+beside torch's."""
 
 from __future__ import annotations
 
@@ -27,3 +28,15 @@ def tag_without_torch(exported: Path, texts: list[str]) -> tuple[list[list[dict]
     assert done.returncode == 0, done.stderr
     records, torch_loaded = done.stdout.strip().splitlines()
     return json.loads(records), json.loads(torch_loaded)
+
+
+def assert_same_records(torch_records: list[dict], onnx_records: list[dict]) -> None:
+    """The onnx backend's JSON Lines records against torch's: the same spans and review flags,
+    confidences within 1e-4 (both are rounded to 4 places)."""
+    for a, b in zip(torch_records, onnx_records, strict=True):
+        assert [(m["type"], m["at"]) for m in a["mentions"]] == [
+            (m["type"], m["at"]) for m in b["mentions"]
+        ]
+        for x, y in zip(a["mentions"], b["mentions"], strict=True):
+            assert abs(x["confidence"] - y["confidence"]) <= 1e-4 + 1e-9
+        assert a["needs_review"] == b["needs_review"]
