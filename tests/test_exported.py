@@ -19,7 +19,7 @@ from test_tagging import (
     model,  # noqa: F401 - a fixture: the tiny tagger trained once
 )
 from typer.testing import CliRunner
-from without_torch import assert_same_records, tag_without_torch
+from without_torch import assert_same_records, assert_same_scored, tag_without_torch
 
 from tagger.apply.export_file import read_export_file
 from tagger.apply.exported import ExportedTagger
@@ -59,15 +59,6 @@ def _both(tmp_path: Path, settings: dict, lexicon: bool, seed: int) -> tuple[Tag
     return Tagger.load(tmp_path / "model.tagger"), ExportedTagger.load(tmp_path / "model.tagexport")
 
 
-def _assert_same(expected: list, got: list) -> None:
-    assert len(expected) == len(got)
-    for a, b in zip(expected, got, strict=True):
-        assert [s[:3] for s in a.spans] == [s[:3] for s in b.spans]
-        for x, y in zip(a.spans, b.spans, strict=True):
-            assert abs(x[3] - y[3]) < 1e-4
-        assert abs(a.certainty - b.certainty) < 1e-4
-
-
 @pytest.mark.parametrize(("settings", "lexicon"), NETWORKS, ids=lambda v: str(v))
 def test_the_two_backends_find_the_same_spans_and_scores(
     tmp_path: Path, settings: dict, lexicon: bool
@@ -75,10 +66,10 @@ def test_the_two_backends_find_the_same_spans_and_scores(
     torch_tagger, onnx_tagger = _both(tmp_path, settings, lexicon, seed=3)
     token_lists = _token_lists(5)
     expected = torch_tagger.predict_sentences(token_lists, batch_size=7)
-    _assert_same(expected, onnx_tagger.predict_sentences(token_lists, batch_size=7))
+    assert_same_scored(expected, onnx_tagger.predict_sentences(token_lists, batch_size=7))
     assert sum(len(s.spans) for s in expected) > 10  # the comparison covers real spans
     for temperature in (0.6, 2.0):
-        _assert_same(
+        assert_same_scored(
             torch_tagger.predict_sentences(token_lists, temperature=temperature),
             onnx_tagger.predict_sentences(token_lists, temperature=temperature),
         )

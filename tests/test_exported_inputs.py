@@ -16,7 +16,7 @@ import numpy as np
 import pytest
 import torch
 from typer.testing import CliRunner
-from without_torch import assert_same_records, tag_without_torch
+from without_torch import assert_same_records, assert_same_scored, tag_without_torch
 
 from tagger.apply.export_file import read_export_file, write_export_file
 from tagger.apply.exported import ExportedTagger
@@ -132,15 +132,6 @@ def _language_model(raw: Path, out: Path, cell: str) -> Path:
     return out
 
 
-def _assert_same(expected: list, got: list) -> None:
-    assert len(expected) == len(got)
-    for a, b in zip(expected, got, strict=True):
-        assert [s[:3] for s in a.spans] == [s[:3] for s in b.spans]
-        for x, y in zip(a.spans, b.spans, strict=True):
-            assert abs(x[3] - y[3]) < 1e-4
-        assert abs(a.certainty - b.certainty) < 1e-4
-
-
 def _both_backends(model: Path, int8: bool = False) -> tuple[Tagger, ExportedTagger]:
     out = model.with_name("int8.tagexport" if int8 else "model.tagexport")
     export_model(model, out, int8=int8)
@@ -151,9 +142,9 @@ def _compare(model: Path) -> tuple[Tagger, ExportedTagger]:
     torch_tagger, onnx_tagger = _both_backends(model)
     token_lists = _to_tag()
     expected = torch_tagger.predict_sentences(token_lists, batch_size=8)
-    _assert_same(expected, onnx_tagger.predict_sentences(token_lists, batch_size=8))
+    assert_same_scored(expected, onnx_tagger.predict_sentences(token_lists, batch_size=8))
     assert sum(len(s.spans) for s in expected) >= 20  # the comparison covers real spans
-    _assert_same(
+    assert_same_scored(
         torch_tagger.predict_sentences(token_lists, temperature=1.7),
         onnx_tagger.predict_sentences(token_lists, temperature=1.7),
     )

@@ -40,3 +40,14 @@ def assert_same_records(torch_records: list[dict], onnx_records: list[dict]) -> 
         for x, y in zip(a["mentions"], b["mentions"], strict=True):
             assert abs(x["confidence"] - y["confidence"]) <= 1e-4 + 1e-9
         assert a["needs_review"] == b["needs_review"]
+
+
+def assert_same_scored(expected: list, got: list) -> None:
+    """Scored sentences of the two backends: the same spans, span scores and certainties within
+    1e-4."""
+    assert len(expected) == len(got)
+    for a, b in zip(expected, got, strict=True):
+        assert [s[:3] for s in a.spans] == [s[:3] for s in b.spans]
+        for x, y in zip(a.spans, b.spans, strict=True):
+            assert abs(x[3] - y[3]) < 1e-4
+        assert abs(a.certainty - b.certainty) < 1e-4

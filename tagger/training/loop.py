@@ -220,17 +220,18 @@ def _train(
             stop_reason = row["stop"]
             break
 
+    result = TrainResult(
+        state.history,
+        state.best_epoch,
+        state.best_dev,
+        stop_reason,
+        diverged,
+        run_dir,
+        data.notes,
+        ranks.rank,
+    )
     if not ranks.lead:
-        return TrainResult(
-            state.history,
-            state.best_epoch,
-            state.best_dev,
-            stop_reason,
-            diverged,
-            run_dir,
-            data.notes,
-            ranks.rank,
-        )
+        return result
     calibration = None
     if state.best_epoch and (run_dir / MODEL_NAME).exists():
         calibration = calibrate_model_file(run_dir / MODEL_NAME, data.dev, data.dev_spans)
@@ -254,15 +255,7 @@ def _train(
         },
     )
     write_guide(run_dir, config, stop_reason)
-    return TrainResult(
-        state.history,
-        state.best_epoch,
-        state.best_dev,
-        stop_reason,
-        diverged,
-        run_dir,
-        data.notes,
-    )
+    return result
 
 
 @dataclass
