@@ -3,7 +3,8 @@
     .venv/bin/python scripts/bench_distributed.py --rounds 3
 
 Trains the demo for a few epochs as 1 process x 1 thread, 1 process x 2 threads and 2 processes
-x 1 thread (`torchrun --standalone --nproc-per-node 2`), the three interleaved round after round so
+x 1 thread (`torchrun --standalone --nproc-per-node 2`), the last also with batches of 16 (as many
+optimizer steps an epoch as one process), all interleaved round after round so
 that a change in the machine's load touches all of them, and records the median of the training
 tokens/s `train` writes per epoch (dev scoring apart; with two processes they count the tokens of
 both) and the dev F1 after the last epoch. Writes benchmarks/distributed_speed.{json,md}.
@@ -28,17 +29,22 @@ from benchlib import machine  # noqa: E402
 DEMO = ROOT / "data" / "demo"
 TORCHRUN = Path(sys.executable).with_name("torchrun")
 
-SETUPS = {
-    "1 process x 1 thread": ([sys.executable, "-m", "tagger"], 1),
-    "1 process x 2 threads": ([sys.executable, "-m", "tagger"], 2),
-    "2 processes x 1 thread": (
-        [str(TORCHRUN), "--standalone", "--nproc-per-node", "2", "-m", "tagger"],
-        1,
-    ),
+ONE = [sys.executable, "-m", "tagger"]
+TWO = [str(TORCHRUN), "--standalone", "--nproc-per-node", "2", "-m", "tagger"]
+# name: (launcher, threads per process, settings beside the config's)
+SETUPS: dict[str, tuple[list[str], int, list[str]]] = {
+    "1 process x 1 thread": (ONE, 1, []),
+    "1 process x 2 threads": (ONE, 2, []),
+    "2 processes x 1 thread": (TWO, 1, []),
+    # a step of two batches of 16 holds as many sentences as one process's batch of 32, so the
+    # run takes as many optimizer steps per epoch as one process does
+    "2 processes x 1 thread, batches of 16": (TWO, 1, ["train.batch_size=16"]),
 }
 
 
-def train_once(launcher: list[str], threads: int, epochs: int, out: Path) -> list[dict]:
+def train_once(
+    launcher: list[str], threads: int, settings: list[str], epochs: int, out: Path
+) -> list[dict]:
     command = [
         *launcher,
         "train",
@@ -52,6 +58,7 @@ def train_once(launcher: list[str], threads: int, epochs: int, out: Path) -> lis
         str(threads),
         "--set",
         f"train.epochs={epochs}",
+        *[part for setting in settings for part in ("--set", setting)],
         "--overwrite",
     ]
     subprocess.run(command, check=True, cwd=ROOT, capture_output=True)
@@ -63,8 +70,8 @@ def measure(rounds: int, epochs: int) -> dict:
     work = Path(tempfile.mkdtemp(prefix="tagger-bench-ddp-"))
     try:
         for round_number in range(rounds):
-            for name, (launcher, threads) in SETUPS.items():
-                history = train_once(launcher, threads, epochs, work / "run")
+            for name, (launcher, threads, settings) in SETUPS.items():
+                history = train_once(launcher, threads, settings, epochs, work / "run")
                 rates = [e["train_tokens_per_second"] for e in history]
                 found[name].append({"tokens_per_second": rates, "dev_f1": history[-1]["dev_f1"]})
                 print(f"round {round_number + 1} {name}: {rates} dev F1 {history[-1]['dev_f1']}")
@@ -92,7 +99,9 @@ def render(result: dict) -> str:
         f"The demo (`data/demo/train.txt`, dev `data/demo/dev.txt`, `configs/default.toml`), "
         f"{result['epochs']} epochs a run, {result['rounds']} interleaved rounds; tokens/s are "
         "those `train` writes per epoch (training only; two processes count the tokens of both), "
-        "medians over every epoch of every round. Load average before the run: "
+        "medians over every epoch of every round. Two processes train on a batch each per step, "
+        "so with the config's 32 a step holds 64 sentences and an epoch has half the steps; "
+        "with batches of 16 it has as many as one process. Load average before the run: "
         f"{m['load_before']}.",
         "",
         "| setup | tokens/s (median) | range | against 1 x 1 | dev F1 after the last epoch |",

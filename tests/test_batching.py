@@ -78,3 +78,24 @@ def test_buckets_cover_every_sentence_once_and_are_seeded() -> None:
     assert spread <= 4  # neighbours in length order share a batch
     ordered = bucketed_batches(lengths, 8)
     assert [lengths[b[0]] for b in ordered] == sorted(lengths[b[0]] for b in ordered)
+
+
+def test_batches_trained_side_by_side_are_about_as_long() -> None:
+    lengths = [(i * 37) % 50 + 1 for i in range(101)]  # 13 batches of 8: six pairs and one left
+    alone = bucketed_batches(lengths, 8, random.Random(1))
+    paired = bucketed_batches(lengths, 8, random.Random(1), group=2)
+    assert sorted(i for b in paired for i in b) == list(range(101))
+    assert paired == bucketed_batches(lengths, 8, random.Random(1), group=2)
+
+    def longest(batch: list[int]) -> int:
+        return max(lengths[i] for i in batch)
+
+    def mismatch(batches: list[list[int]]) -> int:
+        return sum(
+            abs(longest(a) - longest(b)) for a, b in zip(batches[:-1:2], batches[1::2], strict=True)
+        )
+
+    # the pairs are neighbours in length order, shuffled as pairs; the odd batch out stays last
+    assert mismatch(paired) <= 6 * 4 < mismatch(alone)
+    assert sorted(lengths[i] for i in paired[-1]) == sorted(lengths)[-len(paired[-1]) :]
+    assert [longest(b) for b in paired[:-1:2]] != sorted(longest(b) for b in paired[:-1:2])

@@ -175,7 +175,7 @@ def _one_process_on_steps_put_together(config_path: Path) -> dict[str, torch.Ten
         tools = step_tools(config, setup, net)
         net.train()
         for epoch in range(1, config.train.epochs + 1):
-            for step in rank_steps(epoch_batches(setup.encoded, config, epoch), 2):
+            for step in rank_steps(epoch_batches(setup.encoded, config, epoch, 2), 2):
                 train_step(tools, collate(setup.encoded, [i for batch in step for i in batch]))
     finally:
         torch.set_num_threads(threads)

@@ -269,11 +269,15 @@ def _epoch_seed(seed: int, epoch: int) -> int:
     return seed * 1_000_003 + epoch
 
 
-def epoch_batches(encoded: list[EncodedSentence], config: Config, epoch: int) -> list[list[int]]:
+def epoch_batches(
+    encoded: list[EncodedSentence], config: Config, epoch: int, world: int = 1
+) -> list[list[int]]:
     """The epoch's length-bucketed batches (sentence indices), shuffled by (seed, epoch): the
-    same list on every rank."""
+    same list on every rank, neighbours of about the same length when `world` ranks train
+    side by side."""
     rng = random.Random(_epoch_seed(config.train.seed, epoch))
-    return bucketed_batches([len(e.words) for e in encoded], config.train.batch_size, rng)
+    lengths = [len(e.words) for e in encoded]
+    return bucketed_batches(lengths, config.train.batch_size, rng, group=world)
 
 
 def _train_epoch(
@@ -291,7 +295,7 @@ def _train_epoch(
     tokens counted are those of the whole step, over every rank."""
     torch.manual_seed(ranks.seed(_epoch_seed(config.train.seed, epoch)))
     tools.net.train()
-    steps = rank_steps(epoch_batches(encoded, config, epoch), ranks.world)
+    steps = rank_steps(epoch_batches(encoded, config, epoch, ranks.world), ranks.world)
     started = now()
     totals = EpochTotals()
     for number, step in enumerate(steps, start=1):
