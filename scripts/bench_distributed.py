@@ -37,8 +37,12 @@ SETUPS: dict[str, tuple[list[str], int, list[str]]] = {
     "1 process x 2 threads": (ONE, 2, []),
     "2 processes x 1 thread": (TWO, 1, []),
     # a step of two batches of 16 holds as many sentences as one process's batch of 32, so the
-    # run takes as many optimizer steps per epoch as one process does
-    "2 processes x 1 thread, batches of 16": (TWO, 1, ["train.batch_size=16"]),
+    # run takes as many optimizer steps per epoch as one process does, at the rate as given
+    "2 processes x 1 thread, batches of 16": (
+        TWO,
+        1,
+        ["train.batch_size=16", "train.scale_rate_with_processes=false"],
+    ),
 }
 
 
@@ -100,8 +104,9 @@ def render(result: dict) -> str:
         f"{result['epochs']} epochs a run, {result['rounds']} interleaved rounds; tokens/s are "
         "those `train` writes per epoch (training only; two processes count the tokens of both), "
         "medians over every epoch of every round. Two processes train on a batch each per step, "
-        "so with the config's 32 a step holds 64 sentences and an epoch has half the steps; "
-        "with batches of 16 it has as many as one process. Load average before the run: "
+        "so with the config's 32 a step holds 64 sentences and an epoch has half the steps, "
+        "at twice the learning rate (train.scale_rate_with_processes); with batches of 16 "
+        "and the rate as given, the steps are one process's. Load average before the run: "
         f"{m['load_before']}.",
         "",
         "| setup | tokens/s (median) | range | against 1 x 1 | dev F1 after the last epoch |",

@@ -172,7 +172,8 @@ def _one_process_on_steps_put_together(config_path: Path) -> dict[str, torch.Ten
         random.seed(config.train.seed)
         setup = setup_training(config, data)
         net, _ = new_network(config, setup)
-        tools = step_tools(config, setup, net)
+        # the rate two ranks take: the config's, times 2 (train.scale_rate_with_processes)
+        tools = step_tools(config, setup, net, processes=2)
         net.train()
         for epoch in range(1, config.train.epochs + 1):
             for step in rank_steps(epoch_batches(setup.encoded, config, epoch, 2), 2):
@@ -196,6 +197,7 @@ def test_two_ranks_train_what_one_process_trains_on_each_step_put_together(
     # rank 0 alone tells the progress and the outcome
     assert run.stderr.count("stopped: reached train.epochs=2") == 1
     assert "training on 2 processes" in run.stderr
+    assert "each step holds 2 batches, so the learning rate is" in run.stderr
     assert run.stderr.count("epoch   2") == 1
 
     # float32 on both sides: the ranks' gradients are summed in another order than one batch's,

@@ -57,7 +57,13 @@ from tagger.training.records import (
 )
 from tagger.training.run_folder import RunFolder, check_named_files, run_folder
 from tagger.training.schedule import end_epoch, learning_rate, new_schedule
-from tagger.training.setup import TrainingSetup, new_network, setup_training, step_tools
+from tagger.training.setup import (
+    TrainingSetup,
+    new_network,
+    setup_training,
+    step_rate,
+    step_tools,
+)
 from tagger.training.step import LossNotFinite, StepShare, StepTools, train_step
 
 Progress = Callable[[dict[str, Any]], None]
@@ -156,7 +162,7 @@ def _train(
     net, vectors_note = new_network(config, setup)
     if vectors_note:
         report(events.note(vectors_note))
-    tools = step_tools(config, setup, net)
+    tools = step_tools(config, setup, net, ranks.world)
     # Wrapping checks that every rank built the same network (a collective: every rank is here,
     # rank 0 holding the run folder, before any reads the checkpoint).
     tools.replica, tools.total = ranks.replicate(net), (ranks.total if ranks.spread else None)
@@ -169,7 +175,17 @@ def _train(
     parameters = sum(p.numel() for p in net.parameters())
     report(events.start(run_overview(config, data, parameters, run_dir, state.epoch + 1)))
     if ranks.spread:
-        report(events.note(f"training on {ranks.world} processes (torch.distributed, gloo)"))
+        rate = step_rate(config, ranks.world)
+        scaled = (
+            f"; each step holds {ranks.world} batches, so the learning rate is "
+            f"{config.train.learning_rate:g} x {ranks.world} = {rate:g} "
+            "(train.scale_rate_with_processes = false keeps it as given)"
+            if rate != config.train.learning_rate
+            else ""
+        )
+        report(
+            events.note(f"training on {ranks.world} processes (torch.distributed, gloo){scaled}")
+        )
     for message in data.notes:
         report(events.note(message))
     warnings = data_warnings(data)

@@ -220,30 +220,43 @@ def _initialise_embeddings(
     return found
 
 
-def make_optimizer(config: Config, net: torch.nn.Module) -> torch.optim.Optimizer:
+def step_rate(config: Config, processes: int = 1) -> float:
+    """The learning rate a step starts with when `processes` train together (each step holds
+    one batch of each): train.learning_rate, times `processes` unless
+    train.scale_rate_with_processes is off."""
+    train = config.train
+    return train.learning_rate * (processes if train.scale_rate_with_processes else 1)
+
+
+def make_optimizer(
+    config: Config, net: torch.nn.Module, processes: int = 1
+) -> torch.optim.Optimizer:
     # foreach: one kernel per operation over all parameters, about half the time of the
     # per-parameter loop torch takes on CPUs by default
     train = config.train
+    rate = step_rate(config, processes)
     if train.optimizer == "adam":
         return torch.optim.Adam(
-            net.parameters(), lr=train.learning_rate, weight_decay=train.weight_decay, foreach=True
+            net.parameters(), lr=rate, weight_decay=train.weight_decay, foreach=True
         )
     return torch.optim.SGD(
         net.parameters(),
-        lr=train.learning_rate,
+        lr=rate,
         momentum=0.9,
         weight_decay=train.weight_decay,
         foreach=True,
     )
 
 
-def step_tools(config: Config, setup: TrainingSetup, net: TaggerNet) -> StepTools:
+def step_tools(
+    config: Config, setup: TrainingSetup, net: TaggerNet, processes: int = 1
+) -> StepTools:
     """The optimizer, the weight average (if train.weight_average is set) and the rare items a
-    training step of this config works with."""
+    training step of this config works with, in each of `processes` training together."""
     train = config.train
     return StepTools(
         net=net,
-        optimizer=make_optimizer(config, net),
+        optimizer=make_optimizer(config, net, processes),
         average=new_average(net, train.weight_average) if train.weight_average else None,
         rare=rare_items(setup),
         unknown_replace=train.unknown_replace,
