@@ -49,11 +49,11 @@ from bench_tagging import (  # noqa: E402
 )
 from benchlib import machine, matmul_gflops, portable_path  # noqa: E402
 
-from tagger.apply import engine, outputs, predict, tagging, writing  # noqa: E402
+from tagger.apply import engine, label_decoding, outputs, predict, tagging, writing  # noqa: E402
 from tagger.apply.tagger import Tagger  # noqa: E402
 from tagger.data.atomic import atomic_output  # noqa: E402
 from tagger.data.corpus import read_sentences  # noqa: E402
-from tagger.network import crf, net  # noqa: E402
+from tagger.network import net  # noqa: E402
 
 DEMO = ROOT / "data" / "demo"
 
@@ -65,7 +65,7 @@ PHASES: tuple[tuple[str, Any, str], ...] = (
     ("character encoder", predict, "_char_features"),
     ("word network", net.TaggerNet, "emissions"),
     ("Viterbi", net.TaggerNet, "decode"),
-    ("CRF marginals", crf.CRF, "marginals"),
+    ("CRF marginals", label_decoding.LabelDecoder, "marginals"),
     ("batching, scores, spans", predict, "scored_sentences"),
     ("mentions, review flag", engine.Engine, "tag"),
     ("formatting", outputs.DocumentFormatter, "chunk"),

@@ -57,6 +57,23 @@ def test_a_temperature_divides_learnt_scores_and_keeps_forbidden_ones(temperatur
     assert forbidden.any() and np.all(decoder.transitions[forbidden] == -1e4)
 
 
+def test_marginals_stay_finite_where_every_allowed_label_underflows() -> None:
+    # Reference: the torch CRF's log-space marginals. Only label 1 may follow anything, and at
+    # the second position its score is 2,000 below label 0's: exp() of it is 0 in float64, so
+    # the rescaled recursion has nothing left, and the log-space one must answer as the torch
+    # backend does. (Scores this far apart are beyond both: their log-sums floor an impossible
+    # sum far above -2,000, so the figures are the floor's, not exact; what counts is that the
+    # two backends give the same finite numbers, never NaN.)
+    crf = CRF(2, trans_ok=[[False, True], [False, True]]).double()
+    emissions = torch.tensor([[[0.0, 0.0], [0.0, -2000.0], [0.0, 0.0]]], dtype=torch.float64)
+    mask = torch.tensor([[True, True, True]])
+    with torch.no_grad():
+        expected = crf.marginals(emissions, mask).numpy()
+    got = _decoder(crf).marginals(emissions.numpy(), mask.numpy())
+    assert np.isfinite(got).all()
+    np.testing.assert_allclose(got, expected, atol=1e-9)
+
+
 def test_long_sentences_stay_finite_and_decode_alike() -> None:
     # 300 positions of large scores: the log-space products must not overflow or underflow.
     # Reference: the torch CRF in float64 (in float32 its own rounding over 300 steps of scores

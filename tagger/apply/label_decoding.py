@@ -1,5 +1,5 @@
 """The CRF's decoding in numpy, for the exported backend: the constrained Viterbi path and the
-marginals by forward-backward in log space, as `tagger.network.crf.CRF.decode` and
+marginals by forward-backward, as `tagger.network.crf.CRF.decode` and
 `CRF.marginals` compute them (same forbidden-transition score NEG, same padding rules), and the
 softmax of a model without a CRF. Imports no torch.
 
@@ -93,8 +93,53 @@ class LabelDecoder:
         return [p[:k] for p, k in zip(paths, lengths, strict=True)]
 
     def marginals(self, emissions: np.ndarray, mask: np.ndarray) -> np.ndarray:
-        """Forward-backward: P(label j at t) (batch, time, L); zero at padding."""
+        """Forward-backward: P(label j at t) (batch, time, L); zero at padding.
+
+        In probabilities rather than logs, each step's forward and backward vectors rescaled to
+        sum to 1: a position's marginals are its forward times its backward vector made to sum
+        to 1, which any per-step scale leaves alone. Half the array operations a step of the
+        log-space recursion takes (no max, exp and log around the product), and the same values
+        to 1e-12 (tests/test_label_decoding.py). Where a probability underflows to 0 on every
+        allowed path (scores more than 700 apart), the log-space recursion answers instead."""
         emissions = emissions.astype(np.float64, copy=False)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            found = self._scaled_marginals(emissions, mask)
+        if np.isfinite(found).all():
+            return found
+        return self._log_marginals(emissions, mask)
+
+    def _scaled_marginals(self, emissions: np.ndarray, mask: np.ndarray) -> np.ndarray:
+        batch, time, n = emissions.shape
+        # exp of each score less its maximum: entries in (0, 1], forbidden ones exactly 0
+        weights = np.exp(emissions - emissions.max(axis=2, keepdims=True))  # (batch, time, L)
+        moves = np.exp(self.transitions - self.transitions.max())  # (L, L)
+        ends = np.exp(self.end - self.end.max())  # (L,)
+        forward = np.empty_like(weights)
+        alpha = np.exp(self.start - self.start.max()) * weights[:, 0]
+        alpha /= alpha.sum(axis=1, keepdims=True)
+        forward[:, 0] = alpha
+        for t in range(1, time):
+            # past a sentence's end alpha goes on without meaning: only its real positions count
+            alpha = (alpha @ moves) * weights[:, t]
+            alpha /= alpha.sum(axis=1, keepdims=True)
+            forward[:, t] = alpha
+        backward = np.empty_like(weights)
+        beta = np.broadcast_to(ends, (batch, n))
+        backward[:, -1] = beta
+        moves_back = moves.T
+        for t in range(time - 2, -1, -1):
+            after = (weights[:, t + 1] * beta) @ moves_back
+            after /= after.sum(axis=1, keepdims=True)
+            # at a sentence's last real position the suffix is the end score alone
+            beta = np.where(mask[:, t + 1, None], after, ends)
+            backward[:, t] = beta
+        joint = forward * backward
+        joint /= joint.sum(axis=2, keepdims=True)
+        return joint * mask[:, :, None]
+
+    def _log_marginals(self, emissions: np.ndarray, mask: np.ndarray) -> np.ndarray:
+        """The marginals by forward-backward in log space: slower, finite however far apart
+        the scores are."""
         time = emissions.shape[1]
         shift = self.transitions.max()
         exp_trans = np.exp(self.transitions - shift)

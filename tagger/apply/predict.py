@@ -16,6 +16,7 @@ from typing import TYPE_CHECKING
 import numpy as np
 import torch
 
+from tagger.apply.label_decoding import LabelDecoder
 from tagger.apply.review import ScoredSentence
 from tagger.network.batching import EncodedSentence, collate_lm, encode_sentence
 from tagger.network.crf import CRF
@@ -90,6 +91,19 @@ def tempered_crf(crf: CRF, temperature: float) -> CRF:
         for name in ("transitions", "start", "end"):
             getattr(tempered, name).copy_(getattr(crf, name) / temperature)
     return tempered
+
+
+def crf_decoder(crf: CRF, temperature: float = 1.0) -> LabelDecoder:
+    """The numpy decoder of ``crf``'s scores divided by ``temperature`` (as `tempered_crf`)."""
+    return LabelDecoder.from_scores(
+        crf.start.detach().numpy(),
+        crf.transitions.detach().numpy(),
+        crf.end.detach().numpy(),
+        crf.start_ok.numpy(),
+        crf.trans_ok.numpy(),
+        crf.end_ok.numpy(),
+        temperature,
+    )
 
 
 def emission_batches(
@@ -168,11 +182,12 @@ def scored_sentences(
     """See `Tagger.predict_sentences`; ``temperature`` None is the model's own."""
     net = tagger.net
     temperature = tagger.temperature if temperature is None else temperature
-    crf = None
+    decoder = None
     if with_scores and net.crf is not None:
-        # Made once, outside inference mode; in float64, because the marginals subtract log-sums
-        # of hundreds over a long sentence, where float32 loses up to 1e-4 of a probability.
-        crf = tempered_crf(net.crf, temperature).double()
+        # The marginals in numpy, float64, rescaled each step: 1.7x (batches of 256) to 3x
+        # (batches of 8) faster than the log-space recursion in torch, measured on a quiet
+        # machine, and the same probabilities to 1e-12 (tests/test_label_decoding.py).
+        decoder = crf_decoder(net.crf, temperature)
     result = [ScoredSentence([]) for _ in token_lists]
     for indices, emissions, mask in emission_batches(tagger, token_lists, batch_size, rows):
         with torch.inference_mode():
@@ -182,19 +197,20 @@ def scored_sentences(
                     spans = [(t, s, e, 1.0) for t, s, e in tagger.label_ids_to_spans(path)]
                     result[i] = ScoredSentence(spans)
                 continue
-            if crf is not None:
-                probabilities = crf.marginals((emissions / temperature).double(), mask)
+            real = mask.numpy()
+            if decoder is not None:
+                probabilities = decoder.marginals((emissions / temperature).numpy(), real)
             else:
-                probabilities = label_probabilities(net, emissions, mask, temperature)
-            chosen = np.zeros(tuple(mask.shape), dtype=np.int64)  # (B, T) decoded label ids
-            for b, path in enumerate(paths):
-                chosen[b, : len(path)] = path
-            picked = probabilities.gather(2, torch.from_numpy(chosen).unsqueeze(2)).squeeze(2)
-            # exp() of a log-probability may overshoot 1 by a rounding error
-            sure = picked.clamp(max=1.0)  # (B, T)
-            # Padding read as 1.0 leaves each sentence's minimum to its real tokens; taken here
-            # rather than token by token in Python, where it was a visible share of tagging.
-            certainty = sure.masked_fill(~mask, 1.0).amin(1).tolist()  # (B,)
+                probabilities = label_probabilities(net, emissions, mask, temperature).numpy()
+        chosen = np.zeros(real.shape, dtype=np.int64)  # (B, T) decoded label ids
+        for b, path in enumerate(paths):
+            chosen[b, : len(path)] = path
+        picked = np.take_along_axis(probabilities, chosen[:, :, None], axis=2)[:, :, 0]
+        # exp() of a log-probability may overshoot 1 by a rounding error
+        sure = np.minimum(picked, 1.0)  # (B, T)
+        # Padding read as 1.0 leaves each sentence's minimum to its real tokens; taken here
+        # rather than token by token in Python, where it was a visible share of tagging.
+        certainty = np.where(real, sure, 1.0).min(axis=1).tolist()  # (B,)
         for i, path, p, least in zip(indices, paths, sure.tolist(), certainty, strict=True):
             spans = [(t, s, e, min(p[s:e])) for t, s, e in tagger.label_ids_to_spans(path)]
             result[i] = ScoredSentence(spans, least)
