@@ -399,7 +399,10 @@ def _record(line: str) -> dict[str, Any] | str:
         if isinstance(record, list):
             return "a JSON array; JSON Lines is expected, one object per line"
         return f"a JSON object was expected, not {type(record).__name__}"
-    if _depth(record) > MAX_JSON_DEPTH:
+    # Nesting deeper than the limit needs more opening brackets than it: counting them is the
+    # cheap test that spares almost every record the walk (a sixth of reading's time).
+    brackets = line.count("{") + line.count("[")
+    if brackets > MAX_JSON_DEPTH and _depth(record) > MAX_JSON_DEPTH:
         return f"the record nests arrays and objects deeper than {MAX_JSON_DEPTH} levels"
     text = record.get("text")
     if not isinstance(text, str):
