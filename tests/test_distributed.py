@@ -245,10 +245,11 @@ def test_a_rank_that_dies_ends_the_run_and_the_checkpoint_resumes(tmp_path: Path
             if process.poll() is None:
                 process.kill()
             process.communicate()
-    assert rank_0.returncode == 1
+    assert rank_0.returncode == 1, stderr[-3000:]
     last = stderr.splitlines()[-1]
-    assert last.startswith("tagger: error: rank 0 of 2: another training process stopped")
-    assert last.endswith("continue with the same command and --resume")
+    said = "tagger: error: rank 0 of 2: another training process stopped"
+    assert last.startswith(said), stderr[-3000:]
+    assert last.endswith("continue with the same command and --resume"), stderr[-3000:]
 
     # The checkpoint left behind loads, and --resume on two ranks goes on from its epoch.
     finished = len(json.loads((out / "epochs.json").read_text(encoding="utf-8")))
