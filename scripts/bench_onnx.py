@@ -4,6 +4,7 @@ split and how far the onnx backend's labels and confidences are from torch's.
 
     .venv/bin/python scripts/bench_onnx.py [MODEL] [--rounds 15] [--epochs 3]
     .venv/bin/python scripts/bench_onnx.py --corpus conll2000 [--epochs 2]
+    .venv/bin/python scripts/bench_onnx.py runs/demo-minimal/model.tagger --label "demo, minimal cell"
 
 With the demo corpus, MODEL defaults to runs/demo/model.tagger (made by `bash scripts/demo.sh`);
 when it is absent, a model with configs/default.toml is trained on the demo data for `--epochs`
@@ -143,6 +144,11 @@ def measure(model: Path, test: Path, rounds: int) -> dict:
     }
 
 
+def _load(result: dict) -> str:
+    load = result.get("machine", {}).get("load_before")
+    return "" if load is None else f", load average {load} before the run"
+
+
 def render(results: dict[str, dict]) -> str:
     lines = [
         "# Exported model: torch vs onnx vs onnx with int8 weights",
@@ -150,9 +156,9 @@ def render(results: dict[str, dict]) -> str:
         "Tagging tokens/s of `predict_sentences` (scores included) at 1 thread, the three "
         "backends taking turns round by round (median and best round), with the span F1 of "
         "each on the test file and how far the onnx backends' spans and confidences are from "
-        "torch's. The machine was shared with other jobs (load average near 5 on 2 cores) "
-        "while these ran: the ratios are indicative, not clean. Written by "
-        "`scripts/bench_onnx.py`.",
+        "torch's; each record gives the machine's load average before it ran (a record made "
+        "above 1 on these 2 cores shared them with other work: read its ratios as indicative). "
+        "Written by `scripts/bench_onnx.py`.",
     ]
     for corpus, result in results.items():
         lines += [
@@ -161,7 +167,7 @@ def render(results: dict[str, dict]) -> str:
             "",
             f"{result['date']}, `{result['command']}`, model `{result['model']}`, test "
             f"`{result['test']}` ({result['test_sentences']:,} sentences, "
-            f"{result['test_tokens']:,} tokens), {result['rounds']} rounds.",
+            f"{result['test_tokens']:,} tokens), {result['rounds']} rounds" + _load(result) + ".",
             "",
             "| backend | tokens/s (median) | x torch | tokens/s (best) | x torch | span F1 | "
             "F1 change (points) | sentences with other spans than torch | largest "
@@ -196,6 +202,9 @@ def main() -> None:
     parser.add_argument("--corpus", choices=("demo", "conll2000"), default="demo")
     parser.add_argument("--rounds", type=int, default=15)
     parser.add_argument("--epochs", type=int, default=3, help="when a model must be trained")
+    parser.add_argument(
+        "--label", default=None, help="the record's name in onnx.json/md (default: the corpus)"
+    )
     args = parser.parse_args()
     if args.corpus == "demo":
         data = demo_data(None)
@@ -206,7 +215,7 @@ def main() -> None:
         test = CONLL2000 / "test.txt"
     saved = RESULTS_DIR / "onnx.json"
     results = json.loads(saved.read_text()) if saved.exists() else {}
-    results[args.corpus] = measure(model, test, args.rounds)
+    results[args.label or args.corpus] = measure(model, test, args.rounds)
     RESULTS_DIR.mkdir(exist_ok=True)
     saved.write_text(json.dumps(results, indent=2) + "\n")
     text = render(results)
