@@ -167,7 +167,7 @@ class TrainConfig:
     # Under N training processes a step holds N batches (one per process), so an epoch has 1/N
     # of the steps: the learning rate is multiplied by N (the linear scaling rule, Goyal et al.
     # 2017), which on the demo gave the same dev F1 after 3 epochs as one process, where the
-    # rate as given lost 1.6 points (benchmarks/distributed_speed.md). No effect in one process.
+    # rate as given lost 1.6 points (benchmarks/distributed.md). No effect in one process.
     scale_rate_with_processes: bool = True
 
 
