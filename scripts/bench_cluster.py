@@ -131,6 +131,13 @@ def two_alone(model: Path, source: Path, work: Path, chunk_chars: int) -> dict:
             "tokens_per_second": round(tokens / seconds, 1)}  # fmt: skip
 
 
+def _median_run(runs: list[dict]) -> dict:
+    """The run of median tokens/s (the lower middle one of an even number), with every round's
+    tokens/s beside it."""
+    ranked = sorted(runs, key=lambda run: run["tokens_per_second"])
+    return {**ranked[(len(ranked) - 1) // 2], "rounds": [r["tokens_per_second"] for r in runs]}
+
+
 def _load_seconds(model: str) -> list[float]:
     """Run on a worker: how long `Tagger.load` takes there (one thread, as `tag` loads it), the
     first time (what a worker's first chunk pays: torch and the network code imported too) and
@@ -182,23 +189,35 @@ def chunk_overhead(client, sample: list) -> dict:
             "all_at_once": round(together, 4)}  # fmt: skip
 
 
-def measure(model: Path, source: Path, chunk_chars: int, work: Path) -> dict:
+def measure(model: Path, source: Path, chunk_chars: int, work: Path, rounds: int = 1) -> dict:
     from distributed import Client, LocalCluster
 
-    one = tag(model, source, work / "one.jsonl", chunk_chars)
-    print(f"one worker: {one}", flush=True)
-    alone = two_alone(model, source, work, chunk_chars)
-    print(f"two processes alone: {alone}", flush=True)
-    with (
-        LocalCluster(n_workers=2, threads_per_worker=1, processes=True, dashboard_address=None)
-        as cluster,
-        Client(cluster) as client,
-    ):  # fmt: skip
-        loads = client.run(_load_seconds, str(model.resolve()))
-        spread = tag(model, source, work / "cluster.jsonl", chunk_chars,
-                     "--cluster", cluster.scheduler_address)  # fmt: skip
-        print(f"cluster of 2: {spread}", flush=True)
-        overhead = chunk_overhead(client, sample_chunks(source, chunk_chars, OVERHEAD_CHUNKS))
+    found: dict[str, list[dict]] = {"one": [], "alone": [], "spread": []}
+    for round_number in range(1, rounds + 1):
+        found["one"].append(tag(model, source, work / "one.jsonl", chunk_chars))
+        found["alone"].append(two_alone(model, source, work, chunk_chars))
+        # a cluster of its own each round: idle workers would tick beside the other runs
+        with (
+            LocalCluster(n_workers=2, threads_per_worker=1, processes=True, dashboard_address=None)
+            as cluster,
+            Client(cluster) as client,
+        ):  # fmt: skip
+            spread = tag(model, source, work / "cluster.jsonl", chunk_chars,
+                         "--cluster", cluster.scheduler_address)  # fmt: skip
+            found["spread"].append(spread)
+            if round_number == rounds:
+                loads = client.run(_load_seconds, str(model.resolve()))
+                overhead = chunk_overhead(
+                    client, sample_chunks(source, chunk_chars, OVERHEAD_CHUNKS)
+                )
+        print(
+            f"round {round_number}: "
+            + ", ".join(
+                f"{k} {v[-1]['tokens_per_second']:,.0f} tokens/s" for k, v in found.items()
+            ),
+            flush=True,
+        )
+    one, alone, spread = (_median_run(found[k]) for k in ("one", "alone", "spread"))
     same = (work / "one.jsonl").read_bytes() == (work / "cluster.jsonl").read_bytes()
     chars_per_second = source.stat().st_size / one["seconds"]  # input bytes: close to characters
     chunk_seconds = chunk_chars / chars_per_second
@@ -208,6 +227,11 @@ def measure(model: Path, source: Path, chunk_chars: int, work: Path) -> dict:
         "one_worker": one,
         "cluster_of_2": spread,
         "speed_up": round(spread["tokens_per_second"] / one["tokens_per_second"], 2),
+        "rounds": rounds,
+        "speed_up_by_round": [
+            round(c["tokens_per_second"] / o["tokens_per_second"], 2)
+            for o, c in zip(found["one"], found["spread"], strict=True)
+        ],
         "two_processes_alone": alone,
         "machine_two_process_speed_up": round(
             alone["tokens_per_second"] / one["tokens_per_second"], 2
@@ -245,8 +269,8 @@ def render(result: dict) -> str:
         f"{two['tokens_per_second']:,.0f} |",
         *_alone_row(r),
         "",
-        f"- Cluster against one worker: {r['speed_up']:.2f}x; output byte-identical: "
-        f"{'yes' if r['byte_identical'] else 'NO'}.",
+        f"- Cluster against one worker: {r['speed_up']:.2f}x{_by_round(r)}; output "
+        f"byte-identical: {'yes' if r['byte_identical'] else 'NO'}.",
         *_alone_line(r),
         f"- Model load per worker: {_seconds(r['model_load_seconds']['first'])} the first time "
         f"(torch and the network code imported too), {_seconds(r['model_load_seconds']['again'])} "
@@ -262,6 +286,17 @@ def render(result: dict) -> str:
         "",
     ]
     return "\n".join(lines)
+
+
+def _by_round(r: dict) -> str:
+    by_round = r.get("speed_up_by_round", [])
+    if len(by_round) < 2:
+        return ""
+    return (
+        f" (medians of {len(by_round)} rounds; round by round "
+        + ", ".join(f"{x:.2f}x" for x in by_round)
+        + ")"
+    )
 
 
 def _alone_row(r: dict) -> list[str]:
@@ -296,13 +331,14 @@ def main() -> None:
     parser.add_argument("model", type=Path, nargs="?", help="model file (default: train one)")
     parser.add_argument("--megabytes", type=float, default=20.0)
     parser.add_argument("--chunk-chars", type=int, default=CHUNK_CHARS)
+    parser.add_argument("--rounds", type=int, default=1, help="rounds of the three runs, in turn")
     parser.add_argument("--out", type=Path, default=ROOT / "benchmarks" / "cluster")
     args = parser.parse_args()
     work = Path(tempfile.mkdtemp(prefix="tagger-bench-cluster-"))
     try:
         model = args.model or train_model(work)
         source, documents = write_input(work, args.megabytes)
-        results = measure(model, source, args.chunk_chars, work)
+        results = measure(model, source, args.chunk_chars, work, args.rounds)
         result = {
             "model": portable_path(args.model) if args.model else "demo, default config, 1 epoch",
             "input": {"megabytes": source.stat().st_size / 1e6, "documents": documents},
