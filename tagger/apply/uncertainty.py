@@ -27,7 +27,7 @@ from typing import TYPE_CHECKING
 import torch
 
 from tagger.apply.pick_options import LengthNorm, Measure
-from tagger.apply.predict import emission_batches, label_probabilities, tempered_crf
+from tagger.apply.predict import crf_decoder, emission_batches, label_probabilities, tempered_crf
 from tagger.network.crf import CRF
 
 if TYPE_CHECKING:
@@ -51,7 +51,9 @@ def crf_measures(
     for b, path in enumerate(paths):
         padded[b, : len(path)] = torch.tensor(path)
     log_best = crf.score(emissions, padded, mask) - crf.log_partition(emissions, mask)
-    return crf.marginals(emissions, mask), paths, log_best
+    # the marginals as tagging computes them (numpy, float64): 1.7-3x faster than torch's
+    marginals = crf_decoder(crf).marginals(emissions.numpy(), mask.numpy())
+    return torch.from_numpy(marginals), paths, log_best
 
 
 def token_entropy(marginals: torch.Tensor, mask: torch.Tensor) -> torch.Tensor:
