@@ -39,7 +39,7 @@ from pathlib import Path
 ROOT = Path(__file__).resolve().parents[1]
 sys.path.insert(0, str(ROOT / "scripts"))
 
-from benchlib import machine, portable_path  # noqa: E402
+from benchlib import machine, portable_path, write_record  # noqa: E402
 
 DEMO = ROOT / "data" / "demo"
 OVERHEAD_SHARE = 0.05  # the most of a chunk's time that scheduling may take
@@ -347,10 +347,7 @@ def main() -> None:
         }
     finally:
         shutil.rmtree(work, ignore_errors=True)
-    args.out.parent.mkdir(parents=True, exist_ok=True)
-    args.out.with_suffix(".json").write_text(json.dumps(result, indent=1) + "\n")
-    args.out.with_suffix(".md").write_text(render(result))
-    print(render(result))
+    write_record(args.out, result, render(result))
 
 
 if __name__ == "__main__":

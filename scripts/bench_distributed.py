@@ -24,7 +24,7 @@ from pathlib import Path
 ROOT = Path(__file__).resolve().parents[1]
 sys.path.insert(0, str(ROOT / "scripts"))
 
-from benchlib import machine  # noqa: E402
+from benchlib import machine, write_record  # noqa: E402
 
 DEMO = ROOT / "data" / "demo"
 TORCHRUN = Path(sys.executable).with_name("torchrun")
@@ -131,9 +131,7 @@ def main() -> None:
     args = parser.parse_args()
     result = measure(args.rounds, args.epochs)
     result["machine"] = machine()
-    args.out.with_suffix(".json").write_text(json.dumps(result, indent=1) + "\n")
-    args.out.with_suffix(".md").write_text(render(result))
-    print(render(result))
+    write_record(args.out, result, render(result))
 
 
 if __name__ == "__main__":

@@ -17,7 +17,6 @@ benchmarks/page.{json,md}. Needs a quiet machine for the time; the size holds an
 from __future__ import annotations
 
 import argparse
-import json
 import shutil
 import statistics
 import subprocess
@@ -29,7 +28,7 @@ from pathlib import Path
 ROOT = Path(__file__).resolve().parents[1]
 sys.path.insert(0, str(ROOT / "scripts"))
 
-from benchlib import machine, portable_path  # noqa: E402
+from benchlib import machine, portable_path, write_record  # noqa: E402
 
 DEMO = ROOT / "data" / "demo"
 TARGET_SECONDS, TARGET_BYTES = 2.0, 1_000_000
@@ -136,9 +135,7 @@ def main() -> None:
         sys.exit(f"{args.model}: no model; make one with bash scripts/demo.sh")
     result = measure(args.model.resolve(), args.rounds, browser)
     result["machine"] = machine()
-    args.out.with_suffix(".json").write_text(json.dumps(result, indent=1) + "\n")
-    args.out.with_suffix(".md").write_text(render(result))
-    print(render(result))
+    write_record(args.out, result, render(result))
 
 
 if __name__ == "__main__":

@@ -5,6 +5,7 @@ paths written so that they mean the same on any machine (relative to the project
 from __future__ import annotations
 
 import datetime as dt
+import json
 import os
 import platform
 import subprocess
@@ -59,6 +60,14 @@ def machine() -> dict:
         "load_before": round(os.getloadavg()[0], 2),
         "command": portable_command([f"scripts/{Path(sys.argv[0]).name}", *sys.argv[1:]]),
     }
+
+
+def write_record(out: Path, result: dict, page: str) -> None:
+    """`out`.json (the result) and `out`.md (its page), and the page on the terminal."""
+    out.parent.mkdir(parents=True, exist_ok=True)
+    out.with_suffix(".json").write_text(json.dumps(result, indent=1) + "\n")
+    out.with_suffix(".md").write_text(page)
+    print(page)
 
 
 def matmul_gflops(threads: int, size: int = 1024, repeats: int = 7) -> float:

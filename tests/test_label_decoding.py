@@ -9,21 +9,9 @@ import pytest
 import torch
 from test_crf import CASES, _random_batch, _random_crf
 
-from tagger.apply.label_decoding import LabelDecoder, argmax_paths, softmax
-from tagger.apply.predict import tempered_crf
+from tagger.apply.label_decoding import argmax_paths, softmax
+from tagger.apply.predict import crf_decoder, tempered_crf
 from tagger.network.crf import CRF
-
-
-def _decoder(crf: CRF, temperature: float = 1.0) -> LabelDecoder:
-    return LabelDecoder.from_scores(
-        crf.start.detach().numpy(),
-        crf.transitions.detach().numpy(),
-        crf.end.detach().numpy(),
-        crf.start_ok.numpy(),
-        crf.trans_ok.numpy(),
-        crf.end_ok.numpy(),
-        temperature,
-    )
 
 
 @pytest.mark.parametrize(("n", "lengths", "constrained", "seed"), CASES)
@@ -33,7 +21,7 @@ def test_viterbi_and_marginals_equal_the_torch_crf(
     # Reference: tagger.network.crf.CRF (torch), on the same scores and batch.
     crf = _random_crf(n, seed, constrained)
     emissions, mask = _random_batch(n, lengths, seed + 100)
-    decoder = _decoder(crf)
+    decoder = crf_decoder(crf)
     assert decoder.decode(emissions.numpy(), mask.numpy()) == crf.decode(emissions, mask)
     with torch.no_grad():
         expected = crf.marginals(emissions, mask).numpy()
@@ -48,7 +36,7 @@ def test_a_temperature_divides_learnt_scores_and_keeps_forbidden_ones(temperatur
     # Reference: tagger.apply.predict.tempered_crf, the torch tagger's temperature scaling.
     crf = _random_crf(5, 3, constrained=True)
     emissions, mask = _random_batch(5, [6, 2, 4], 11)
-    decoder = _decoder(crf, temperature)
+    decoder = crf_decoder(crf, temperature)
     with torch.no_grad():
         expected = tempered_crf(crf, temperature).marginals(emissions / temperature, mask)
     got = decoder.marginals(emissions.numpy() / temperature, mask.numpy())
@@ -69,7 +57,7 @@ def test_marginals_stay_finite_where_every_allowed_label_underflows() -> None:
     mask = torch.tensor([[True, True, True]])
     with torch.no_grad():
         expected = crf.marginals(emissions, mask).numpy()
-    got = _decoder(crf).marginals(emissions.numpy(), mask.numpy())
+    got = crf_decoder(crf).marginals(emissions.numpy(), mask.numpy())
     assert np.isfinite(got).all()
     np.testing.assert_allclose(got, expected, atol=1e-9)
 
@@ -81,7 +69,7 @@ def test_long_sentences_stay_finite_and_decode_alike() -> None:
     crf = _random_crf(7, 5, constrained=True)
     emissions, mask = _random_batch(7, [300, 150, 1], 21)
     emissions = emissions * 10
-    decoder = _decoder(crf)
+    decoder = crf_decoder(crf)
     assert decoder.decode(emissions.numpy(), mask.numpy()) == crf.decode(emissions, mask)
     with torch.no_grad():
         expected = crf.double().marginals(emissions.double(), mask).numpy()
