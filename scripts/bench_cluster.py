@@ -202,11 +202,12 @@ def measure(model: Path, source: Path, chunk_chars: int, work: Path, rounds: int
             as cluster,
             Client(cluster) as client,
         ):  # fmt: skip
+            if round_number == 1:  # before any chunk: the first load is a worker's first
+                loads = client.run(_load_seconds, str(model.resolve()))
             spread = tag(model, source, work / "cluster.jsonl", chunk_chars,
                          "--cluster", cluster.scheduler_address)  # fmt: skip
             found["spread"].append(spread)
             if round_number == rounds:
-                loads = client.run(_load_seconds, str(model.resolve()))
                 overhead = chunk_overhead(
                     client, sample_chunks(source, chunk_chars, OVERHEAD_CHUNKS)
                 )
@@ -218,6 +219,13 @@ def measure(model: Path, source: Path, chunk_chars: int, work: Path, rounds: int
             flush=True,
         )
     one, alone, spread = (_median_run(found[k]) for k in ("one", "alone", "spread"))
+    by_round = {
+        kind: [
+            round(run["tokens_per_second"] / single["tokens_per_second"], 2)
+            for single, run in zip(found["one"], found[kind], strict=True)
+        ]
+        for kind in ("alone", "spread")
+    }
     same = (work / "one.jsonl").read_bytes() == (work / "cluster.jsonl").read_bytes()
     chars_per_second = source.stat().st_size / one["seconds"]  # input bytes: close to characters
     chunk_seconds = chunk_chars / chars_per_second
@@ -226,16 +234,14 @@ def measure(model: Path, source: Path, chunk_chars: int, work: Path, rounds: int
         "chunk_chars": chunk_chars,
         "one_worker": one,
         "cluster_of_2": spread,
-        "speed_up": round(spread["tokens_per_second"] / one["tokens_per_second"], 2),
+        # each round's ratio, then their median: a slow spell falls on one round's runs, not
+        # on a median run of one kind set beside a median run of another
+        "speed_up": round(statistics.median(by_round["spread"]), 2),
         "rounds": rounds,
-        "speed_up_by_round": [
-            round(c["tokens_per_second"] / o["tokens_per_second"], 2)
-            for o, c in zip(found["one"], found["spread"], strict=True)
-        ],
+        "speed_up_by_round": by_round["spread"],
         "two_processes_alone": alone,
-        "machine_two_process_speed_up": round(
-            alone["tokens_per_second"] / one["tokens_per_second"], 2
-        ),
+        "machine_two_process_speed_up": round(statistics.median(by_round["alone"]), 2),
+        "machine_two_process_speed_up_by_round": by_round["alone"],
         "byte_identical": same,
         "model_load_seconds": {
             "first": sorted(s[0] for s in loads.values()),
@@ -259,7 +265,13 @@ def render(result: dict) -> str:
         f"repeated); chunks of {r['chunk_chars']:,} characters. Both runs are `tagger tag` child "
         "processes timed end to end (start-up, reading, tagging, writing); the cluster is a "
         "`LocalCluster` of 2 worker processes x 1 thread on this machine, started before the "
-        f"clock. Load average before the run: {m['load_before']}.",
+        f"clock. Load average before the run: {m['load_before']}."
+        + (
+            f" {r['rounds']} rounds, the three runs in turn in each; a row is the run of median "
+            "tokens/s of its kind, the ratios below the median of each round's own."
+            if r.get("rounds", 1) > 1
+            else ""
+        ),
         "",
         "| run | tokens | seconds | tokens/s |",
         "|---|---:|---:|---:|",
@@ -293,10 +305,17 @@ def _by_round(r: dict) -> str:
     if len(by_round) < 2:
         return ""
     return (
-        f" (medians of {len(by_round)} rounds; round by round "
+        f" (the median of {len(by_round)} rounds' ratios: "
         + ", ".join(f"{x:.2f}x" for x in by_round)
         + ")"
     )
+
+
+def _alone_by_round(r: dict) -> str:
+    by_round = r.get("machine_two_process_speed_up_by_round", [])
+    if len(by_round) < 2:
+        return ""
+    return " (round by round " + ", ".join(f"{x:.2f}x" for x in by_round) + ")"
 
 
 def _alone_row(r: dict) -> list[str]:
@@ -315,7 +334,7 @@ def _alone_line(r: dict) -> list[str]:
     ceiling = r["machine_two_process_speed_up"]
     return [
         f"- Two processes with no cluster at all reach {ceiling:.2f}x one process on this "
-        f"machine: the ceiling for any two workers here; the cluster gets "
+        f"machine{_alone_by_round(r)}: the ceiling for any two workers here; the cluster gets "
         f"{100 * r['speed_up'] / ceiling:.0f}% of it."
     ]
 
@@ -338,12 +357,13 @@ def main() -> None:
     try:
         model = args.model or train_model(work)
         source, documents = write_input(work, args.megabytes)
+        started_on = machine()  # the load before the runs, not the load they made
         results = measure(model, source, args.chunk_chars, work, args.rounds)
         result = {
             "model": portable_path(args.model) if args.model else "demo, default config, 1 epoch",
             "input": {"megabytes": source.stat().st_size / 1e6, "documents": documents},
             "results": results,
-            "machine": machine(),
+            "machine": started_on,
         }
     finally:
         shutil.rmtree(work, ignore_errors=True)
