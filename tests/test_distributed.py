@@ -260,3 +260,22 @@ def test_a_rank_that_dies_ends_the_run_and_the_checkpoint_resumes(tmp_path: Path
     assert f"stopped: reached train.epochs={more}" in resumed[0]
     epochs = json.loads((out / "epochs.json").read_text(encoding="utf-8"))
     assert [row["epoch"] for row in epochs] == list(range(1, finished + 2))
+
+
+@pytest.mark.slow
+def test_a_diverged_run_on_two_ranks_names_its_scaled_rate(tmp_path: Path) -> None:
+    config = _write_data(tmp_path)
+    # Adam moves each weight by about the rate a step: at 1e30 the loss is infinite at once
+    ranks = _start_ranks(config, tmp_path / "run", "--set", "train.learning_rate=1e30")
+    said = []
+    try:
+        for process in ranks:
+            said.append(process.communicate(timeout=RUN_SECONDS)[1])
+    finally:
+        for process in ranks:
+            if process.poll() is None:
+                process.kill()
+                process.wait()
+    assert "the training loss became" in said[0], said[0][-3000:]
+    assert "(the rate was 1e+30 x 2 processes = 2e+30;" in said[0], said[0][-3000:]
+    assert "the training loss became" not in said[1]  # rank 0 alone tells the outcome

@@ -211,7 +211,9 @@ def _train(
         totals = _train_epoch(tools, setup.encoded, config, epoch, state, clock, report, ranks)
         if totals.not_finite is not None:
             diverged = True
-            stop_reason = _diverged_reason(totals.not_finite, epoch, state, run_dir)
+            stop_reason = _diverged_reason(
+                totals.not_finite, epoch, state, run_dir, _scaling_said(config, ranks)
+            )
             break
         train_seconds = now() - started
         # Dev is scored once, by rank 0; every rank takes its scores and its stop decision
@@ -447,8 +449,23 @@ def _stop_reason(state: RunState, config: Config, clock: RunClock, epoch: int) -
     return ""
 
 
+def _scaling_said(config: Config, ranks: Ranks) -> str:
+    """What a diverged run on several processes adds about its scaled learning rate."""
+    rate = step_rate(config, ranks.world)
+    if rate == config.train.learning_rate:
+        return ""
+    return (
+        f" (the rate was {config.train.learning_rate:g} x {ranks.world} processes = {rate:g}; "
+        "train.scale_rate_with_processes = false keeps it as given)"
+    )
+
+
 def _diverged_reason(
-    not_finite: tuple[int, float], epoch: int, state: RunState, run_dir: Path
+    not_finite: tuple[int, float],
+    epoch: int,
+    state: RunState,
+    run_dir: Path,
+    scaled: str = "",
 ) -> str:
     batch, loss = not_finite
     kept = (
@@ -458,5 +475,5 @@ def _diverged_reason(
     )
     return (
         f"the training loss became {loss} at epoch {epoch}, batch {batch}; "
-        f"{kept}. Try a lower train.learning_rate or train.clip_norm"
+        f"{kept}. Try a lower train.learning_rate or train.clip_norm{scaled}"
     )
