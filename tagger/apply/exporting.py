@@ -54,7 +54,11 @@ def exportable(tagger: Tagger, where: str | Path) -> None:
 
 
 def quantised(graph: bytes) -> bytes:
-    """The graph with its linear and recurrent weights dynamically quantised to int8."""
+    """The graph with its linear and recurrent weights dynamically quantised to 8 bits.
+
+    Unsigned weights: beside signed ones, tagging ran 8% faster on this project's 2-core
+    machines (AMD EPYC, onnxruntime's x86 kernels), 1.83x torch rather than 1.69x on the demo,
+    with span F1 within 0.12 points of the float model (benchmarks/onnx.md)."""
     from onnxruntime.quantization import QuantType, quantize_dynamic
 
     with tempfile.TemporaryDirectory() as folder:
@@ -62,7 +66,7 @@ def quantised(graph: bytes) -> bytes:
         source.write_bytes(graph)
         logging.disable(logging.WARNING)  # its advice on pre-processing goes to the root logger
         try:
-            quantize_dynamic(source, target, weight_type=QuantType.QInt8)
+            quantize_dynamic(source, target, weight_type=QuantType.QUInt8)
         finally:
             logging.disable(logging.NOTSET)
         return target.read_bytes()
