@@ -23,6 +23,7 @@ caller has made already. Each rank then
 from __future__ import annotations
 
 import contextlib
+import gc
 import os
 import tempfile
 from collections.abc import Callable, Iterator
@@ -162,6 +163,7 @@ def process_group() -> Iterator[Ranks]:
     ranks = Ranks(dist.get_rank(), dist.get_world_size())
     try:
         yield ranks
+        _leave_together()
     except RuntimeError as error:
         if not (isinstance(error, dist.DistError) or "gloo" in str(error)):
             raise
@@ -175,6 +177,16 @@ def process_group() -> Iterator[Ranks]:
         ) from None
     finally:
         dist.destroy_process_group()
+
+
+def _leave_together() -> None:
+    """Before a finished run leaves the group: free the DistributedDataParallel wrapper, which
+    hooks into the network and so lives in a reference cycle until a garbage collection, and
+    wait for every rank. A wrapper still alive when the group is destroyed, or freed at the
+    interpreter's exit, aborted a rank now and then ("terminate called without an active
+    exception", then SIGABRT) while rank 0 was still writing the model."""
+    gc.collect()
+    dist.barrier()
 
 
 def shared_checkpoint(ranks: Ranks, path: Path, restore: Callable[[Path], T]) -> T | None:
