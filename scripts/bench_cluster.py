@@ -257,6 +257,8 @@ def measure(model: Path, source: Path, chunk_chars: int, work: Path, rounds: int
 def render(result: dict) -> str:
     m, r = result["machine"], result["results"]
     one, two, overhead = r["one_worker"], r["cluster_of_2"], r["chunk_overhead_seconds"]
+    ratios = r.get("speed_up_by_round", [])
+    spread_rounds = _by_round(ratios, f"the median of {len(ratios)} rounds' ratios: ")
     lines = [
         "# Tagging on a Dask cluster against one worker",
         "",
@@ -281,7 +283,7 @@ def render(result: dict) -> str:
         f"{two['tokens_per_second']:,.0f} |",
         *_alone_row(r),
         "",
-        f"- Cluster against one worker: {r['speed_up']:.2f}x{_by_round(r)}; output "
+        f"- Cluster against one worker: {r['speed_up']:.2f}x{spread_rounds}; output "
         f"byte-identical: {'yes' if r['byte_identical'] else 'NO'}.",
         *_alone_line(r),
         f"- Model load per worker: {_seconds(r['model_load_seconds']['first'])} the first time "
@@ -300,22 +302,11 @@ def render(result: dict) -> str:
     return "\n".join(lines)
 
 
-def _by_round(r: dict) -> str:
-    by_round = r.get("speed_up_by_round", [])
-    if len(by_round) < 2:
+def _by_round(ratios: list[float], lead: str) -> str:
+    """`lead` and each round's ratio, in brackets; nothing for a single round."""
+    if len(ratios) < 2:
         return ""
-    return (
-        f" (the median of {len(by_round)} rounds' ratios: "
-        + ", ".join(f"{x:.2f}x" for x in by_round)
-        + ")"
-    )
-
-
-def _alone_by_round(r: dict) -> str:
-    by_round = r.get("machine_two_process_speed_up_by_round", [])
-    if len(by_round) < 2:
-        return ""
-    return " (round by round " + ", ".join(f"{x:.2f}x" for x in by_round) + ")"
+    return f" ({lead}" + ", ".join(f"{x:.2f}x" for x in ratios) + ")"
 
 
 def _alone_row(r: dict) -> list[str]:
@@ -332,9 +323,10 @@ def _alone_line(r: dict) -> list[str]:
     if "two_processes_alone" not in r:
         return []
     ceiling = r["machine_two_process_speed_up"]
+    alone_rounds = _by_round(r.get("machine_two_process_speed_up_by_round", []), "round by round ")
     return [
         f"- Two processes with no cluster at all reach {ceiling:.2f}x one process on this "
-        f"machine{_alone_by_round(r)}: the ceiling for any two workers here; the cluster gets "
+        f"machine{alone_rounds}: the ceiling for any two workers here; the cluster gets "
         f"{100 * r['speed_up'] / ceiling:.0f}% of it."
     ]
 

@@ -1,6 +1,6 @@
-"""Small model files for the loader's tests: a tiny untrained tagger, and ways to write its file
-with edited metadata (keeping the old digest, with a fresh one, or in the format of files written
-before the digest covered the metadata)."""
+"""Small models for tests: the config of a tiny network that trains in seconds, a tiny untrained
+tagger, and ways to write its file with edited metadata (keeping the old digest, with a fresh one,
+or in the format of files written before the digest covered the metadata)."""
 
 from __future__ import annotations
 
@@ -16,7 +16,7 @@ from safetensors.torch import load as load_safetensors
 from safetensors.torch import save as save_safetensors
 
 from tagger.apply.tagger import Tagger
-from tagger.config import config_from_dict
+from tagger.config import Config, config_from_dict
 from tagger.data.schemes import labels_for_types
 from tagger.network.modelfile import save_model_file
 from tagger.network.net import build_net
@@ -25,6 +25,22 @@ from tagger.text.lexicon import Lexicon
 from tagger.text.vocab import Vocab, build_vocabularies
 
 SENTENCE = ["Anna", "met", "Bob", "in", "Oslo", "."]
+
+
+def tiny_training_config(
+    train_path: Path, dev_path: Path, model: dict[str, Any] | None = None, **train: Any
+) -> Config:
+    """A network of 16 units in one layer, no dropout, one thread, a constant rate and no
+    unknown-word draws, trained on `train_path` with dev `dev_path`; `train` sets the rest of
+    [train] (epochs, batch_size, ...), `model` adds to [model]."""
+    return config_from_dict(
+        {
+            "data": {"train": str(train_path), "dev": str(dev_path)},
+            "model": {"hidden_size": 16, "layers": 1, "word_dim": 16, "char_dim": 8,
+                      "char_features": 12, "dropout": 0.0, **(model or {})},
+            "train": {"threads": 1, "lr_schedule": "constant", "unknown_replace": 0.0, **train},
+        }
+    )  # fmt: skip
 
 
 def tiny_tagger(

@@ -10,6 +10,7 @@ from pathlib import Path
 
 import pytest
 import torch
+from model_files import tiny_training_config
 from typer.testing import CliRunner
 
 from tagger.apply.calibration import (
@@ -26,7 +27,7 @@ from tagger.apply.outputs import DocumentFormatter
 from tagger.apply.predict import label_probabilities, tempered_crf
 from tagger.apply.tagger import Tagger
 from tagger.cli import app
-from tagger.config import Config, ModelConfig, config_from_dict
+from tagger.config import Config, ModelConfig
 from tagger.data.corpus import read_sentences
 from tagger.data.schemes import spans_lenient
 from tagger.network.modelfile import load_model_file
@@ -74,16 +75,8 @@ def _write(path: Path, sentences: list[list[tuple[str, str]]]) -> Path:
     return path
 
 
-def _config(train_path: Path, dev_path: Path, **model: object) -> Config:
-    return config_from_dict(
-        {
-            "data": {"train": str(train_path), "dev": str(dev_path)},
-            "model": {"hidden_size": 16, "layers": 1, "word_dim": 16, "char_dim": 8,
-                      "char_features": 12, "dropout": 0.0, **model},
-            "train": {"epochs": 4, "batch_size": 8, "learning_rate": 0.02, "threads": 1,
-                      "lr_schedule": "constant", "unknown_replace": 0.0},
-        }
-    )  # fmt: skip
+def _config(train_path: Path, dev_path: Path) -> Config:
+    return tiny_training_config(train_path, dev_path, epochs=4, batch_size=8, learning_rate=0.02)
 
 
 @pytest.fixture(scope="module")

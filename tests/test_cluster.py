@@ -15,11 +15,11 @@ import sys
 from pathlib import Path
 
 import pytest
+from model_files import tiny_training_config
 from typer.testing import CliRunner
 
 from tagger.apply.tagging import TagOptions, tag_files
 from tagger.cli import app
-from tagger.config import config_from_dict
 from tagger.training.loop import train
 
 distributed = pytest.importorskip(
@@ -38,15 +38,7 @@ def model(tmp_path_factory: pytest.TempPathFactory) -> Path:
     sentences = (DEMO / "train.txt").read_text(encoding="utf-8").split("\n\n")[:150]
     data = folder / "train.txt"
     data.write_text("\n\n".join(sentences) + "\n\n", encoding="utf-8")
-    config = config_from_dict(
-        {
-            "data": {"train": str(data), "dev": str(data)},
-            "model": {"hidden_size": 16, "layers": 1, "word_dim": 16, "char_dim": 8,
-                      "char_features": 12, "dropout": 0.0},
-            "train": {"epochs": 2, "batch_size": 16, "threads": 1, "seed": 3,
-                      "lr_schedule": "constant", "unknown_replace": 0.0},
-        }
-    )  # fmt: skip
+    config = tiny_training_config(data, data, epochs=2, batch_size=16, seed=3)
     return train(config, folder / "run").model_path
 
 

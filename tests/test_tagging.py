@@ -12,6 +12,7 @@ import pytest
 import torch
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
+from model_files import tiny_training_config
 from typer.testing import CliRunner
 
 from tagger import Tagger
@@ -21,7 +22,7 @@ from tagger.apply.review import least_certain
 from tagger.apply.tagger import limit_kernel_cache
 from tagger.apply.tagging import TagOptions, tag_files
 from tagger.cli import app
-from tagger.config import Config, config_from_dict
+from tagger.config import Config
 from tagger.data.corpus import read_sentences
 from tagger.data.schemes import (
     SCHEME_NAMES,
@@ -97,15 +98,7 @@ def model(tmp_path_factory: pytest.TempPathFactory) -> Path:
     """A tiny CRF tagger trained once for this module (a few seconds)."""
     folder = tmp_path_factory.mktemp("model")
     data = _write_columns(folder / "train.txt", _sentences(1, 60))
-    config = config_from_dict(
-        {
-            "data": {"train": str(data), "dev": str(data)},
-            "model": {"hidden_size": 16, "layers": 1, "word_dim": 16, "char_dim": 8,
-                      "char_features": 12, "dropout": 0.0},
-            "train": {"epochs": 6, "batch_size": 8, "learning_rate": 0.02, "threads": 1,
-                      "lr_schedule": "constant", "unknown_replace": 0.0},
-        }
-    )  # fmt: skip
+    config = tiny_training_config(data, data, epochs=6, batch_size=8, learning_rate=0.02)
     return train(config, folder / "run").model_path
 
 

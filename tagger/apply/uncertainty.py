@@ -26,6 +26,7 @@ from typing import TYPE_CHECKING
 
 import torch
 
+from tagger.apply.label_decoding import LabelDecoder
 from tagger.apply.pick_options import LengthNorm, Measure
 from tagger.apply.predict import crf_decoder, emission_batches, label_probabilities, tempered_crf
 from tagger.network.crf import CRF
@@ -43,16 +44,18 @@ class Uncertain:
 
 
 def crf_measures(
-    crf: CRF, emissions: torch.Tensor, mask: torch.Tensor
+    crf: CRF, emissions: torch.Tensor, mask: torch.Tensor, decoder: LabelDecoder | None = None
 ) -> tuple[torch.Tensor, list[list[int]], torch.Tensor]:
-    """(marginals (B, T, L), best paths, log P(best path | x) (B,)) of a CRF's distribution."""
+    """(marginals (B, T, L), best paths, log P(best path | x) (B,)) of a CRF's distribution;
+    `decoder` is `crf_decoder(crf)`, made once by a caller with many batches."""
     paths = crf.decode(emissions, mask)
     padded = torch.zeros(mask.shape, dtype=torch.long)  # (B, T)
     for b, path in enumerate(paths):
         padded[b, : len(path)] = torch.tensor(path)
     log_best = crf.score(emissions, padded, mask) - crf.log_partition(emissions, mask)
     # the marginals as tagging computes them (numpy, float64): 1.7-3x faster than torch's
-    marginals = crf_decoder(crf).marginals(emissions.numpy(), mask.numpy())
+    decoder = decoder or crf_decoder(crf)
+    marginals = decoder.marginals(emissions.numpy(), mask.numpy())
     return torch.from_numpy(marginals), paths, log_best
 
 
@@ -96,14 +99,17 @@ def uncertainties(
     """Per sentence, its uncertainty and best label path; None for an empty sentence."""
     net = tagger.net
     temperature = tagger.temperature
-    crf = None
+    crf = decoder = None
     if net.crf is not None:
         crf = net.crf if temperature == 1.0 else tempered_crf(net.crf, temperature)
+        decoder = crf_decoder(crf)
     result: list[Uncertain | None] = [None] * len(token_lists)
     for indices, emissions, mask in emission_batches(tagger, token_lists, batch_size, rows):
         with torch.inference_mode():
             if crf is not None:
-                marginals, paths, log_best = crf_measures(crf, emissions / temperature, mask)
+                marginals, paths, log_best = crf_measures(
+                    crf, emissions / temperature, mask, decoder
+                )
             else:
                 marginals = label_probabilities(net, emissions, mask, temperature)  # (B, T, L)
                 top = marginals.max(-1)
