@@ -135,21 +135,26 @@ class ExportedTagger(Tagger):
 
     # --- the network, in onnxruntime -----------------------------------------------------------
 
-    def _char_table(self, chars: list[list[int]]) -> np.ndarray | None:
+    def _char_table(self, tokens: list[str]) -> np.ndarray | None:
         """(N+1, F): row 0 (padding) zeros, then each distinct token's character features."""
         session = self.sessions.get("characters")
         if session is None:
             return None
-        return _per_token(session, "chars", chars)
+        char_ids = self.vocabs.char_ids
+        return self.token_rows["chars"].table(
+            tokens, lambda at: _per_token(session, "chars", [char_ids(tokens[i]) for i in at])
+        )
 
-    def _vector_table(self, tokens: Sequence[str]) -> np.ndarray | None:
+    def _vector_table(self, tokens: list[str]) -> np.ndarray | None:
         """(N+1, dim): row 0 (padding) zeros, then each distinct token's vector from the frozen
         table (its word's row, the mean of its n-grams' rows, or zeros)."""
         session = self.sessions.get("vectors")
         if session is None:
             return None
-        index = self.vocabs.subwords
-        return _per_token(session, "bags", [index.bag(t) for t in tokens])
+        bag = self.vocabs.subwords.bag
+        return self.token_rows["vectors"].table(
+            tokens, lambda at: _per_token(session, "bags", [bag(tokens[i]) for i in at])
+        )
 
     def _lm_states(self, token_lists: Sequence[Sequence[str]]) -> np.ndarray | None:
         """(B, T, 2*hidden): the character language model's states at each token's boundaries;
@@ -177,8 +182,9 @@ class ExportedTagger(Tagger):
         ]
         vocabs = self.vocabs
         word_of = np.asarray([0, *(vocabs.words.index(vocabs.word_key(t)) for t in distinct)])
-        char_table = self._char_table([vocabs.char_ids(t) for t in distinct]) if distinct else None
-        vector_table = self._vector_table(list(distinct)) if distinct else None
+        tokens = list(distinct)
+        char_table = self._char_table(tokens) if distinct else None
+        vector_table = self._vector_table(tokens) if distinct else None
         real = sorted(
             (i for i, tokens in enumerate(token_lists) if tokens), key=lambda i: len(token_lists[i])
         )
@@ -246,8 +252,8 @@ class ExportedTagger(Tagger):
 
 
 def _per_token(session: Any, name: str, ids: list[list[int]]) -> np.ndarray:
-    """(N+1, width), row 0 zeros (padding), then ``session``'s output for each of the N >= 1
-    tokens' ids (its input ``name``), run in blocks of similar length padded with 0."""
+    """(N, width): ``session``'s output for each of the N >= 1 tokens' ids (its input
+    ``name``), run in blocks of similar length padded with 0."""
     order = sorted(range(len(ids)), key=lambda i: len(ids[i]))
     outputs = []
     for first in range(0, len(order), CHAR_BLOCK):
@@ -256,6 +262,6 @@ def _per_token(session: Any, name: str, ids: list[list[int]]) -> np.ndarray:
         for row, i in enumerate(chosen):
             padded[row, : len(ids[i])] = ids[i]
         outputs.append(session.run(None, {name: padded})[0])  # (n, width)
-    table = np.zeros((len(ids) + 1, outputs[0].shape[1]), dtype=np.float32)
-    table[np.asarray(order) + 1] = np.concatenate(outputs)
+    table = np.empty((len(ids), outputs[0].shape[1]), dtype=np.float32)
+    table[np.asarray(order)] = np.concatenate(outputs)
     return table

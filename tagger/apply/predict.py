@@ -3,9 +3,9 @@ scores and each sentence's certainty for the review flag), and label probabiliti
 temperature (`tagger.apply.calibration` fits it).
 
 Built for many sentences at once: a token's character features do not depend on its neighbours,
-so they are computed once per distinct token of a call, not per occurrence, and each distinct
-token's word and character ids are remembered between calls. Feature ids (extra columns, lexicon
-matches) do depend on the sentence, so they are computed per sentence.
+so they are computed once per distinct token, not per occurrence, and remembered between calls
+(`tagger.apply.token_rows`), as each distinct token's word and character ids are. Feature ids
+(extra columns, lexicon matches) do depend on the sentence, so they are computed per sentence.
 """
 
 from __future__ import annotations
@@ -119,7 +119,8 @@ def emission_batches(
     features = tagger.feature_ids(token_lists, rows)  # before any work: may refuse the input
     net = tagger.net
     was_training = net.training
-    net.eval()
+    if was_training:  # walking every module costs a visible share of tagging one sentence
+        net.eval()
     try:
         with torch.inference_mode():
             # Distinct tokens get ids 1.., 0 is padding:  token_rows[s][t] = id of token t of s.
@@ -132,8 +133,24 @@ def emission_batches(
                 tagger.encode_cached([list(distinct)]) if distinct else (EncodedSentence([], []),)
             )
             word_of = torch.tensor([0, *encoded.words])  # (N+1,) word id of each distinct token
-            char_table = _char_features(net, [[0], *encoded.chars])  # (N+1, F) or None
-            fixed_table = _fixed_vectors(net, [[], *(encoded.bags or [])])  # (N+1, dim) or None
+            seen, chars, bags = list(distinct), encoded.chars, encoded.bags or []
+            char_table = fixed_table = None  # (N+1, F) and (N+1, dim): row 0 the padding's
+            if net.chars is not None and seen:
+                char_table = torch.from_numpy(
+                    tagger.token_rows["chars"].table(
+                        seen,
+                        lambda at: _char_features(net, [chars[i] for i in at]).numpy(),
+                        weights_key(net.chars),
+                    )
+                )
+            if net.fixed_vectors is not None and seen:
+                fixed_table = torch.from_numpy(
+                    tagger.token_rows["vectors"].table(
+                        seen,
+                        lambda at: _fixed_vectors(net, [bags[i] for i in at]).numpy(),
+                        weights_key(net.fixed_vectors),
+                    )
+                )
             real = [i for i, tokens in enumerate(token_lists) if len(tokens) > 0]
             real.sort(key=lambda i: len(token_lists[i]))  # similar lengths: little padding
         for first in range(0, len(real), batch_size):
@@ -168,7 +185,8 @@ def emission_batches(
                 )
             yield indices, emissions, mask
     finally:
-        net.train(was_training)
+        if was_training:
+            net.train()
 
 
 def scored_sentences(
@@ -217,13 +235,16 @@ def scored_sentences(
     return result
 
 
-def _char_features(
-    net: TaggerNet, chars: list[list[int]], block: int = 4096
-) -> torch.Tensor | None:
+def weights_key(module: torch.nn.Module) -> tuple[int, ...]:
+    """Changes whenever ``module``'s weights do (an optimizer step, a loaded state): what
+    `TokenRows` keeps a network's per-token rows under."""
+    return (id(module), *(p._version for p in module.parameters()))
+
+
+def _char_features(net: TaggerNet, chars: list[list[int]], block: int = 4096) -> torch.Tensor:
     """(N, features): the character encoder's output for each token's character ids, in
-    blocks of similar length; None when the model has no character encoder."""
-    if net.chars is None:
-        return None
+    blocks of similar length."""
+    assert net.chars is not None
     order = sorted(range(len(chars)), key=lambda i: len(chars[i]))
     out: torch.Tensor | None = None
     for first in range(0, len(order), block):
@@ -239,11 +260,10 @@ def _char_features(
     return out
 
 
-def _fixed_vectors(net: TaggerNet, bags: list[list[int]], block: int = 4096) -> torch.Tensor | None:
+def _fixed_vectors(net: TaggerNet, bags: list[list[int]], block: int = 4096) -> torch.Tensor:
     """(N, dim): each token's vector from the frozen pretrained table (the mean of its bag's
-    rows), in blocks; None when the model has no such table."""
-    if net.fixed_vectors is None:
-        return None
+    rows), in blocks."""
+    assert net.fixed_vectors is not None
     parts = []
     for first in range(0, len(bags), block):
         chosen = bags[first : first + block]

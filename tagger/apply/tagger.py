@@ -18,6 +18,7 @@ from typing import TYPE_CHECKING, Any
 from tagger.apply.documents import Document, Skipped
 from tagger.apply.engine import CHUNK_CHARS, Engine, Mention, chunks
 from tagger.apply.review import ScoredSentence, ScoredSpan
+from tagger.apply.token_rows import TokenRows
 from tagger.config import Config
 from tagger.data.corpus import ColumnFormat
 from tagger.data.schemes import Span, read_spans, spans_to_tags, split_tag
@@ -241,6 +242,12 @@ class Tagger:
     @cached_property
     def _token_ids(self) -> dict[str, TokenIds]:
         return {}
+
+    @cached_property
+    def token_rows(self) -> dict[str, TokenRows]:
+        """Per-token rows remembered between calls: "chars" (character features) and
+        "vectors" (frozen pretrained vectors)."""
+        return {"chars": TokenRows(), "vectors": TokenRows()}
 
     @cached_property
     def _label_parts(self) -> list[tuple[str, str]]:

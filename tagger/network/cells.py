@@ -218,7 +218,7 @@ def padding_mask(lengths: Tensor, time: int) -> Tensor:
     return torch.arange(time, device=lengths.device) < lengths.unsqueeze(1)
 
 
-def reverse_within_lengths(x: Tensor, lengths: Tensor) -> Tensor:
+def reverse_within_lengths(x: Tensor, lengths: Tensor, index: Tensor | None = None) -> Tensor:
     """Reverse each sentence of a right-padded batch (batch, time, ...) within its own length.
 
         lengths = [3, 1]     t: 0 1 2 3          0 1 2 3
@@ -226,16 +226,23 @@ def reverse_within_lengths(x: Tensor, lengths: Tensor) -> Tensor:
                   sentence 1:   d _ _ _    ->    d _ _ _
 
     Padding stays where it is, so the result is right-padded too; applying it twice is the identity.
+    ``index``, from `reversal_index`, saves building it again for another tensor of the batch.
     """
     batch, time = x.shape[:2]
-    t = torch.arange(time, device=x.device).expand(batch, time)  # (batch, time)
-    last = (lengths.to(x.device) - 1).unsqueeze(1)  # (batch, 1)
-    index = torch.where(t <= last, last - t, t)  # (batch, time)
+    if index is None:
+        index = reversal_index(lengths.to(x.device), time)
     index = index.view(batch, time, *([1] * (x.dim() - 2))).expand_as(x)
     return x.gather(1, index)
 
 
-def _check_batch(cell: Cell, x: Tensor, lengths: Tensor) -> None:
+def reversal_index(lengths: Tensor, time: int) -> Tensor:
+    """(batch, time): where each position of `reverse_within_lengths`'s result comes from."""
+    t = torch.arange(time, device=lengths.device).expand(lengths.shape[0], time)
+    last = (lengths - 1).unsqueeze(1)  # (batch, 1)
+    return torch.where(t <= last, last - t, t)
+
+
+def check_batch(cell: Cell, x: Tensor, lengths: Tensor) -> None:
     if x.dim() != 3 or x.shape[2] != cell.input_size:
         raise ValueError(f"x must be (batch, time, {cell.input_size}); got shape {tuple(x.shape)}")
     if lengths.shape != (x.shape[0],):
@@ -261,11 +268,18 @@ def _scan(cell: Cell, x: Tensor) -> Tensor:
     return torch.stack(outputs, 1)  # (batch, time, hidden)
 
 
+def run_unmasked(cell: Cell, x: Tensor, fused: bool) -> Tensor:
+    """Left to right over the whole padded width, unchecked: (batch, time, D) -> (batch, time, H)
+    whose padded positions hold whatever the cell made of the padding. A real position never
+    sees them, so a stack of layers masks once at its top (`ResidualStack`)."""
+    return cell.fused(x) if fused else _scan(cell, x)
+
+
 def _run(cell: Cell, x: Tensor, lengths: Tensor, reverse: bool, fused: bool) -> Tensor:
-    _check_batch(cell, x, lengths)
+    check_batch(cell, x, lengths)
     if reverse:
         x = reverse_within_lengths(x, lengths)
-    out = cell.fused(x) if fused else _scan(cell, x)  # (batch, time, hidden)
+    out = run_unmasked(cell, x, fused)  # (batch, time, hidden)
     out = out * padding_mask(lengths, x.shape[1]).unsqueeze(2).to(out.dtype)
     if reverse:
         out = reverse_within_lengths(out, lengths)

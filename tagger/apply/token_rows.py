@@ -1,0 +1,66 @@
+"""What the network computes for a token alone (its character features, its frozen vector),
+remembered between tagging calls, so a service tagging a few sentences a call computes a token's
+row once rather than once per call.
+
+Such a row depends on the token and the weights only, not on its sentence; the store is keyed
+by a caller-given token of those weights and forgets everything when the key changes (a network
+still being trained) or when it would hold more than `ROW_LIMIT` tokens. No torch here: the
+export backend uses it too.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Callable, Hashable, Sequence
+
+import numpy as np
+
+ROW_LIMIT = 50_000  # distinct tokens remembered: 12.8 MB for 64 float32 features
+
+
+class TokenRows:
+    """token -> one float32 row, computed by the caller for the tokens not yet held."""
+
+    def __init__(self, limit: int = ROW_LIMIT) -> None:
+        self.limit = limit
+        self.key: Hashable = None
+        self.index: dict[str, int] = {}  # token -> row of `store`; row 0 is the padding's zeros
+        self.store: np.ndarray | None = None  # (capacity, width)
+
+    def table(
+        self,
+        tokens: Sequence[str],
+        compute: Callable[[list[int]], np.ndarray],
+        key: Hashable = None,
+    ) -> np.ndarray:
+        """(N+1, width): row 0 zeros (padding), then the row of each of the N distinct
+        ``tokens``. ``compute(positions)`` gives the rows (M, width) of the tokens at those
+        positions of ``tokens``; it is called once, for the tokens not held (none: not called)."""
+        if key != self.key:
+            self.index, self.store, self.key = {}, None, key
+        missing = [i for i, token in enumerate(tokens) if token not in self.index]
+        if len(self.index) + len(missing) > self.limit:
+            self.index, self.store = {}, None
+            missing = list(range(len(tokens)))
+        if len(tokens) > self.limit:  # more than the store may hold: computed, not kept
+            rows = compute(missing)
+            return np.concatenate([np.zeros((1, rows.shape[1]), rows.dtype), rows])
+        if missing:
+            self._keep([tokens[i] for i in missing], compute(missing))
+        assert self.store is not None
+        where = np.fromiter(
+            (self.index[token] for token in tokens), dtype=np.int64, count=len(tokens)
+        )
+        return self.store[np.concatenate([[0], where])]
+
+    def _keep(self, tokens: list[str], rows: np.ndarray) -> None:
+        first = len(self.index) + 1
+        needed = first + len(tokens)
+        if self.store is None or needed > len(self.store):
+            # doubling: a store grown a few rows at a time copies each row a bounded number of times
+            capacity = max(needed, 2 * (0 if self.store is None else len(self.store)), 256)
+            grown = np.zeros((min(capacity, self.limit + 1), rows.shape[1]), dtype=rows.dtype)
+            if self.store is not None:
+                grown[:first] = self.store[:first]
+            self.store = grown
+        self.store[first:needed] = rows
+        self.index.update(zip(tokens, range(first, needed), strict=True))
