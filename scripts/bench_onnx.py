@@ -17,7 +17,9 @@ What is timed is `predict_sentences` on the test split's token lists, scores inc
 `tag` runs per chunk, without reading, tokenising and writing), in `--rounds` rounds in which
 the three take turns (the order rotating from round to round), each keeping its median and its
 best: a slow spell of a shared machine then does not land on one of them alone, and the best
-round is the one least disturbed by other work. Results go to benchmarks/onnx.json (by corpus)
+round is the one least disturbed by other work. Each round starts with the character features
+that tagging remembers per token forgotten (`Tagger.token_rows`), so it computes them as the first
+call on a text does; the word ids a tagger remembers are kept, as in the earlier records. Results go to benchmarks/onnx.json (by corpus)
 and benchmarks/onnx.md.
 """
 
@@ -115,6 +117,8 @@ def measure(model: Path, test: Path, rounds: int) -> dict:
         for round_number in range(rounds):
             shift = round_number % len(names)
             for name in names[shift:] + names[:shift]:
+                for store in taggers[name].token_rows.values():
+                    store.clear()  # each round computes every token's character features
                 started = time.perf_counter()
                 taggers[name].predict_sentences(tokens)
                 seconds[name].append(time.perf_counter() - started)

@@ -26,6 +26,10 @@ class TokenRows:
         self.index: dict[str, int] = {}  # token -> row of `store`; row 0 is the padding's zeros
         self.store: np.ndarray | None = None  # (capacity, width)
 
+    def clear(self) -> None:
+        """Forget every row."""
+        self.index, self.store = {}, None
+
     def table(
         self,
         tokens: Sequence[str],
@@ -36,10 +40,11 @@ class TokenRows:
         ``tokens``. ``compute(positions)`` gives the rows (M, width) of the tokens at those
         positions of ``tokens``; it is called once, for the tokens not held (none: not called)."""
         if key != self.key:
-            self.index, self.store, self.key = {}, None, key
+            self.clear()
+            self.key = key
         missing = [i for i, token in enumerate(tokens) if token not in self.index]
         if len(self.index) + len(missing) > self.limit:
-            self.index, self.store = {}, None
+            self.clear()
             missing = list(range(len(tokens)))
         if len(tokens) > self.limit:  # more than the store may hold: computed, not kept
             rows = compute(missing)
