@@ -41,8 +41,8 @@ def test_a_new_key_forgets_every_row() -> None:
     assert asked == [tokens, tokens]
 
 
-def test_the_store_grows_past_its_first_size_and_stops_at_its_limit() -> None:
-    rows, asked = TokenRows(limit=600), []
+def test_the_store_grows_past_its_first_size_and_stops_at_its_byte_budget() -> None:
+    rows, asked = TokenRows(max_bytes=600 * 8), []  # rows of 2 float32: 600 tokens
     tokens = [f"t{i}" for i in range(500)]
     for first in range(0, 500, 100):  # grows 256 -> 512 rows on the way
         part = tokens[first : first + 100]
@@ -50,12 +50,15 @@ def test_the_store_grows_past_its_first_size_and_stops_at_its_limit() -> None:
     table = rows.table(tokens, _rows_of(asked, tokens))
     assert len(asked) == 5  # all held
     assert table[1:, 0].tolist() == [len(t) for t in tokens]
-    more = [f"u{i}" for i in range(200)]  # 700 would pass the limit: start afresh
-    rows.table(more, _rows_of(asked, more))
-    assert len(rows.index) == 200
+    mixed = [*tokens[:50], *(f"u{i}" for i in range(150))]  # 650 would pass the budget
+    table = rows.table(mixed, _rows_of(asked, mixed))
+    assert asked[-1] == mixed[50:]  # held rows are not computed again...
+    assert table[1:, 0].tolist() == [len(t) for t in mixed]
+    assert sorted(rows.index) == sorted(mixed)  # ...and the store starts afresh with this call's
     too_many = [f"v{i}" for i in range(700)]  # more than it may ever hold: computed, not kept
     table = rows.table(too_many, _rows_of(asked, too_many))
     assert table.shape == (701, 2) and table[0].tolist() == [0, 0] and len(rows.index) == 0
+    assert rows.table(mixed[:3], _rows_of(asked, mixed[:3]))[1:, 0].tolist() == [2, 2, 2]
 
 
 def _scores(tagger, sentences) -> list[tuple[list[tuple[str, int, int]], np.ndarray]]:
@@ -88,6 +91,6 @@ def test_remembered_rows_give_what_a_fresh_tagger_gives_even_after_the_weights_c
         with torch.no_grad():
             for p in tagger.net.chars.parameters():
                 p.mul_(-3.0)
-    before = _scores(fresh, sentences)
-    assert _same(_scores(remembering, sentences), before)
-    assert not _same(_scores(tiny_tagger(seed=3), sentences), before)  # the change did reach the output
+    changed = _scores(fresh, sentences)
+    assert not _same(_scores(tiny_tagger(seed=3), sentences), changed)  # it reached the output
+    assert _same(_scores(remembering, sentences), changed)

@@ -26,7 +26,8 @@ graph in Python, as word ids are. Looking the rows up in numpy instead would nee
 beside the graphs in a storage format of our own; as a graph it is ONNX's packed float32, the
 same size as in the model file, shrunk to int8 by the same quantiser as the other weights with
 ``--int8``, and the tagging side needs neither torch nor a second reader. It runs once per
-distinct token of a call, as torch's prediction does (`tagger.apply.predict`).
+distinct token, its rows remembered between calls, as torch's prediction does
+(`tagger.apply.predict`).
 """
 
 from __future__ import annotations

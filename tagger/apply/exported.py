@@ -7,7 +7,8 @@ Everything around the network is the torch tagger's own: tokenising, feature ids
 output formats, span scores, the review flag's certainty and the calibration temperature. The
 work per call follows `tagger.apply.predict`: each distinct token's word and character ids (and
 its rows of a frozen vector table) are looked up once, its character features ("characters"
-graph) and table vector ("vectors" graph) computed once, then sentences of similar length are
+graph) and table vector ("vectors" graph) computed once and remembered for later calls
+(`tagger.apply.token_rows`), then sentences of similar length are
 batched through the character language model ("char_lm" graph), when the model reads one, and
 the "words" graph.
 """

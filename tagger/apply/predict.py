@@ -10,7 +10,7 @@ so they are computed once per distinct token, not per occurrence, and remembered
 
 from __future__ import annotations
 
-from collections.abc import Iterator, Sequence
+from collections.abc import Callable, Iterator, Sequence
 from typing import TYPE_CHECKING
 
 import numpy as np
@@ -134,23 +134,20 @@ def emission_batches(
             )
             word_of = torch.tensor([0, *encoded.words])  # (N+1,) word id of each distinct token
             seen, chars, bags = list(distinct), encoded.chars, encoded.bags or []
-            char_table = fixed_table = None  # (N+1, F) and (N+1, dim): row 0 the padding's
-            if net.chars is not None and seen:
-                char_table = torch.from_numpy(
-                    tagger.token_rows["chars"].table(
-                        seen,
-                        lambda at: _char_features(net, [chars[i] for i in at]).numpy(),
-                        weights_key(net.chars),
-                    )
-                )
-            if net.fixed_vectors is not None and seen:
-                fixed_table = torch.from_numpy(
-                    tagger.token_rows["vectors"].table(
-                        seen,
-                        lambda at: _fixed_vectors(net, [bags[i] for i in at]).numpy(),
-                        weights_key(net.fixed_vectors),
-                    )
-                )
+            char_table = _remembered(  # (N+1, F): row 0 zeros, for padding
+                tagger,
+                "chars",
+                net.chars,
+                seen,
+                lambda at: _char_features(net, [chars[i] for i in at]),
+            )
+            fixed_table = _remembered(  # (N+1, dim)
+                tagger,
+                "vectors",
+                net.fixed_vectors,
+                seen,
+                lambda at: _fixed_vectors(net, [bags[i] for i in at]),
+            )
             real = [i for i, tokens in enumerate(token_lists) if len(tokens) > 0]
             real.sort(key=lambda i: len(token_lists[i]))  # similar lengths: little padding
         for first in range(0, len(real), batch_size):
@@ -233,6 +230,24 @@ def scored_sentences(
             spans = [(t, s, e, min(p[s:e])) for t, s, e in tagger.label_ids_to_spans(path)]
             result[i] = ScoredSentence(spans, least)
     return result
+
+
+def _remembered(
+    tagger: Tagger,
+    store: str,
+    module: torch.nn.Module | None,
+    tokens: list[str],
+    compute: Callable[[list[int]], torch.Tensor],
+) -> torch.Tensor | None:
+    """(N+1, width): row 0 zeros, then each of the N ``tokens``' row from the tagger's store
+    ``store``, ``compute(positions)`` giving the rows of those not held; None for a network
+    without ``module`` (or no tokens)."""
+    if module is None or not tokens:
+        return None
+    table = tagger.token_rows[store].table(
+        tokens, lambda at: compute(at).numpy(), weights_key(module)
+    )
+    return torch.from_numpy(table)
 
 
 def weights_key(module: torch.nn.Module) -> tuple[int, ...]:

@@ -4,8 +4,8 @@ row once rather than once per call.
 
 Such a row depends on the token and the weights only, not on its sentence; the store is keyed
 by a caller-given token of those weights and forgets everything when the key changes (a network
-still being trained) or when it would hold more than `ROW_LIMIT` tokens. No torch here: the
-export backend uses it too.
+still being trained) or when it would pass `ROW_BYTES`. No torch here: the export backend uses
+it too.
 """
 
 from __future__ import annotations
@@ -14,14 +14,14 @@ from collections.abc import Callable, Hashable, Sequence
 
 import numpy as np
 
-ROW_LIMIT = 50_000  # distinct tokens remembered: 12.8 MB for 64 float32 features
+ROW_BYTES = 16 * 2**20  # per store: 65,536 tokens of 64 float32 features, 13,981 of 300
 
 
 class TokenRows:
-    """token -> one float32 row, computed by the caller for the tokens not yet held."""
+    """token -> one row, computed by the caller for the tokens not yet held."""
 
-    def __init__(self, limit: int = ROW_LIMIT) -> None:
-        self.limit = limit
+    def __init__(self, max_bytes: int = ROW_BYTES) -> None:
+        self.max_bytes = max_bytes
         self.key: Hashable = None
         self.index: dict[str, int] = {}  # token -> row of `store`; row 0 is the padding's zeros
         self.store: np.ndarray | None = None  # (capacity, width)
@@ -36,34 +36,44 @@ class TokenRows:
         compute: Callable[[list[int]], np.ndarray],
         key: Hashable = None,
     ) -> np.ndarray:
-        """(N+1, width): row 0 zeros (padding), then the row of each of the N distinct
+        """(N+1, width): row 0 zeros (padding), then the row of each of the N >= 1 distinct
         ``tokens``. ``compute(positions)`` gives the rows (M, width) of the tokens at those
         positions of ``tokens``; it is called once, for the tokens not held (none: not called)."""
         if key != self.key:
             self.clear()
             self.key = key
         missing = [i for i, token in enumerate(tokens) if token not in self.index]
-        if len(self.index) + len(missing) > self.limit:
+        if not missing:
+            assert self.store is not None
+            return self.store[self._rows_of(tokens)]
+        computed = compute(missing)  # (M, width)
+        table = np.zeros((len(tokens) + 1, computed.shape[1]), dtype=computed.dtype)
+        table[np.asarray(missing) + 1] = computed
+        if self.store is not None:
+            held = [i for i, token in enumerate(tokens) if token in self.index]
+            table[np.asarray(held, dtype=np.int64) + 1] = self.store[
+                self._rows_of([tokens[i] for i in held])[1:]
+            ]
+        limit = self.max_bytes // table[0].nbytes  # tokens the store may hold
+        if len(self.index) + len(missing) > limit:  # start afresh with this call's tokens
             self.clear()
-            missing = list(range(len(tokens)))
-        if len(tokens) > self.limit:  # more than the store may hold: computed, not kept
-            rows = compute(missing)
-            return np.concatenate([np.zeros((1, rows.shape[1]), rows.dtype), rows])
+            missing = list(range(len(tokens))) if len(tokens) <= limit else []
         if missing:
-            self._keep([tokens[i] for i in missing], compute(missing))
-        assert self.store is not None
-        where = np.fromiter(
-            (self.index[token] for token in tokens), dtype=np.int64, count=len(tokens)
-        )
-        return self.store[np.concatenate([[0], where])]
+            self._keep([tokens[i] for i in missing], table[np.asarray(missing) + 1], limit)
+        return table
 
-    def _keep(self, tokens: list[str], rows: np.ndarray) -> None:
+    def _rows_of(self, tokens: Sequence[str]) -> np.ndarray:
+        """Row 0, then each token's row of `store`."""
+        where = np.fromiter((self.index[t] for t in tokens), dtype=np.int64, count=len(tokens))
+        return np.concatenate([[0], where])
+
+    def _keep(self, tokens: list[str], rows: np.ndarray, limit: int) -> None:
         first = len(self.index) + 1
         needed = first + len(tokens)
         if self.store is None or needed > len(self.store):
             # doubling: a store grown a few rows at a time copies each row a bounded number of times
             capacity = max(needed, 2 * (0 if self.store is None else len(self.store)), 256)
-            grown = np.zeros((min(capacity, self.limit + 1), rows.shape[1]), dtype=rows.dtype)
+            grown = np.zeros((min(capacity, limit + 1), rows.shape[1]), dtype=rows.dtype)
             if self.store is not None:
                 grown[:first] = self.store[:first]
             self.store = grown
