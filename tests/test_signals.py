@@ -14,7 +14,8 @@ import signal
 import subprocess
 import sys
 import time
-from collections.abc import Callable
+from collections.abc import Callable, Iterator
+from contextlib import contextmanager
 from pathlib import Path
 
 import pytest
@@ -46,6 +47,18 @@ def _wait_for(condition: Callable[[], bool], process: subprocess.Popen[str], wha
             process.kill()
             pytest.fail(f"no sign of {what} in {HANG_GUARD_SECONDS} s")
         time.sleep(0.05)
+
+
+@contextmanager
+def _ctrl_c_heard() -> Iterator[None]:
+    """SIGINT handled, not ignored, while the block starts a process: a test run started in the
+    background by a shell without job control inherits an ignored SIGINT, a child would inherit
+    it too, and Python keeps an ignored SIGINT ignored (the command then never hears Ctrl-C)."""
+    previous = signal.signal(signal.SIGINT, signal.default_int_handler)
+    try:
+        yield
+    finally:
+        signal.signal(signal.SIGINT, previous)
 
 
 def _temporary_files(folder: Path) -> list[str]:
@@ -132,15 +145,16 @@ def test_ctrl_c_while_workers_tag_is_one_line_and_exits_130(model: Path, tmp_pat
     out = tmp_path / "out.jsonl"
     environment = {**os.environ, "PYTHONPATH": str(ROOT)}
     arguments = ["tag", str(model), str(feed), "--out", str(out), "--workers", "2"]
-    process = subprocess.Popen(
-        [sys.executable, "-m", "tagger", *arguments, "--chunk-chars", "200"],
-        cwd=tmp_path,
-        env=environment,
-        stdout=subprocess.PIPE,
-        stderr=subprocess.PIPE,
-        text=True,
-        start_new_session=True,  # its own process group, as a terminal's foreground job has
-    )
+    with _ctrl_c_heard():
+        process = subprocess.Popen(
+            [sys.executable, "-m", "tagger", *arguments, "--chunk-chars", "200"],
+            cwd=tmp_path,
+            env=environment,
+            stdout=subprocess.PIPE,
+            stderr=subprocess.PIPE,
+            text=True,
+            start_new_session=True,  # its own process group, as a terminal's foreground job has
+        )
     record = json.dumps({"text": "Crew swapped the pitch bearing on T-14. Oil leak found."})
 
     def tagged_output_written() -> bool:
