@@ -2,7 +2,7 @@
 beside the library's own tagging speed measured in the same run, in CPU seconds and wall time.
 
     .venv/bin/python scripts/bench_serve.py [MODEL] [--requests 60] [--clients 16] [--threads 1]
-        [--rounds 3] [--service NAME=TREE ...] [--profile]
+        [--rounds 3] [--service NAME=TREE ...] [--profile] [--export float|int8]
 
 MODEL defaults to runs/demo/model.tagger; when it is absent, a model with configs/default.toml is
 trained on the demo data for one epoch first (its speed is that of any model of its shape).
@@ -32,6 +32,9 @@ after 300 s at most.
 `--profile` instead runs each service once under full load with cProfile on its event loop's
 thread and its tagging thread (scripts/serve_profiled.py) and records where each thread's CPU
 goes, by area and by function: benchmarks/serve_profile.json and serve_profile.md.
+`--export float|int8` serves the model exported (`tagger export`, with `--int8` for int8) on
+the onnx backend and measures the library on that same export, so the shares compare like with
+like; results go to benchmarks/serve_float.* or serve_int8.*.
 Results go to benchmarks/serve.json and benchmarks/serve.md.
 """
 
@@ -301,13 +304,14 @@ def start_service(
     tree: Path,
     profile_to: Path | None = None,
     hide: Path | None = None,
+    backend: str = "torch",
 ) -> tuple[subprocess.Popen, str, int]:
     """`tagger serve` of source tree `tree` in a child process (or, with `profile_to`, the same
     service under cProfile: scripts/serve_profiled.py), and where it listens; `hide` is a
     folder of `hidden_speedups` to run it as on the plain install."""
     if profile_to is None:
         command = ["-m", "tagger", "serve", str(model), "--port", "0", "--threads", str(threads)]
-        command += ["--queue-requests", "1024"]
+        command += ["--queue-requests", "1024", "--backend", backend]
     else:
         command = [str(ROOT / "scripts" / "serve_profiled.py"), str(model), str(profile_to)]
         command += ["--threads", str(threads)]
@@ -333,10 +337,17 @@ def stop_service(process: subprocess.Popen, how: int = signal.SIGTERM) -> None:
 
 
 def measure_service(
-    model: Path, threads: int, tree: Path, hide: Path | None, full_texts, half_texts, counts: dict
+    model: Path,
+    threads: int,
+    tree: Path,
+    hide: Path | None,
+    full_texts,
+    half_texts,
+    counts: dict,
+    backend: str = "torch",
 ) -> dict:
     """Full load, then half load at half full load's rate, on a freshly started service."""
-    process, host, port = start_service(model, threads, tree, hide=hide)
+    process, host, port = start_service(model, threads, tree, hide=hide, backend=backend)
     try:
         load_phase(host, port, [t[:3] for t in full_texts], 0, process.pid)  # kernels, sockets
         before = health(host, port)
@@ -487,8 +498,9 @@ def render(entry: dict) -> str:
         f"- date: {m['date']}; commit {m['commit']}; command: `{m['command']}`",
         f"- machine: {m['cores']} cores, {m['cpu']}; torch {m['torch']}, python {m['python']}; "
         f"load average {m['load_before']} before the run, {entry['load_after']} after",
-        f"- model: {entry['model']}; {entry['threads']} torch thread(s) in the service and in the "
-        "library run; the access log on (written to /dev/null)",
+        f"- model: {entry['model']}; {entry.get('backend', 'torch')} backend, "
+        f"{entry['threads']} thread(s) in the service and in the library run; the access log on "
+        "(written to /dev/null)",
         f"- requests: {entry['clients']} clients, one sentence per request, "
         f"{entry['requests_per_phase']:,} at full load and {entry['requests_per_phase']:,} at half "
         f"load per round; {entry['rounds']} rounds, each measuring the library and then every "
@@ -509,7 +521,7 @@ def render(entry: dict) -> str:
         "clients' own CPU (reported below) and the other jobs of a shared machine. The service "
         "process's CPU seconds (user + system, all its threads, from /proc/PID/stat) count its "
         "own work only: HTTP, JSON, batching and tagging. So the target is judged on **tokens per "
-        "service CPU second against the library's tokens per CPU second** (one torch thread in "
+        "service CPU second against the library's tokens per CPU second** (one thread in "
         "both); the wall-clock ratio is given beside it and is what a client on this busy "
         "machine sees.",
         "",
@@ -687,7 +699,15 @@ def main() -> None:
         help="NAME: run that service as on the plain install (httptools and uvloop hidden)",
     )
     parser.add_argument("--profile", action="store_true", help="profile each service instead")
+    parser.add_argument(
+        "--export",
+        choices=["float", "int8"],
+        help="serve the model exported (tagger export, float32 or int8 weights) on the onnx "
+        "backend, and measure the library on the same export; results go to serve_EXPORT.*",
+    )
     args = parser.parse_args()
+    if args.profile and args.export:
+        parser.error("--profile measures services on the torch backend only")
     trees = service_trees(args.service, args.plain)
     hide = hidden_speedups() if args.plain else None
 
@@ -699,16 +719,27 @@ def main() -> None:
             "http_and_loop": server_parts(plain),
         }
 
-    from tagger.apply.tagger import Tagger
+    from tagger.apply.tagging import load_tagger
     from tagger.data.corpus import read_sentences
 
     data = demo_data(None)
     model = ensure_model(args.model, data, epochs=1).resolve()
+    backend, record = "torch", "serve"
+    if args.export is not None:
+        from tagger.apply.exporting import export_model
+
+        backend, record = "onnx", f"serve_{args.export}"
+        exported = Path(tempfile.mkdtemp(prefix="tagger-serve-export-")) / "model.tagexport"
+        export_model(model, exported, int8=args.export == "int8")
+        common_model = f"{portable_path(model)}, exported ({args.export} weights)"
+        model = exported
+    else:
+        common_model = portable_path(model)
     about = machine()
     sentences = [s.tokens for s in read_sentences(data / "test.txt")]
     total = args.clients * args.requests
     texts, half_texts = texts_for(sentences, total), texts_for(sentences, total, seed=2)
-    tagger = Tagger.load(model, threads=args.threads)
+    tagger = load_tagger(model, backend, args.threads)
 
     def tokens_in(some: list[str]) -> int:
         return sum(len(s.tokens) for text in some for s in tagger.tokenize(text))
@@ -717,7 +748,8 @@ def main() -> None:
     per_client = [texts[c :: args.clients] for c in range(args.clients)]
     half_per_client = [half_texts[c :: args.clients] for c in range(args.clients)]
     common = {
-        "model": portable_path(model),
+        "model": common_model,
+        "backend": backend,
         "threads": args.threads,
         "clients": args.clients,
         "requests_per_phase": total,
@@ -760,6 +792,7 @@ def main() -> None:
                 per_client,
                 half_per_client,
                 counts,
+                backend,
             )
             full = found["full_load"]
             found["shares"] = {
@@ -785,8 +818,10 @@ def main() -> None:
         ],
         "figures_clean": False,
     }
-    (RESULTS_DIR / "serve.json").write_text(json.dumps(entry, indent=2) + "\n", encoding="utf-8")
-    (RESULTS_DIR / "serve.md").write_text(render(entry), encoding="utf-8")
+    (RESULTS_DIR / f"{record}.json").write_text(
+        json.dumps(entry, indent=2) + "\n", encoding="utf-8"
+    )
+    (RESULTS_DIR / f"{record}.md").write_text(render(entry), encoding="utf-8")
     print(render(entry))
 
 
