@@ -25,7 +25,7 @@ import numpy as np
 
 from tagger.apply.export_file import read_export_file
 from tagger.apply.label_decoding import LabelDecoder, argmax_paths, softmax
-from tagger.apply.review import ScoredSentence
+from tagger.apply.review import ScoredSentence, score_paths
 from tagger.apply.tagger import PREDICT_BATCH, Rows, Tagger
 from tagger.errors import ConfigError, ModelFileError
 from tagger.network.metadata import read_stored_model
@@ -231,24 +231,14 @@ class ExportedTagger(Tagger):
         result = [ScoredSentence([]) for _ in token_lists]
         for indices, emissions, mask in self.emission_batches(token_lists, batch_size, rows):
             paths = plain.decode(emissions, mask) if plain else argmax_paths(emissions, mask)
-            if not with_scores:
-                for i, path in zip(indices, paths, strict=True):
-                    spans = [(t, s, e, 1.0) for t, s, e in self.label_ids_to_spans(path)]
-                    result[i] = ScoredSentence(spans)
-                continue
-            if tempered is not None:
+            probabilities = None
+            if with_scores and tempered is not None:
                 probabilities = tempered.marginals(emissions / temperature, mask)
-            else:
+            elif with_scores:
                 probabilities = softmax(emissions, temperature)
-            chosen = np.zeros(mask.shape, dtype=np.int64)  # (B, T) decoded label ids
-            for b, path in enumerate(paths):
-                chosen[b, : len(path)] = path
-            picked = np.take_along_axis(probabilities, chosen[:, :, None], axis=2)[:, :, 0]
-            for i, path, p in zip(indices, paths, picked.tolist(), strict=True):
-                # exp() of a log-probability may overshoot 1 by a rounding error
-                sure = [min(1.0, q) for q in p[: len(path)]]
-                spans = [(t, s, e, min(sure[s:e])) for t, s, e in self.label_ids_to_spans(path)]
-                result[i] = ScoredSentence(spans, min(sure))
+            found = score_paths(paths, probabilities, mask, self.label_ids_to_spans)
+            for i, sentence in zip(indices, found, strict=True):
+                result[i] = sentence
         return result
 
 

@@ -17,7 +17,7 @@ import numpy as np
 import torch
 
 from tagger.apply.label_decoding import LabelDecoder
-from tagger.apply.review import ScoredSentence
+from tagger.apply.review import ScoredSentence, score_paths
 from tagger.network.batching import EncodedSentence, collate_lm, encode_sentence
 from tagger.network.crf import CRF
 from tagger.network.net import TaggerNet
@@ -207,28 +207,15 @@ def scored_sentences(
     for indices, emissions, mask in emission_batches(tagger, token_lists, batch_size, rows):
         with torch.inference_mode():
             paths = net.decode(emissions, mask)
-            if not with_scores:
-                for i, path in zip(indices, paths, strict=True):
-                    spans = [(t, s, e, 1.0) for t, s, e in tagger.label_ids_to_spans(path)]
-                    result[i] = ScoredSentence(spans)
-                continue
             real = mask.numpy()
+            probabilities = None
             if decoder is not None:
                 probabilities = decoder.marginals((emissions / temperature).numpy(), real)
-            else:
+            elif with_scores:
                 probabilities = label_probabilities(net, emissions, mask, temperature).numpy()
-        chosen = np.zeros(real.shape, dtype=np.int64)  # (B, T) decoded label ids
-        for b, path in enumerate(paths):
-            chosen[b, : len(path)] = path
-        picked = np.take_along_axis(probabilities, chosen[:, :, None], axis=2)[:, :, 0]
-        # exp() of a log-probability may overshoot 1 by a rounding error
-        sure = np.minimum(picked, 1.0)  # (B, T)
-        # Padding read as 1.0 leaves each sentence's minimum to its real tokens; taken here
-        # rather than token by token in Python, where it was a visible share of tagging.
-        certainty = np.where(real, sure, 1.0).min(axis=1).tolist()  # (B,)
-        for i, path, p, least in zip(indices, paths, sure.tolist(), certainty, strict=True):
-            spans = [(t, s, e, min(p[s:e])) for t, s, e in tagger.label_ids_to_spans(path)]
-            result[i] = ScoredSentence(spans, least)
+        found = score_paths(paths, probabilities, real, tagger.label_ids_to_spans)
+        for i, sentence in zip(indices, found, strict=True):
+            result[i] = sentence
     return result
 
 

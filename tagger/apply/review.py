@@ -15,13 +15,16 @@ The probabilities are the model's label marginals, sharpened or softened by the 
 training run fitted on dev (`tagger.apply.calibration`), so that a score of 0.9 is right about
 nine times in ten.
 
-Nothing here needs torch; `tagger.apply.predict` computes the certainties.
+Nothing here needs torch: both backends turn their label paths and probabilities into scored
+sentences with `score_paths`.
 """
 
 from __future__ import annotations
 
-from collections.abc import Iterable
+from collections.abc import Callable, Iterable, Sequence
 from dataclasses import dataclass
+
+import numpy as np
 
 REVIEW_BELOW = 0.8  # the `tag` command's default threshold
 
@@ -47,3 +50,30 @@ def least_certain(sentences: Iterable[ScoredSentence]) -> float:
 def needs_review(certainty: float, review_below: float) -> bool:
     """Is a sentence or document of this certainty flagged at the threshold `review_below`?"""
     return certainty < review_below
+
+
+def score_paths(
+    paths: Sequence[Sequence[int]],
+    probabilities: np.ndarray | None,
+    real: np.ndarray,
+    to_spans: Callable[[Sequence[int]], list[tuple[str, int, int]]],
+) -> list[ScoredSentence]:
+    """One batch's sentences: the spans ``to_spans`` reads from each label path, each scored by
+    the lowest probability of its chosen labels, and each sentence's certainty. ``probabilities``
+    (B, T, L) for ``real`` (B, T) positions; None scores every span 1.0 (prediction without
+    scores)."""
+    if probabilities is None:
+        return [ScoredSentence([(t, s, e, 1.0) for t, s, e in to_spans(path)]) for path in paths]
+    chosen = np.zeros(real.shape, dtype=np.int64)  # (B, T) chosen label ids
+    for b, path in enumerate(paths):
+        chosen[b, : len(path)] = path
+    picked = np.take_along_axis(probabilities, chosen[:, :, None], axis=2)[:, :, 0]
+    # exp() of a log-probability may overshoot 1 by a rounding error
+    sure = np.minimum(picked, 1.0)  # (B, T)
+    # Padding read as 1.0 leaves each sentence's minimum to its real tokens; taken here rather
+    # than token by token in Python, where it was a visible share of tagging.
+    certainty = np.where(real, sure, 1.0).min(axis=1).tolist()  # (B,)
+    return [
+        ScoredSentence([(t, s, e, min(p[s:e])) for t, s, e in to_spans(path)], least)
+        for path, p, least in zip(paths, sure.tolist(), certainty, strict=True)
+    ]

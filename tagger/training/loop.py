@@ -175,12 +175,10 @@ def _train(
     parameters = sum(p.numel() for p in net.parameters())
     report(events.start(run_overview(config, data, parameters, run_dir, state.epoch + 1)))
     if ranks.spread:
-        rate = step_rate(config, ranks.world)
+        scaling = _rate_scaling(config, ranks)
         scaled = (
-            f"; each step holds {ranks.world} batches, so the learning rate is "
-            f"{config.train.learning_rate:g} x {ranks.world} = {rate:g} "
-            "(train.scale_rate_with_processes = false keeps it as given)"
-            if rate != config.train.learning_rate
+            f"; each step holds {ranks.world} batches, so the learning rate is {scaling}"
+            if scaling
             else ""
         )
         report(
@@ -212,7 +210,7 @@ def _train(
         if totals.not_finite is not None:
             diverged = True
             stop_reason = _diverged_reason(
-                totals.not_finite, epoch, state, run_dir, _scaling_said(config, ranks)
+                totals.not_finite, epoch, state, run_dir, _rate_scaling(config, ranks)
             )
             break
         train_seconds = now() - started
@@ -449,14 +447,15 @@ def _stop_reason(state: RunState, config: Config, clock: RunClock, epoch: int) -
     return ""
 
 
-def _scaling_said(config: Config, ranks: Ranks) -> str:
-    """What a diverged run on several processes adds about its scaled learning rate."""
-    rate = step_rate(config, ranks.world)
-    if rate == config.train.learning_rate:
+def _rate_scaling(config: Config, ranks: Ranks) -> str:
+    """How the learning rate was scaled for several processes, said at the start of a run and
+    when it diverges; "" when it was not."""
+    given, rate = config.train.learning_rate, step_rate(config, ranks.world)
+    if rate == given:
         return ""
     return (
-        f" (the rate was {config.train.learning_rate:g} x {ranks.world} processes = {rate:g}; "
-        "train.scale_rate_with_processes = false keeps it as given)"
+        f"{given:g} x {ranks.world} processes = {rate:g}; "
+        "train.scale_rate_with_processes = false keeps it as given"
     )
 
 
@@ -465,7 +464,7 @@ def _diverged_reason(
     epoch: int,
     state: RunState,
     run_dir: Path,
-    scaled: str = "",
+    scaling: str = "",
 ) -> str:
     batch, loss = not_finite
     kept = (
@@ -475,5 +474,6 @@ def _diverged_reason(
     )
     return (
         f"the training loss became {loss} at epoch {epoch}, batch {batch}; "
-        f"{kept}. Try a lower train.learning_rate or train.clip_norm{scaled}"
+        f"{kept}. Try a lower train.learning_rate or train.clip_norm"
+        + (f" (the rate was {scaling})" if scaling else "")
     )
